@@ -1,0 +1,53 @@
+"""One error family for everything the user can get wrong.
+
+The CLI turns every :class:`PoolerError` into a one-line message and exit code 2
+in one place (``pooler.cli``); library users catch :class:`PoolerError`.
+"""
+from __future__ import annotations
+
+
+class PoolerError(Exception):
+    """Base class of all errors that pooler raises on purpose."""
+
+
+class InputError(PoolerError):
+    """Bad input, located as precisely as we can: file, sheet row, column.
+
+    Parameters
+    ----------
+    message : str
+        What is wrong and, where possible, how to fix it.
+    file : str, optional
+        The file the problem is in.
+    row : int, optional
+        The sheet's own row number (the header row is 1).
+    column : str, optional
+        The column name as the sheet spells it.
+    """
+
+    def __init__(self, message: str, *, file: str | None = None,
+                 row: int | None = None, column: str | None = None):
+        self.message = message
+        self.file = file
+        self.row = row
+        self.column = column
+        super().__init__(self.__str__())
+
+    def located(self, *, file: str | None = None) -> "InputError":
+        """Return a copy that names ``file`` when this error names none."""
+        return InputError(self.message, file=self.file or file,
+                          row=self.row, column=self.column)
+
+    def __str__(self) -> str:
+        where = []
+        if self.file:
+            where.append(str(self.file))
+        if self.row is not None:
+            where.append(f"row {self.row}")
+        if self.column:
+            where.append(f"column '{self.column}'")
+        return (", ".join(where) + ": " if where else "") + self.message
+
+
+class OptionError(PoolerError):
+    """An option value that cannot be used (named in the message)."""
