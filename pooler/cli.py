@@ -112,6 +112,105 @@ def convert(sheet, metric, within_r, sample_r, as_json):
         click.echo(effects_text(eff, s))
 
 
+def _planning_options(f):
+    opts = [
+        click.option("--design", type=click.Choice(list(_DESIGNS)), default="two-group",
+                     show_default=True, help="The planned study's design."),
+        click.option("--alpha", type=float, default=0.05, show_default=True,
+                     help="Significance level."),
+        click.option("--tails", type=click.IntRange(1, 2), default=2, show_default=True,
+                     help="2 = two-tailed; 1 = one-tailed in the hypothesised direction."),
+        click.option("--power", "powers", type=float, multiple=True,
+                     help="Target power; repeat for several.  [default: 0.8 0.9 0.95]"),
+        click.option("--attrition", type=float, default=0.0, show_default=True,
+                     help="Expected fraction of participants lost; totals to recruit are "
+                          "inflated to n / (1 - attrition)."),
+        click.option("--n", "n_total", type=click.IntRange(min=1), default=None,
+                     help="A fixed feasible total N: adds power under each scenario and the "
+                          "smallest detectable effect."),
+        click.option("--ratio", type=float, default=1.0, show_default=True,
+                     help="two-group, ancova: allocation n2/n1."),
+        click.option("--planned-r", type=float, default=0.5, show_default=True,
+                     help="paired: planned correlation between the repeated measures "
+                          "(d_z = d / sqrt(2(1 - r)); at 0.5, d_z = d)."),
+        click.option("--covariate-r", type=float, default=0.5, show_default=True,
+                     help="ancova: correlation between covariate (pre-test) and outcome."),
+        click.option("--attenuation", type=float, default=0.5, show_default=True,
+                     help="interaction-2x2: share of the simple effect that disappears at the "
+                          "other moderator level (1 = vanishes, 2 = full crossover)."),
+        click.option("--predictors-added", type=click.IntRange(min=1), default=1,
+                     show_default=True, help="regression-increment: predictors tested."),
+        click.option("--predictors-total", type=click.IntRange(min=1), default=None,
+                     help="regression-increment: predictors in the full model "
+                          "[default: the added ones]."),
+        click.option("--exact-r", is_flag=True,
+                     help="correlation: use the exact distribution of r, not Fisher's z."),
+    ]
+    for o in reversed(opts):
+        f = o(f)
+    return f
+
+
+_DESIGNS = ("two-group", "paired", "one-sample", "correlation", "ancova", "interaction-2x2",
+            "regression-increment")
+
+
+def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
+                 predictors_total, exact_r):
+    from .power import Design
+    return Design(design, ratio=ratio, planned_r=planned_r, covariate_r=covariate_r,
+                  attenuation=attenuation, predictors_added=predictors_added,
+                  predictors_total=predictors_total or predictors_added, exact_r=exact_r)
+
+
+@main.command()
+@click.option("--effect", "effects", type=float, multiple=True, required=True,
+              help="Planning effect (d, or r with --metric r); repeat for several.")
+@click.option("--effect-sd", type=float, default=None,
+              help="SD of the predictive distribution of the true effect (sqrt(SE^2 + tau^2)); "
+                   "adds the n for a target assurance, centred on the first --effect.")
+@click.option("--metric", type=click.Choice(["d", "r"]), default=None,
+              help="Metric of --effect [default: r for correlation and regression-increment "
+                   "designs, else d].")
+@_planning_options
+@_json_option
+def plan(effects, effect_sd, metric, design, alpha, tails, powers, attrition, n_total, ratio,
+         planned_r, covariate_r, attenuation, predictors_added, predictors_total, exact_r,
+         as_json):
+    """Sample size for a planned study from a given planning effect.
+
+    Prints the smallest n reaching each target power (exact noncentral distributions),
+    and, with --effect-sd, the n for a target assurance; with --n, the power a fixed
+    total N gives and the smallest effect it can detect.
+
+    \b
+    Example:
+      pooler plan --effect 0.3 --design two-group
+      pooler plan --effect 0.35 --effect 0.2 --design paired --planned-r 0.6 --attrition 0.1
+      pooler plan --effect 0.25 --design correlation --n 250
+    """
+    from .planning import PlanningEffect, make_plan
+    from .report import plan_text
+    des = _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
+                       predictors_total, exact_r)
+    if metric is None:
+        metric = "r" if design in ("correlation", "regression-increment") else "d"
+    names = ["given"] if len(effects) == 1 else [f"given {i + 1}" for i in range(len(effects))]
+    scen = [PlanningEffect(nm, e) for nm, e in zip(names, effects)]
+    predictive = None
+    if effect_sd is not None:
+        import math
+        mean = math.atanh(effects[0]) if metric == "r" else effects[0]
+        predictive = (mean, effect_sd)
+    p = make_plan(scen, des, metric=metric, alpha=alpha, tails=tails,
+                  powers=powers or (0.8, 0.9, 0.95), attrition=attrition, predictive=predictive,
+                  n_total=n_total, effect_label=metric)
+    if as_json:
+        _print_json(p.to_dict())
+    else:
+        click.echo(plan_text(p))
+
+
 @main.command()
 @click.argument("path", type=click.Path(dir_okay=False))
 @click.option("--force", is_flag=True, help="Overwrite PATH if it exists.")

@@ -55,3 +55,112 @@ def effects_text(eff, sheet) -> str:
 
 def _n(x: float):
     return int(x) if float(x).is_integer() else round(x, 1)
+
+
+# ------------------------------------------------------------------ planning table
+
+def _pct(p: float) -> str:
+    return f"{100 * p:g}%"
+
+
+def plan_table(plan) -> tuple[list[str], list[list]]:
+    """Headers and rows of the planning table: one row per scenario, and per target power
+    the n per group (per cell) and total, and the total to recruit when attrition is set."""
+    des = plan.design
+    headers = ["scenario", f"planning {plan.effect_label}", f"design {des.effect_label}"]
+    for p in plan.powers:
+        if des.grouped:
+            unit = "n/cell" if des.name == "interaction-2x2" else "n/group"
+            headers += [f"{unit} @{_pct(p)}", f"total @{_pct(p)}"]
+        else:
+            headers += [f"N @{_pct(p)}"]
+        if plan.attrition:
+            headers += [f"recruit @{_pct(p)}"]
+    rows = []
+    for s in plan.scenarios:
+        line = [s.scenario, s.effect, None]
+        for p in plan.powers:
+            r = plan.row(s.scenario, p)
+            line[2] = r.design_effect
+            cells = [r.n_per_group, r.n_total] if des.grouped else [r.n_total]
+            if plan.attrition:
+                cells.append(r.n_total_recruit)
+            line += [c if isinstance(c, int) else "cannot be reached" for c in cells]
+        rows.append(line)
+    return headers, rows
+
+
+def plan_text(plan) -> str:
+    """What ``pooler plan`` prints."""
+    from ._results import NotEstimable
+    des = plan.design
+    tails = "two-tailed" if plan.tails == 2 else "one-tailed"
+    out = [f"Planning table: {des.describe()}, {tails} alpha = {plan.alpha:g}"
+           + (f", attrition {_pct(plan.attrition)}" if plan.attrition else "")]
+    headers, rows = plan_table(plan)
+    out += ["", text_table(headers, rows)]
+    reasons = {str(r.n_total) for r in plan.rows if isinstance(r.n_total, NotEstimable)}
+    for why in sorted(reasons):
+        out.append(f"  cannot be reached: {why.removeprefix('not estimable: ')}")
+    for s in plan.scenarios:
+        if s.basis:
+            out.append(f"  {s.scenario}: {s.basis}")
+    a = plan.assurance
+    if a is not None:
+        out += ["", "Assurance (expected power over the predictive distribution of the true effect):"]
+        if isinstance(a, NotEstimable):
+            out.append(f"  {a}")
+        else:
+            scale = "Fisher z" if a.metric in ("r", "z") else "d"
+            out.append(f"  true effect ~ Normal({a.mean:.3f}, {a.sd:.3f}^2) on the {scale} scale; "
+                       f"ceiling P(effect > 0) = {a.ceiling:.3f}")
+            arows = []
+            for t, n, nt, got in zip(a.targets, a.n, a.n_total, a.achieved):
+                if isinstance(n, NotEstimable):
+                    arows.append([_pct(t), str(n).removeprefix("not estimable: "), None, None])
+                else:
+                    arows.append([_pct(t), n, nt, got])
+            first = "n/group" if des.grouped else "N"
+            out.append(text_table(["target assurance", first, "total", "assurance"], arows))
+    f = plan.fixed_n
+    if f is not None:
+        unit = "per group" if des.grouped else "in all"
+        out += ["", f"With a fixed total N = {f.n_total} ({f.n_per_group} {unit}):"]
+        out.append(text_table(["scenario", f"planning {plan.effect_label}", "power"],
+                              [[s, e, p] for s, e, p in f.power]))
+        out.append("")
+        out.append(text_table(["target power", f"smallest design {des.effect_label}",
+                               f"as planning {plan.effect_label}"],
+                              [[_pct(t), de, e] for t, de, e in f.detectable]))
+    return "\n".join(out)
+
+
+def plan_csv(plan) -> str:
+    """The planning table as CSV text (one row per scenario × target power)."""
+    import csv
+    import io
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(["scenario", "effect", "design_effect", "target_power", "n_per_group", "n_total",
+                "achieved_power", "n_total_recruit"])
+    for r in plan.rows:
+        w.writerow([_csv_safe(r.scenario), repr(r.effect), repr(r.design_effect), r.power,
+                    *[v if not hasattr(v, "reason") else f"not estimable: {v.reason}"
+                      for v in (r.n_per_group, r.n_total, r.achieved_power, r.n_total_recruit)]])
+    return buf.getvalue()
+
+
+def plan_markdown(plan) -> str:
+    """The planning table as a Markdown table."""
+    headers, rows = plan_table(plan)
+    from ._results import fmt
+    def esc(x):
+        return fmt(x).replace("|", "\\|")
+    lines = ["| " + " | ".join(headers) + " |", "|" + "---|" * len(headers)]
+    lines += ["| " + " | ".join(esc(c) for c in r) + " |" for r in rows]
+    return "\n".join(lines)
+
+
+def _csv_safe(text: str) -> str:
+    """Neutralise spreadsheet formula injection in a text cell."""
+    return "'" + text if text[:1] in ("=", "+", "-", "@") else text

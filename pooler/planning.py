@@ -1,0 +1,253 @@
+"""Stage 6 (assembly): the planning table for a set of planning effects.
+
+:func:`make_plan` solves, for each scenario (optimistic / realistic / pessimistic, or
+effects given by hand), the smallest n reaching each target power, adds the n for a
+target assurance when a predictive distribution is known, and, for a fixed feasible N,
+the power under each scenario and the smallest detectable effect. The power functions
+themselves are in :mod:`pooler.power`; like it, this module needs only numpy and
+``scipy.special`` (plus ``scipy.optimize`` for a fixed N).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._results import NotEstimable, estimable, to_jsonable
+from .errors import OptionError
+from .power import (AssuranceResult, Design, _design, detectable_effect, from_design_effect,
+                    n_for_assurance, n_for_power, power_at, to_design_effect)
+
+
+@dataclass(frozen=True)
+class PlanningEffect:
+    """One scenario's planning effect on the literature's metric (d, or r).
+
+    ``basis`` says in words where it comes from.
+    """
+
+    scenario: str
+    effect: float
+    basis: str = ""
+
+    def to_dict(self) -> dict:
+        return {"scenario": self.scenario, "effect": self.effect, "basis": self.basis}
+
+
+@dataclass(frozen=True)
+class PlanRow:
+    """n for one scenario at one target power."""
+
+    scenario: str
+    effect: float
+    design_effect: float
+    power: float
+    n_per_group: int | NotEstimable
+    n_total: int | NotEstimable
+    achieved_power: float | NotEstimable
+    n_total_recruit: int | NotEstimable
+
+    def to_dict(self) -> dict:
+        return to_jsonable(dict(self.__dict__))
+
+
+@dataclass(frozen=True)
+class FixedN:
+    """What a fixed feasible total N buys: power per scenario, smallest detectable effect."""
+
+    n_total: int
+    n_per_group: int
+    power: tuple[tuple[str, float, float], ...]           # (scenario, effect, power)
+    detectable: tuple[tuple[float, float | NotEstimable, float | NotEstimable], ...]
+    # (target power, effect in design metric, effect on literature metric)
+
+    def to_dict(self) -> dict:
+        return to_jsonable({
+            "n_total": self.n_total, "n_per_group": self.n_per_group,
+            "power": [{"scenario": s, "effect": e, "power": p} for s, e, p in self.power],
+            "detectable": [{"power": t, "design_effect": de, "effect": e}
+                           for t, de, e in self.detectable]})
+
+
+@dataclass(frozen=True)
+class Plan:
+    """The planning table and its context.
+
+    Attributes
+    ----------
+    design : Design
+    metric : {"d", "r"}
+        Metric of the planning effects (the literature's).
+    alpha, tails, powers, attrition
+        As requested.
+    scenarios : tuple of PlanningEffect
+    rows : tuple of PlanRow
+        One per scenario × target power, scenario-major.
+    assurance : AssuranceResult, NotEstimable or None
+    fixed_n : FixedN or None
+    """
+
+    design: Design
+    metric: str
+    alpha: float
+    tails: int
+    powers: tuple[float, ...]
+    attrition: float
+    scenarios: tuple[PlanningEffect, ...]
+    rows: tuple[PlanRow, ...]
+    assurance: AssuranceResult | NotEstimable | None = None
+    fixed_n: FixedN | None = None
+    effect_label: str = "g"
+
+    @property
+    def alternative(self) -> str:
+        return "two-sided" if self.tails == 2 else "greater"
+
+    def row(self, scenario: str, power: float) -> PlanRow:
+        return next(r for r in self.rows if r.scenario == scenario and abs(r.power - power) < 1e-12)
+
+    def to_frame(self):
+        import pandas as pd
+        return pd.DataFrame([{k: (str(v) if isinstance(v, NotEstimable) else v)
+                              for k, v in r.__dict__.items()} for r in self.rows])
+
+    def to_dict(self) -> dict:
+        """The ``pooler.plan/1`` JSON document."""
+        return to_jsonable({
+            "schema": "pooler.plan/1", "design": self.design.name,
+            "design_options": self.design.to_dict(), "metric": self.metric,
+            "design_metric": self.design.effect_label, "alpha": self.alpha, "tails": self.tails,
+            "powers": list(self.powers), "attrition": self.attrition,
+            "scenarios": [s.to_dict() for s in self.scenarios],
+            "rows": [r.to_dict() for r in self.rows],
+            "assurance": self.assurance if self.assurance is not None else
+            NotEstimable("no predictive distribution given"),
+            "fixed_n": self.fixed_n if self.fixed_n is not None else
+            NotEstimable("no fixed N given (use --n)"),
+        })
+
+    def __repr__(self) -> str:
+        return (f"Plan({self.design.name}, alpha={self.alpha:g}, tails={self.tails}, "
+                f"{len(self.scenarios)} scenarios x {len(self.powers)} powers)")
+
+
+def _recruit(n_total: int, attrition: float) -> int:
+    """Participants to recruit so that n_total remain after ``attrition`` (a fraction)."""
+    return int(math.ceil(n_total / (1 - attrition) - 1e-9))
+
+
+def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
+              powers=(0.8, 0.9, 0.95), attrition=0.0, predictive=None, assurance_targets=None,
+              n_total=None, effect_label=None) -> Plan:
+    """Solve the planning table.
+
+    Parameters
+    ----------
+    scenarios : sequence of PlanningEffect
+        Planning effects on the literature's metric (``metric``).
+    design : str or Design
+    metric : {"d", "r"}
+    alpha : float
+    tails : {1, 2}
+        1 = one-tailed in the hypothesised direction.
+    powers : sequence of float
+        Target powers.
+    attrition : float
+        Expected fraction lost, in [0, 1): totals are inflated to n / (1 - attrition).
+    predictive : (mean, sd) or None
+        Predictive distribution of the new study's true effect, on the literature's metric
+        (Fisher z for r), for assurance.
+    assurance_targets : sequence of float or None
+        Target assurances (default: the target powers).
+    n_total : int or None
+        A fixed feasible total N: adds power per scenario and the smallest detectable effect.
+    effect_label : str or None
+        How the planning effects are labelled in tables (default "g", or "r").
+
+    Examples
+    --------
+    >>> p = make_plan([PlanningEffect("given", 0.5)], powers=(0.8,))
+    >>> p.rows[0].n_per_group, p.rows[0].n_total
+    (64, 128)
+    """
+    # validation
+    des = _design(design)
+    if tails not in (1, 2):
+        raise OptionError(f"`tails` must be 1 or 2, not {tails!r}")
+    if not 0 < alpha < 0.5:
+        raise OptionError(f"`alpha` must lie in (0, 0.5), not {alpha!r}")
+    powers = tuple(float(p) for p in powers)
+    if not powers or any(not 0 < p < 1 for p in powers):
+        raise OptionError("every target power must lie strictly between 0 and 1")
+    if not 0 <= attrition < 1:
+        raise OptionError(f"`attrition` must be a fraction in [0, 1), not {attrition!r}")
+    if metric not in ("d", "r"):
+        raise OptionError(f"`metric` must be 'd' or 'r', not {metric!r}")
+    scenarios = tuple(scenarios)
+    if not scenarios:
+        raise OptionError("give at least one planning effect")
+    if metric == "r" and any(not -1 < s.effect < 1 for s in scenarios):
+        raise OptionError("a correlation planning effect must lie strictly between -1 and 1")
+    alternative = "two-sided" if tails == 2 else "greater"
+
+    effects = np.array([s.effect for s in scenarios], float)
+    deff = to_design_effect(effects, metric, des)
+    grid = n_for_power(deff[:, None], np.array(powers)[None, :], des, alpha, alternative)
+    rows = []
+    for i, s in enumerate(scenarios):
+        for j, p in enumerate(powers):
+            if grid.reachable[i, j]:
+                n, nt = int(grid.n[i, j]), int(grid.n_total[i, j])
+                rows.append(PlanRow(s.scenario, float(effects[i]), float(deff[i]), p, n, nt,
+                                    float(grid.power[i, j]), _recruit(nt, attrition)))
+            else:
+                why = NotEstimable(grid.reason[i, j])
+                rows.append(PlanRow(s.scenario, float(effects[i]), float(deff[i]), p,
+                                    why, why, why, why))
+
+    assurance = None
+    if predictive is not None:
+        mean, sd = predictive
+        if not (math.isfinite(mean) and math.isfinite(sd) and sd > 0):
+            assurance = NotEstimable("the predictive distribution needs a finite mean and a "
+                                     "positive SD")
+        else:
+            assurance = n_for_assurance(mean, sd, tuple(assurance_targets or powers), des, alpha,
+                                        alternative, "r" if metric == "r" else "d")
+
+    fixed = None
+    if n_total is not None:
+        fixed = _fixed_n(int(n_total), scenarios, effects, deff, des, metric, alpha, alternative,
+                         powers)
+    return Plan(design=des, metric=metric, alpha=alpha, tails=tails, powers=powers,
+                attrition=attrition, scenarios=scenarios, rows=tuple(rows), assurance=assurance,
+                fixed_n=fixed, effect_label=effect_label or ("g" if metric == "d" else "r"))
+
+
+def per_group(n_total: int, design: Design) -> int:
+    """n per group (per cell) that a total N allows, rounding down."""
+    if design.name in ("two-group", "ancova"):
+        return int(math.floor(n_total / (1 + design.ratio) + 1e-9))
+    if design.name == "interaction-2x2":
+        return n_total // 4
+    return n_total
+
+
+def _fixed_n(n_total, scenarios, effects, deff, des, metric, alpha, alternative, powers):
+    n = per_group(n_total, des)
+    if n < des.n_min:
+        raise OptionError(f"--n {n_total} is too small for a {des.name} design "
+                          f"(at least {des.n_min} {'per group' if des.grouped else 'in all'})")
+    pw = power_at(np.where(deff > 0, deff, 0.0), n, des, alpha, alternative)
+    power = tuple((s.scenario, float(e), float(p) if d > 0 else 0.0)
+                  for s, e, d, p in zip(scenarios, effects, deff, np.atleast_1d(pw)))
+    det = []
+    for p in powers:
+        x = float(detectable_effect(n, p, des, alpha, alternative))
+        if math.isfinite(x):
+            det.append((p, x, float(from_design_effect(x, metric, des))))
+        else:
+            why = NotEstimable("no effect in range reaches this power at this N")
+            det.append((p, why, why))
+    return FixedN(n_total=n_total, n_per_group=n, power=power, detectable=tuple(det))

@@ -1,0 +1,522 @@
+"""Stage 6: exact power, sample size, smallest detectable effect and assurance.
+
+Only numpy and ``scipy.special`` are imported at module level, so that a quick
+``pooler plan --effect 0.3`` starts fast. Everything is vectorised over numpy arrays:
+a whole planning grid (effects × powers × alphas) costs about one call per search step.
+
+Designs and the test each is planned for (λ is the noncentrality):
+
+============================  ====================================================  ==========
+design                        test                                                   effect
+============================  ====================================================  ==========
+``two-group``                 t, df = n1 + n2 - 2, λ = d √(n1 n2 / (n1 + n2))         d
+``paired``                    t, df = n - 1, λ = d_z √n, d_z = d / √(2 (1 - ρ))        d → d_z
+``one-sample``                t, df = n - 1, λ = d √n                                  d
+``correlation``               Fisher z: z_r √(n - 3) (or the exact distribution of r) r
+``ancova``                    t, df = n1 + n2 - 3, λ = d √(n1 n2/(n1 + n2)) / √(1 - ρ²)  d
+``interaction-2x2``           contrast t, df = 4m - 4, λ = d a √m / 2 (m per cell)    d, a
+``regression-increment``      F(u, N - p - 1), λ = f² N, f² = r² / (1 - r²)           r → f²
+============================  ====================================================  ==========
+
+References
+----------
+.. [C88] Cohen, J. (1988). *Statistical Power Analysis for the Behavioral Sciences*
+   (2nd ed.). Erlbaum. Ch. 2 (t), ch. 3 (r), ch. 9 (F for multiple regression, λ = f² N
+   in the convention used by most software).
+.. [C92] Cohen, J. (1992). A power primer. *Psychological Bulletin*, 112(1), 155-159.
+.. [BFL] Borm, G. F., Fransen, J., & Lemmens, W. A. J. G. (2007). A simple sample size
+   formula for analysis of covariance in randomized clinical trials. *Journal of Clinical
+   Epidemiology*, 60(12), 1234-1238.
+.. [MD] Morris, S. B., & DeShon, R. P. (2002). *Psychological Methods*, 7(1), 105-125.
+.. [OH] O'Hagan, A., Stevens, J. W., & Campbell, M. J. (2005). Assurance in clinical
+   trial design. *Pharmaceutical Statistics*, 4(3), 187-201.
+.. [HK] Hotelling, H. (1953). New light on the correlation coefficient and its
+   transforms. *JRSS B*, 15(2), 193-232 (density of r).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import special as sp
+
+from ._results import NotEstimable, to_jsonable
+from .errors import OptionError
+
+DESIGNS = ("two-group", "paired", "one-sample", "correlation", "ancova", "interaction-2x2",
+           "regression-increment")
+ALTERNATIVES = ("two-sided", "greater")
+N_MAX = 10_000_000  # per group (or total): beyond this we say "cannot be reached"
+
+
+@dataclass(frozen=True)
+class Design:
+    """The planned study.
+
+    Parameters
+    ----------
+    name : str
+        One of :data:`DESIGNS`.
+    ratio : float
+        Allocation n2 / n1 for ``two-group`` and ``ancova`` (default 1).
+    planned_r : float
+        Planned correlation between the repeated measures (``paired``), used to turn the
+        raw-score d into d_z (Morris & DeShon 2002, eq. 11).
+    covariate_r : float
+        Correlation between covariate (e.g. pre-test) and outcome (``ancova``): the error
+        variance shrinks by 1 - ρ² and one df is lost (Borm, Fransen & Lemmens 2007).
+    attenuation : float
+        ``interaction-2x2``: how much of the simple effect d disappears at the other level
+        of the moderator: 1 = it vanishes, 0.5 = it halves, 2 = full crossover.
+    predictors_added, predictors_total : int
+        ``regression-increment``: u predictors tested, p predictors in the full model.
+    exact_r : bool
+        ``correlation``: use the exact distribution of r instead of Fisher's z.
+    """
+
+    name: str = "two-group"
+    ratio: float = 1.0
+    planned_r: float = 0.5
+    covariate_r: float = 0.5
+    attenuation: float = 0.5
+    predictors_added: int = 1
+    predictors_total: int = 1
+    exact_r: bool = False
+
+    def __post_init__(self):
+        # validation
+        if self.name not in DESIGNS:
+            raise OptionError(f"`design` must be one of {', '.join(DESIGNS)}, not {self.name!r}")
+        if not (0 < self.ratio <= 100):
+            raise OptionError(f"`ratio` (n2/n1) must be in (0, 100], not {self.ratio!r}")
+        if not -1 < self.planned_r < 1:
+            raise OptionError(f"`planned_r` must lie strictly between -1 and 1, not {self.planned_r!r}")
+        if not -1 < self.covariate_r < 1:
+            raise OptionError(f"`covariate_r` must lie strictly between -1 and 1, not {self.covariate_r!r}")
+        if not 0 < self.attenuation <= 2:
+            raise OptionError(f"`attenuation` must be in (0, 2], not {self.attenuation!r}")
+        if not (1 <= self.predictors_added <= self.predictors_total):
+            raise OptionError("`predictors_added` must be at least 1 and at most "
+                              f"`predictors_total`, not {self.predictors_added!r} of "
+                              f"{self.predictors_total!r}")
+
+    @property
+    def grouped(self) -> bool:
+        """True when n is counted per group (or per cell), False when it is the total."""
+        return self.name in ("two-group", "ancova", "interaction-2x2")
+
+    @property
+    def n_min(self) -> int:
+        return {"two-group": 2, "paired": 2, "one-sample": 2, "ancova": 2,
+                "interaction-2x2": 2, "correlation": 4,
+                "regression-increment": self.predictors_total + 2}[self.name]
+
+    @property
+    def effect_label(self) -> str:
+        return {"two-group": "d", "paired": "d_z", "one-sample": "d", "correlation": "r",
+                "ancova": "d", "interaction-2x2": "d (simple effect)",
+                "regression-increment": "f²"}[self.name]
+
+    def n_total(self, n):
+        """Total participants for n per group (per cell for the 2x2)."""
+        n = np.asarray(n)
+        if self.name in ("two-group", "ancova"):
+            return n + np.ceil(self.ratio * n - 1e-9).astype(n.dtype)
+        if self.name == "interaction-2x2":
+            return 4 * n
+        return n
+
+    def describe(self) -> str:
+        extra = {"two-group": f"allocation n2/n1 = {self.ratio:g}",
+                 "paired": f"planned correlation between measures {self.planned_r:g}",
+                 "one-sample": "", "correlation": "exact distribution of r" if self.exact_r
+                 else "Fisher z test",
+                 "ancova": f"covariate-outcome correlation {self.covariate_r:g}, "
+                           f"allocation {self.ratio:g}",
+                 "interaction-2x2": f"attenuation {self.attenuation:g} "
+                                    "(1 = effect vanishes, 2 = full crossover)",
+                 "regression-increment": f"{self.predictors_added} of "
+                                         f"{self.predictors_total} predictors tested"}[self.name]
+        return self.name + (f" ({extra})" if extra else "")
+
+    def to_dict(self) -> dict:
+        return {"name": self.name, "ratio": self.ratio, "planned_r": self.planned_r,
+                "covariate_r": self.covariate_r, "attenuation": self.attenuation,
+                "predictors_added": self.predictors_added,
+                "predictors_total": self.predictors_total, "exact_r": self.exact_r}
+
+
+def _design(design) -> Design:
+    return design if isinstance(design, Design) else Design(str(design))
+
+
+def _alt(alternative: str) -> str:
+    if alternative not in ALTERNATIVES:
+        raise OptionError(f"`alternative` must be 'two-sided' or 'greater', not {alternative!r}")
+    return alternative
+
+
+# ------------------------------------------------------------------ effect scales
+
+def to_design_effect(effect, metric: str, design) -> np.ndarray:
+    """The planning effect on the literature's metric (d or r) in the design's own metric.
+
+    d ↔ r use a = 4 (equal groups; Borenstein et al. 2009 eqs. 7.5, 7.7); the paired
+    design divides by √(2 (1 - ρ)) (Morris & DeShon 2002, eq. 11); the regression
+    increment uses f² = r² / (1 - r²) (Cohen 1988, eq. 9.2.1 for one predictor's
+    squared partial correlation).
+    """
+    des = _design(design)
+    e = np.asarray(effect, dtype=float)
+    if metric not in ("d", "g", "r", "z"):
+        raise OptionError(f"`metric` must be 'd' or 'r', not {metric!r}")
+    if metric == "z":
+        e, metric = np.tanh(e), "r"
+    if des.name in ("correlation", "regression-increment"):
+        r = e if metric == "r" else e / np.sqrt(e * e + 4)
+        return r if des.name == "correlation" else np.sign(r) * r * r / (1 - r * r)
+    d = e if metric in ("d", "g") else 2 * e / np.sqrt(1 - e * e)
+    if des.name == "paired":
+        return d / math.sqrt(2 * (1 - des.planned_r))
+    return d
+
+
+def from_design_effect(x, metric: str, design) -> np.ndarray:
+    """Inverse of :func:`to_design_effect`."""
+    des = _design(design)
+    x = np.asarray(x, dtype=float)
+    if des.name in ("correlation", "regression-increment"):
+        r = x if des.name == "correlation" else np.sign(x) * np.sqrt(np.abs(x) / (1 + np.abs(x)))
+        return r if metric in ("r", "z") else 2 * r / np.sqrt(1 - r * r)
+    d = x * math.sqrt(2 * (1 - des.planned_r)) if des.name == "paired" else x
+    return d if metric in ("d", "g") else d / np.sqrt(d * d + 4)
+
+
+# ------------------------------------------------------------------ power
+
+def _nct_cdf(df, ncp, x):
+    """``scipy.special.nctdtr`` with its NaNs replaced by the normal limit.
+
+    scipy 1.17.1 returns NaN for some far-tail values (tiny probabilities, or df in the
+    millions). There the noncentral t is Normal(λ, 1) to many digits (df → ∞ limit), and
+    the probabilities involved are far below what a power table shows.
+    """
+    v = sp.nctdtr(df, ncp, x)
+    return np.where(np.isnan(v), sp.ndtr(x - np.asarray(ncp)), v)
+
+
+def _t_power(ncp, df, alpha, alternative, upper_only=False):
+    """Power of a t-test from the noncentral t (CDF: ``scipy.special.nctdtr``)."""
+    if alternative == "two-sided":
+        c = sp.stdtrit(df, 1 - alpha / 2)
+        upper = 1 - _nct_cdf(df, ncp, c)
+        return upper if upper_only else upper + _nct_cdf(df, ncp, -c)
+    c = sp.stdtrit(df, 1 - alpha)
+    return 1 - _nct_cdf(df, ncp, c)
+
+
+def _f_power(lam, df1, df2, alpha):
+    """Power of an F test from the noncentral F (``scipy.special.ncfdtr``; central F
+    when λ = 0, see the scipy pitfall noted in DEVELOPERS.md)."""
+    c = sp.fdtri(df1, df2, 1 - alpha)
+    lam = np.asarray(lam, dtype=float)
+    central = 1 - sp.fdtr(df1, df2, c)
+    lam_pos = np.where(lam > 0, lam, 1.0)
+    cdf = sp.ncfdtr(df1, df2, lam_pos, c)
+    # NaN for very large λ (seen with scipy 1.17.1): use the df2 → ∞ limit, the noncentral
+    # chi-square of df1 · F, and failing that the limit the probability stands for
+    cdf = np.where(np.isnan(cdf), sp.chndtr(df1 * c, df1, lam_pos), cdf)
+    cdf = np.where(np.isnan(cdf), np.where(lam_pos > df1 * c, 0.0, 1.0), cdf)
+    return np.where(lam > 0, 1 - cdf, central)
+
+
+def _r_exact_power(rho, n, alpha, alternative, upper_only=False):
+    """Power from the exact density of r (Hotelling 1953, eq. for f(r; ρ, n))."""
+    from scipy.integrate import quad
+    rho, n = np.broadcast_arrays(np.asarray(rho, float), np.asarray(n, float))
+    out = np.empty(rho.shape)
+    for idx in np.ndindex(rho.shape):
+        p, m = float(rho[idx]), float(n[idx])
+        df = m - 2
+        tc = sp.stdtrit(df, 1 - (alpha / 2 if alternative == "two-sided" else alpha))
+        rc = tc / math.sqrt(tc * tc + df)
+        logc = (math.log(m - 2) + sp.gammaln(m - 1) - sp.gammaln(m - 0.5)
+                - 0.5 * math.log(2 * math.pi) + (m - 1) / 2 * math.log1p(-p * p))
+
+        def dens(r):
+            return math.exp(logc + (m - 4) / 2 * math.log1p(-r * r)
+                            - (m - 1.5) * math.log1p(-p * r)) * \
+                sp.hyp2f1(0.5, 0.5, m - 0.5, (1 + p * r) / 2)
+        up = quad(dens, rc, 1, points=[p] if rc < p < 1 else None, limit=200)[0]
+        lo = 0.0
+        if alternative == "two-sided" and not upper_only:
+            lo = quad(dens, -1, -rc, points=[p] if -1 < p < -rc else None, limit=200)[0]
+        out[idx] = up + lo
+    return out
+
+
+def power_at(effect, n, design="two-group", alpha=0.05, alternative="two-sided", *,
+             upper_only=False) -> np.ndarray:
+    """Exact power of the planned test.
+
+    Parameters
+    ----------
+    effect : array_like
+        The effect in the design's own metric (see :func:`to_design_effect`): d, d_z, r or f².
+    n : array_like
+        n per group (per cell for ``interaction-2x2``) or, for designs without groups, the
+        total N.
+    design : str or Design
+    alpha : array_like
+    alternative : {"two-sided", "greater"}
+        ``"greater"`` is the one-tailed test in the hypothesised direction.
+    upper_only : bool
+        Count only rejections in the hypothesised direction (used by assurance).
+
+    Returns
+    -------
+    ndarray of power values in [0, 1].
+
+    Examples
+    --------
+    >>> round(float(power_at(0.5, 64)), 3)   # Cohen (1992): d = .5 needs 64 per group
+    0.801
+    """
+    des = _design(design)
+    alternative = _alt(alternative)
+    e = np.asarray(effect, dtype=float)
+    n = np.asarray(n, dtype=float)
+    alpha = np.asarray(alpha, dtype=float)
+    name = des.name
+    if name in ("two-group", "ancova"):
+        n2 = des.ratio * n
+        scale = np.sqrt(n * n2 / (n + n2))
+        if name == "ancova":
+            return _t_power(e * scale / math.sqrt(1 - des.covariate_r ** 2), n + n2 - 3, alpha,
+                            alternative, upper_only)
+        return _t_power(e * scale, n + n2 - 2, alpha, alternative, upper_only)
+    if name in ("paired", "one-sample"):
+        return _t_power(e * np.sqrt(n), n - 1, alpha, alternative, upper_only)
+    if name == "interaction-2x2":
+        return _t_power(e * des.attenuation * np.sqrt(n) / 2, 4 * n - 4, alpha, alternative,
+                        upper_only)
+    if name == "correlation":
+        if des.exact_r:
+            return _r_exact_power(e, n, alpha, alternative, upper_only)
+        z = np.arctanh(e) * np.sqrt(n - 3)
+        if alternative == "two-sided":
+            c = sp.ndtri(1 - alpha / 2)
+            return sp.ndtr(z - c) + (0 if upper_only else sp.ndtr(-z - c))
+        return sp.ndtr(z - sp.ndtri(1 - alpha))
+    # regression increment
+    u, p = des.predictors_added, des.predictors_total
+    df2 = n - p - 1
+    lam = np.abs(e) * n
+    if alternative == "greater" or upper_only:
+        if u != 1:
+            raise OptionError("a one-tailed test is defined only when one predictor is added")
+        return _t_power(np.sign(e) * np.sqrt(lam), df2, alpha, alternative, upper_only)
+    return _f_power(lam, u, df2, alpha)
+
+
+# ------------------------------------------------------------------ sample size
+
+@dataclass(frozen=True)
+class SampleSize:
+    """Smallest n reaching a target power, cell by cell (arrays of one shape).
+
+    ``n`` is 0 where the target cannot be reached; ``reason`` then says why.
+    """
+
+    n: np.ndarray
+    n_total: np.ndarray
+    power: np.ndarray
+    reachable: np.ndarray
+    reason: np.ndarray
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"n": self.n.tolist(), "n_total": self.n_total.tolist(),
+                            "power": self.power.tolist(), "reachable": self.reachable.tolist(),
+                            "reason": self.reason.tolist()})
+
+
+def _int_search(fn, target, n_min, valid, n_max=N_MAX):
+    """Smallest integer n ≥ n_min with fn(n) ≥ target, for every cell at once.
+
+    fn must be non-decreasing in n. Brackets by doubling, then bisects; every cell
+    moves together, so a grid costs ~2 log2(n) vectorised calls.
+    """
+    shape = np.shape(target)
+    lo = np.full(shape, n_min - 1, dtype=np.int64)        # fn(lo) < target (by convention)
+    hi = np.full(shape, n_min, dtype=np.int64)
+    active = valid.copy()
+    done = np.zeros(shape, bool)
+    while active.any():
+        p = np.where(active, fn(hi), 1.0)
+        ok = p >= target
+        done |= active & ok
+        grow = active & ~ok
+        lo = np.where(grow, hi, lo)
+        hi = np.where(grow, np.minimum(hi * 2, n_max + 1), hi)
+        active = grow & (lo < n_max)
+    reach = valid & done
+    while True:
+        gap = reach & (hi - lo > 1)
+        if not gap.any():
+            break
+        mid = (lo + hi) // 2
+        p = np.where(gap, fn(np.where(gap, mid, hi)), 0.0)
+        ok = p >= target
+        hi = np.where(gap & ok, mid, hi)
+        lo = np.where(gap & ~ok, mid, lo)
+    return np.where(reach, hi, 0), reach
+
+
+def n_for_power(effect, target=0.8, design="two-group", alpha=0.05,
+                alternative="two-sided") -> SampleSize:
+    """Smallest integer n with power ≥ ``target`` (vectorised over broadcast inputs).
+
+    ``effect`` is in the design's own metric. n is per group (per cell) or total, as in
+    :func:`power_at`; n2 = ratio × n1 is used in the search (as most software does) and
+    reported rounded up, which can only add power.
+
+    Examples
+    --------
+    >>> int(n_for_power(0.5, 0.8).n)    # Cohen (1992) Table 2: 64 per group
+    64
+    """
+    des = _design(design)
+    alternative = _alt(alternative)
+    e, target, alpha = np.broadcast_arrays(*(np.asarray(x, float) for x in (effect, target, alpha)))
+    if np.any((target <= 0) | (target >= 1)):
+        raise OptionError("target power must lie strictly between 0 and 1")
+    if np.any((alpha <= 0) | (alpha >= 0.5)):
+        raise OptionError("`alpha` must lie in (0, 0.5)")
+    if des.name == "correlation" and np.any(np.abs(e) >= 1):
+        raise OptionError("a correlation effect must lie strictly between -1 and 1")
+    finite = np.isfinite(e)
+    positive = finite & (e > 0)
+    valid = positive & (target > alpha)
+
+    def fn(n):
+        return power_at(e, n, des, alpha, alternative)
+    n, reach = _int_search(fn, target, des.n_min, valid)
+    power = np.where(reach, power_at(e, np.maximum(n, des.n_min), des, alpha, alternative), np.nan)
+    reason = np.full(e.shape, "", dtype=object)
+    reason[~positive] = "the effect is zero or goes against the hypothesis: no n reaches the power"
+    reason[positive & ~reach] = f"needs more than {N_MAX:,} participants"
+    return SampleSize(n=n, n_total=np.where(reach, des.n_total(n), 0), power=power,
+                      reachable=reach, reason=reason)
+
+
+def detectable_effect(n, target=0.8, design="two-group", alpha=0.05,
+                      alternative="two-sided") -> np.ndarray:
+    """Smallest effect (design metric) detectable with power ``target`` at n (sensitivity).
+
+    Solved with ``scipy.optimize.brentq`` on the exact power function.
+    """
+    from scipy.optimize import brentq
+    des = _design(design)
+    n, target, alpha = np.broadcast_arrays(*(np.asarray(x, float) for x in (n, target, alpha)))
+    cap = 0.999999 if des.name == "correlation" else 100.0
+    out = np.full(n.shape, np.nan)
+    for idx in np.ndindex(n.shape):
+        if n[idx] < des.n_min:
+            continue
+        def f(x):
+            return float(power_at(x, n[idx], des, alpha[idx], alternative)) - target[idx]
+        hi = min(0.05, cap)
+        while f(hi) < 0 and hi < cap:
+            hi = min(hi * 2, cap)
+        if f(hi) >= 0:
+            out[idx] = brentq(f, 1e-12, hi, xtol=1e-12)
+    return out
+
+
+# ------------------------------------------------------------------ assurance
+
+_GH = None
+
+
+def _hermite(k=64):
+    global _GH
+    if _GH is None:
+        x, w = np.polynomial.hermite.hermgauss(k)
+        _GH = (x, w / math.sqrt(math.pi))
+    return _GH
+
+
+def assurance(mean, sd, n, design="two-group", alpha=0.05, alternative="two-sided",
+              metric="d") -> np.ndarray:
+    """Expected power over the predictive distribution of the true effect (O'Hagan,
+    Stevens & Campbell 2005): E[power(δ)] with δ ~ Normal(mean, sd²) on the literature's
+    metric (d, or Fisher z for correlations), counting only significant results in the
+    hypothesised direction. 64-point Gauss–Hermite quadrature.
+    """
+    des = _design(design)
+    x, w = _hermite()
+    n = np.asarray(n, float)
+    nodes = mean + math.sqrt(2) * sd * x
+    if metric in ("r", "z"):
+        nodes = np.tanh(nodes)
+        metric = "r"
+    eff = to_design_effect(nodes, metric, des)
+    p = power_at(eff[:, None], n.reshape(1, -1), des, alpha, alternative, upper_only=True)
+    return (w[:, None] * p).sum(axis=0).reshape(n.shape)
+
+
+def assurance_ceiling(mean: float, sd: float) -> float:
+    """P(δ > 0): the assurance that no sample size can exceed."""
+    return float(sp.ndtr(mean / sd)) if sd > 0 else float(mean > 0)
+
+
+@dataclass(frozen=True)
+class AssuranceResult:
+    """n for each target assurance, with the predictive distribution it integrates over."""
+
+    mean: float
+    sd: float
+    metric: str
+    ceiling: float
+    targets: tuple[float, ...]
+    n: tuple  # int or NotEstimable per target
+    n_total: tuple
+    achieved: tuple
+
+    def to_dict(self) -> dict:
+        return to_jsonable({
+            "predictive_mean": self.mean, "predictive_sd": self.sd, "metric": self.metric,
+            "ceiling": self.ceiling,
+            "rows": [{"target": t, "n_per_group": n if not isinstance(n, NotEstimable) else n,
+                      "n_total": nt, "assurance": a}
+                     for t, n, nt, a in zip(self.targets, self.n, self.n_total, self.achieved)]})
+
+
+def n_for_assurance(mean, sd, targets=(0.8,), design="two-group", alpha=0.05,
+                    alternative="two-sided", metric="d") -> AssuranceResult:
+    """Smallest n whose assurance reaches each target, or why it cannot."""
+    des = _design(design)
+    ceiling = assurance_ceiling(mean, sd)
+    ns, nts, ach = [], [], []
+    for t in targets:
+        if t >= ceiling - 1e-9:
+            reason = NotEstimable(f"cannot be reached: even an unlimited sample gives at most "
+                                  f"{ceiling:.3f}, the chance that the true effect is positive")
+            ns.append(reason), nts.append(reason), ach.append(reason)
+            continue
+        def fn(n):
+            return assurance(mean, sd, np.asarray(n).reshape(-1), des, alpha, alternative,
+                             metric).reshape(np.shape(n))
+        n, reach = _int_search(fn, np.asarray(t), des.n_min, np.asarray(True))
+        if not reach:
+            reason = NotEstimable(f"needs more than {N_MAX:,} participants")
+            ns.append(reason), nts.append(reason), ach.append(reason)
+            continue
+        ni = int(n)
+        ns.append(ni)
+        nts.append(int(des.n_total(ni)))
+        ach.append(float(fn(np.asarray([ni]))[0]))
+    return AssuranceResult(mean=float(mean), sd=float(sd), metric=metric, ceiling=ceiling,
+                           targets=tuple(targets), n=tuple(ns), n_total=tuple(nts),
+                           achieved=tuple(ach))
