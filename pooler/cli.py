@@ -112,6 +112,61 @@ def convert(sheet, metric, within_r, sample_r, as_json):
         click.echo(effects_text(eff, s))
 
 
+def _pooling_options(f):
+    f = click.option("--interval", type=click.Choice(["hksj", "wald"]), default="hksj",
+                     show_default=True,
+                     help="Interval for the mean: Hartung-Knapp-Sidik-Jonkman (t, k-1 df) "
+                          "or Wald (normal).")(f)
+    f = click.option("--estimator", type=click.Choice(["reml", "ml", "pm", "dl"]),
+                     default="reml", show_default=True,
+                     help="Between-study variance estimator: REML, ML, Paule-Mandel, "
+                          "DerSimonian-Laird.")(f)
+    return f
+
+
+@main.command("pool")
+@_sheet_argument
+@_conversion_options
+@_pooling_options
+@_json_option
+def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, as_json):
+    """Pool the studies in SHEET with a random-effects model.
+
+    Prints the random- and common-effect estimates, heterogeneity (tau^2 with its Q-profile
+    CI, I^2, H^2, Q), the prediction interval for a new study, study weights, a
+    leave-one-out table, and, where the sheet has the columns, cumulative estimates by
+    'year' and subgroup estimates with the Q-between test.
+
+    \b
+    Example:
+      pooler pool demo_literature/break_and_proofreading.csv
+      pooler pool my_literature.csv --estimator pm --interval wald --json
+    """
+    from .pooling import pool
+    from .report import pooled_text
+    _, eff = _load(sheet, metric, within_r, sample_r)
+    _echo_warnings(eff.warnings)
+    res = pool(eff, estimator, interval)
+    if as_json:
+        _print_json(pool_document(eff, res))
+    else:
+        click.echo(pooled_text(res, eff))
+
+
+def pool_document(eff, res) -> dict:
+    """The ``pooler.pool/1`` document: the pooling result plus the converted rows with weights."""
+    doc = {"schema": "pooler.pool/1", **res.to_dict()}
+    weight = {}
+    for u, w in zip(eff.units, res.weights):
+        for r in u.rows:
+            weight[r] = w
+    rows = eff.to_dict()["rows"]
+    for r in rows:
+        r["weight"] = weight.get(r["row"])
+    doc["rows"] = rows
+    return doc
+
+
 def _planning_options(f):
     opts = [
         click.option("--design", type=click.Choice(list(_DESIGNS)), default="two-group",

@@ -164,3 +164,87 @@ def plan_markdown(plan) -> str:
 def _csv_safe(text: str) -> str:
     """Neutralise spreadsheet formula injection in a text cell."""
     return "'" + text if text[:1] in ("=", "+", "-", "@") else text
+
+
+# ------------------------------------------------------------------ pooling
+
+def _p(p: float) -> str:
+    return "p < .001" if p < 0.001 else f"p = {p:.3f}".replace("0.", ".")
+
+
+def _ci(lo, hi, digits=3) -> str:
+    return f"[{lo:.{digits}f}, {hi:.{digits}f}]"
+
+
+def pooled_text(res, eff) -> str:
+    """The pooling summary that ``pooler pool`` prints."""
+    from ._results import estimable
+    from .pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
+    sym = "g" if res.metric == "g" else "z"
+    lvl = f"{100 * res.level:g}%"
+    out = [f"{eff.file}: k = {res.k} independent samples ({eff.n_used} rows used, "
+           f"{eff.n_excluded} excluded); metric {eff.metric_label}"]
+    if res.metric == "z":
+        out.append("  estimates on the Fisher z scale; r = tanh(z) in brackets")
+    def rr(est):
+        if res.metric != "z":
+            return ""
+        return (f" (r = {math.tanh(est.estimate):.3f} "
+                f"{_ci(math.tanh(est.ci.low), math.tanh(est.ci.high))})")
+    if estimable(res.pooled):
+        p = res.pooled
+        out.append(f"Random effects ({ESTIMATOR_NAMES[res.estimator]} tau^2, "
+                   f"{INTERVAL_NAMES[res.interval]} {lvl} CI):")
+        out.append(f"  {sym} = {p.estimate:.3f} {_ci(p.ci.low, p.ci.high)}{rr(p)}, "
+                   f"SE {p.se:.3f}, {_p(p.p)}")
+    else:
+        out.append(f"Random effects: {res.pooled}")
+    f = res.fixed
+    out.append(f"Common effect (inverse variance, {lvl} CI):")
+    out.append(f"  {sym} = {f.estimate:.3f} {_ci(f.ci.low, f.ci.high)}{rr(f)}, "
+               f"SE {f.se:.3f}, {_p(f.p)}")
+    h = res.heterogeneity
+    if estimable(h):
+        out.append("Heterogeneity:")
+        out.append(f"  tau^2 = {h.tau2:.4f} {_ci(h.tau2_ci.low, h.tau2_ci.high, 4)} (Q-profile), "
+                   f"tau = {h.tau:.3f}")
+        out.append(f"  I^2 = {100 * h.i2:.1f}% [{100 * h.i2_ci.low:.1f}%, {100 * h.i2_ci.high:.1f}%], "
+                   f"H^2 = {h.h2:.2f}, Q({h.q_df}) = {h.q:.2f}, {_p(h.q_p)}")
+    else:
+        out.append(f"Heterogeneity: {h}")
+    pi = res.prediction
+    out.append(f"Prediction interval ({lvl}) for the true effect in a new study: "
+               + (f"{_ci(pi.low, pi.high)}" + (f" (r {_ci(math.tanh(pi.low), math.tanh(pi.high))})"
+                                               if res.metric == "z" else "")
+                  if estimable(pi) else str(pi)))
+    out += [f"  note: {n}" for n in res.notes]
+    rows = []
+    for lab, y, v, w in zip(res.labels, res.effects, res.variances, res.weights):
+        se = math.sqrt(v)
+        rows.append([lab, y, _ci(y - 1.96 * se, y + 1.96 * se), 100 * w])
+    out += ["", "Studies:", text_table(["sample", sym, "95% CI", "weight %"], rows)]
+    for title, tab in (("Leave one out:", res.leave_one_out),
+                       ("Cumulative, by year:", res.cumulative)):
+        out.append("")
+        if isinstance(tab, tuple):
+            out.append(title)
+            out.append(_influence_table(tab, sym))
+        else:
+            out.append(f"{title[:-1]}: {tab}")
+    if res.subgroups is not None:
+        out.append("")
+        s = res.subgroups
+        if estimable(s):
+            out.append("Subgroups (separate tau^2):")
+            out.append(_influence_table(s.rows, sym, first="subgroup"))
+            out.append(f"  Q between = {s.q_between:.2f}, df = {s.df}, {_p(s.p)}")
+        else:
+            out.append(f"Subgroups: {s}")
+    return "\n".join(out)
+
+
+def _influence_table(rows, sym, first="analysis") -> str:
+    from ._results import NotEstimable
+    return text_table([first, "k", sym, "95% CI", "tau^2", "I^2 %"],
+                      [[r.label, r.k, r.estimate, _ci(r.ci_low, r.ci_high), r.tau2,
+                        None if isinstance(r.i2, NotEstimable) else 100 * r.i2] for r in rows])
