@@ -124,47 +124,71 @@ def _pooling_options(f):
     return f
 
 
+def _scenario_options(f):
+    f = click.option("--sesoi", type=float, default=None,
+                     help="Smallest effect size of interest (d, or r): the pessimistic scenario "
+                          "never goes below it.")(f)
+    f = click.option("--safeguard", "safeguard_level", type=float, default=0.6,
+                     show_default=True,
+                     help="Two-sided level of the safeguard interval for the pessimistic "
+                          "scenario (Perugini et al. 2014).")(f)
+    f = click.option("--adjuster", type=click.Choice(["default", "median", "3psm", "pet-peese",
+                                                      "trim-and-fill", "waap-wls"]),
+                     default="default", show_default=True,
+                     help="How the realistic scenario is chosen: the default rule, the "
+                          "safeguard limit of the median of the adjusters, or one adjuster.")(f)
+    return f
+
+
+def _analysis_options(f):
+    for deco in reversed((_conversion_options, _pooling_options, _scenario_options)):
+        f = deco(f)
+    return f
+
+
+def _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster, safeguard_level,
+             sesoi):
+    from .pipeline import analyse
+    a = analyse(sheet, metric=metric, within_r=within_r, sample_r=sample_r, estimator=estimator,
+                interval=interval, adjuster=adjuster, safeguard_level=safeguard_level,
+                sesoi=sesoi)
+    _echo_warnings(a.effects.warnings)
+    return a
+
+
 @main.command("pool")
 @_sheet_argument
-@_conversion_options
-@_pooling_options
+@_analysis_options
 @_json_option
-def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, as_json):
-    """Pool the studies in SHEET with a random-effects model.
+def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, safeguard_level,
+             sesoi, as_json):
+    """Pool the studies in SHEET, test for bias, and derive the planning scenarios.
 
     Prints the random- and common-effect estimates, heterogeneity (tau^2 with its Q-profile
     CI, I^2, H^2, Q), the prediction interval for a new study, study weights, a
-    leave-one-out table, and, where the sheet has the columns, cumulative estimates by
-    'year' and subgroup estimates with the Q-between test.
+    leave-one-out table, cumulative estimates by 'year' and subgroup estimates with the
+    Q-between test where the sheet has those columns; then the bias-sensitivity suite
+    (Egger, PET-PEESE, trim-and-fill, selection model, WAAP-WLS, selection ratio, excess
+    significance), the optimistic / realistic / pessimistic planning effects with their
+    bases, and each prior study's power at the realistic effect.
 
     \b
     Example:
       pooler pool demo_literature/break_and_proofreading.csv
       pooler pool my_literature.csv --estimator pm --interval wald --json
+      pooler pool my_literature.csv --sesoi 0.2 --adjuster median
     """
-    from .pooling import pool
-    from .report import pooled_text
-    _, eff = _load(sheet, metric, within_r, sample_r)
-    _echo_warnings(eff.warnings)
-    res = pool(eff, estimator, interval)
+    from .report import bias_text, pooled_text, scenarios_text
+    a = _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster,
+                 safeguard_level, sesoi)
     if as_json:
-        _print_json(pool_document(eff, res))
+        _print_json(a.pool_document())
     else:
-        click.echo(pooled_text(res, eff))
-
-
-def pool_document(eff, res) -> dict:
-    """The ``pooler.pool/1`` document: the pooling result plus the converted rows with weights."""
-    doc = {"schema": "pooler.pool/1", **res.to_dict()}
-    weight = {}
-    for u, w in zip(eff.units, res.weights):
-        for r in u.rows:
-            weight[r] = w
-    rows = eff.to_dict()["rows"]
-    for r in rows:
-        r["weight"] = weight.get(r["row"])
-    doc["rows"] = rows
-    return doc
+        click.echo(pooled_text(a.pooled, a.effects))
+        click.echo("")
+        click.echo(bias_text(a.bias, a.scenarios))
+        click.echo("")
+        click.echo(scenarios_text(a.scenarios))
 
 
 def _planning_options(f):
@@ -219,50 +243,75 @@ def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_
 
 
 @main.command()
-@click.option("--effect", "effects", type=float, multiple=True, required=True,
-              help="Planning effect (d, or r with --metric r); repeat for several.")
+@click.argument("sheet", type=click.Path(dir_okay=False), required=False)
+@click.option("--effect", "effects", type=float, multiple=True,
+              help="Planning effect (d, or r with --metric r); repeat for several. "
+                   "Use instead of SHEET.")
 @click.option("--effect-sd", type=float, default=None,
-              help="SD of the predictive distribution of the true effect (sqrt(SE^2 + tau^2)); "
-                   "adds the n for a target assurance, centred on the first --effect.")
-@click.option("--metric", type=click.Choice(["d", "r"]), default=None,
-              help="Metric of --effect [default: r for correlation and regression-increment "
-                   "designs, else d].")
+              help="With --effect: SD of the predictive distribution of the true effect "
+                   "(sqrt(SE^2 + tau^2)); adds the n for a target assurance, centred on the "
+                   "first --effect.")
+@_analysis_options
 @_planning_options
 @_json_option
-def plan(effects, effect_sd, metric, design, alpha, tails, powers, attrition, n_total, ratio,
+def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, interval, adjuster,
+         safeguard_level, sesoi, design, alpha, tails, powers, attrition, n_total, ratio,
          planned_r, covariate_r, attenuation, predictors_added, predictors_total, exact_r,
          as_json):
-    """Sample size for a planned study from a given planning effect.
+    """Sample size for a planned study, from a SHEET of prior results or a given effect.
 
-    Prints the smallest n reaching each target power (exact noncentral distributions),
-    and, with --effect-sd, the n for a target assurance; with --n, the power a fixed
-    total N gives and the smallest effect it can detect.
+    From SHEET: the optimistic, realistic and pessimistic planning effects (as in
+    `pooler pool`) and the n for a target assurance over the predictive distribution of
+    the true effect. From --effect: that effect alone. Prints the smallest n reaching each
+    target power (exact noncentral distributions); with --n, the power a fixed total N
+    gives and the smallest effect it can detect.
 
     \b
     Example:
       pooler plan --effect 0.3 --design two-group
       pooler plan --effect 0.35 --effect 0.2 --design paired --planned-r 0.6 --attrition 0.1
       pooler plan --effect 0.25 --design correlation --n 250
+      pooler plan demo_literature/break_and_proofreading.csv --design paired --n 120
     """
+    import math
+    from .errors import OptionError
     from .planning import PlanningEffect, make_plan
     from .report import plan_text
     des = _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
                        predictors_total, exact_r)
-    if metric is None:
-        metric = "r" if design in ("correlation", "regression-increment") else "d"
-    names = ["given"] if len(effects) == 1 else [f"given {i + 1}" for i in range(len(effects))]
-    scen = [PlanningEffect(nm, e) for nm, e in zip(names, effects)]
-    predictive = None
-    if effect_sd is not None:
-        import math
-        mean = math.atanh(effects[0]) if metric == "r" else effects[0]
-        predictive = (mean, effect_sd)
-    p = make_plan(scen, des, metric=metric, alpha=alpha, tails=tails,
+    analysis = None
+    if sheet and effects:
+        raise OptionError("give either SHEET or --effect, not both")
+    if sheet:
+        if metric == "d" and design in ("correlation", "regression-increment"):
+            metric = "r"
+        analysis = _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster,
+                            safeguard_level, sesoi)
+        sc = analysis.scenarios
+        scen = sc.planning_effects()
+        predictive = sc.predictive if isinstance(sc.predictive, tuple) else None
+        pmetric = sc.planning_metric
+        label = "g" if pmetric == "d" else "r"
+    elif effects:
+        pmetric = "r" if design in ("correlation", "regression-increment") else metric
+        names = ["given"] if len(effects) == 1 else [f"given {i + 1}" for i in range(len(effects))]
+        scen = [PlanningEffect(nm, e) for nm, e in zip(names, effects)]
+        predictive = None
+        if effect_sd is not None:
+            predictive = (math.atanh(effects[0]) if pmetric == "r" else effects[0], effect_sd)
+        label = pmetric
+    else:
+        raise OptionError("give a SHEET of prior results or a planning --effect")
+    p = make_plan(scen, des, metric=pmetric, alpha=alpha, tails=tails,
                   powers=powers or (0.8, 0.9, 0.95), attrition=attrition, predictive=predictive,
-                  n_total=n_total, effect_label=metric)
+                  n_total=n_total, effect_label=label)
     if as_json:
         _print_json(p.to_dict())
     else:
+        if analysis is not None:
+            from .report import scenarios_text
+            click.echo(scenarios_text(analysis.scenarios).split("\n\nLiterature audit")[0])
+            click.echo("")
         click.echo(plan_text(p))
 
 

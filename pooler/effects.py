@@ -739,7 +739,7 @@ def _units(ctx: _Ctx, pending, sample_r: float):
     for items in order:
         rec0, raw0 = items[0][0], items[0][1]
         if len(items) == 1:
-            units.append(_unit(rec0.get("sample") or rec0.study, items[0], raw0))
+            units.append(_unit(rec0.study, items[0], raw0))
             continue
         ns = {it[1].n_total for it in items}
         if len(ns) > 1:
@@ -761,7 +761,9 @@ def _units(ctx: _Ctx, pending, sample_r: float):
                                    f"{', '.join(str(r) for r in rows if r != it[0].row)} "
                                    f"into sample '{label}'")
         designs = {it[1].design for it in items}
-        u = _unit(label, (rec0, raw0, y, v), raw0)
+        studies = list(dict.fromkeys(it[0].study for it in items))
+        name = (studies[0] if len(studies) == 1 else " / ".join(studies)) + f" [{m} outcomes]"
+        u = _unit(name, (rec0, raw0, y, v), raw0)
         units.append(replace(u, rows=rows,
                              design=designs.pop() if len(designs) == 1 else "mixed"))
     return units, combined

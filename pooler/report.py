@@ -102,9 +102,6 @@ def plan_text(plan) -> str:
     reasons = {str(r.n_total) for r in plan.rows if isinstance(r.n_total, NotEstimable)}
     for why in sorted(reasons):
         out.append(f"  cannot be reached: {why.removeprefix('not estimable: ')}")
-    for s in plan.scenarios:
-        if s.basis:
-            out.append(f"  {s.scenario}: {s.basis}")
     a = plan.assurance
     if a is not None:
         out += ["", "Assurance (expected power over the predictive distribution of the true effect):"]
@@ -114,14 +111,17 @@ def plan_text(plan) -> str:
             scale = "Fisher z" if a.metric in ("r", "z") else "d"
             out.append(f"  true effect ~ Normal({a.mean:.3f}, {a.sd:.3f}^2) on the {scale} scale; "
                        f"ceiling P(effect > 0) = {a.ceiling:.3f}")
-            arows = []
+            arows, why = [], []
             for t, n, nt, got in zip(a.targets, a.n, a.n_total, a.achieved):
                 if isinstance(n, NotEstimable):
-                    arows.append([_pct(t), str(n).removeprefix("not estimable: "), None, None])
+                    arows.append([_pct(t), "cannot be reached", None, None])
+                    why.append(n.reason)
                 else:
                     arows.append([_pct(t), n, nt, got])
             first = "n/group" if des.grouped else "N"
             out.append(text_table(["target assurance", first, "total", "assurance"], arows))
+            for w in dict.fromkeys(why):
+                out.append(f"  {w}")
     f = plan.fixed_n
     if f is not None:
         unit = "per group" if des.grouped else "in all"
@@ -248,3 +248,63 @@ def _influence_table(rows, sym, first="analysis") -> str:
     return text_table([first, "k", sym, "95% CI", "tau^2", "I^2 %"],
                       [[r.label, r.k, r.estimate, _ci(r.ci_low, r.ci_high), r.tau2,
                         None if isinstance(r.i2, NotEstimable) else 100 * r.i2] for r in rows])
+
+
+# ------------------------------------------------------------------ bias and scenarios
+
+def bias_text(bias, scen) -> str:
+    """The bias table, the selection-ratio sensitivity and the excess-significance test."""
+    from ._results import NotEstimable, estimable
+    sym = "g" if bias.metric == "g" else "z"
+    rows = []
+    for method, est, ci, note in bias.table():
+        if est is None:
+            rows.append([method, "", "", note])
+        elif isinstance(est, NotEstimable):
+            rows.append([method, "not estimable", "", est.reason])
+        else:
+            rows.append([method, est, _ci(ci.low, ci.high) if ci is not None and estimable(ci)
+                         else "", note])
+    out = ["Bias-sensitivity suite:", text_table(["method", sym, "95% CI", "note"], rows)]
+    sr = bias.selection_ratio
+    if estimable(sr):
+        parts = ", ".join(f"eta = {e:g}: {m:.3f}" for e, m in zip(sr.eta, sr.estimates))
+        out.append(f"Selection ratio (affirmative results eta times more likely published): {parts}")
+        out.append(f"  worst case (non-affirmative studies only): {_or_reason(sr.worst_case)}; "
+                   f"S-value: {_or_reason(sr.s_value)}")
+    else:
+        out.append(f"Selection ratio: {sr}")
+    tes = scen.excess_significance
+    if estimable(tes):
+        out.append(f"Excess significance at the realistic effect: {tes.observed} of {tes.k} "
+                   f"significant, {tes.expected:.1f} expected; chi2(1) = {tes.chi2:.2f}, "
+                   f"{_p(tes.p)}")
+    else:
+        out.append(f"Excess significance: {tes}")
+    return "\n".join(out)
+
+
+def _or_reason(x) -> str:
+    from ._results import NotEstimable
+    return str(x) if isinstance(x, NotEstimable) else f"{x:.3f}"
+
+
+def scenarios_text(scen) -> str:
+    from ._results import estimable
+    sym = "g" if scen.metric == "g" else "z"
+    rows = []
+    for s in (scen.optimistic, scen.realistic, scen.pessimistic):
+        line = [s.name, s.effect]
+        if scen.metric == "z":
+            line.append(math.tanh(s.effect))
+        rows.append(line + [s.basis])
+    heads = ["scenario", sym] + (["r"] if scen.metric == "z" else []) + ["basis"]
+    out = ["Planning scenarios:", text_table(heads, rows), scen.verdict]
+    a = scen.audit
+    if estimable(a):
+        out += ["", f"Literature audit: each study's power to detect the realistic {sym} = "
+                    f"{a.effect:.3f} (two-sided alpha = .05): median {a.median:.2f}, "
+                    f"{100 * a.share_80:.0f}% of studies at 80% or more"]
+        out.append(text_table(["study", "power", "how"],
+                              [[r.label, r.power, r.how] for r in a.rows], digits=2))
+    return "\n".join(out)

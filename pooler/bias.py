@@ -1,0 +1,573 @@
+"""Stage 4: the bias-sensitivity suite.
+
+Every method asks the same question from a different angle: how large would the mean
+effect be if small, non-significant studies had not gone missing? Each returns a frozen
+result or :class:`NotEstimable` with the reason, never a bare NaN.
+
+References
+----------
+.. [E97] Egger, M., Davey Smith, G., Schneider, M., & Minder, C. (1997). Bias in
+   meta-analysis detected by a simple, graphical test. *BMJ*, 315, 629-634.
+.. [SD14] Stanley, T. D., & Doucouliagos, H. (2014). Meta-regression approximations to
+   reduce publication selection bias. *Research Synthesis Methods*, 5(1), 60-78.
+.. [DT00] Duval, S., & Tweedie, R. (2000). Trim and fill: A simple funnel-plot-based method
+   of testing and adjusting for publication bias in meta-analysis. *Biometrics*, 56(2),
+   455-463 (L0 and R0, eqs. 2-3).
+.. [VH95] Vevea, J. L., & Hedges, L. V. (1995). A general linear model for estimating effect
+   size in the presence of publication bias. *Psychometrika*, 60(3), 419-435.
+.. [SDI17] Stanley, T. D., Doucouliagos, H., & Ioannidis, J. P. A. (2017). Finding the
+   power to reduce publication bias. *Statistics in Medicine*, 36(10), 1580-1598.
+.. [IT07] Ioannidis, J. P. A., & Trikalinos, T. A. (2007). An exploratory test for an excess
+   of significant findings. *Clinical Trials*, 4(3), 245-253.
+.. [MV20] Mathur, M. B., & VanderWeele, T. J. (2020). Sensitivity analysis for publication
+   bias in meta-analyses. *JRSS C*, 69(5), 1091-1119.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._results import Interval, NotEstimable, estimable, to_jsonable
+from .pooling import random_effects
+
+Z975 = 1.959963984540054
+MIN_PER_INTERVAL = 3  # studies needed on each side of the cutpoint for the selection model
+
+
+@dataclass(frozen=True)
+class Regression:
+    """An intercept-type estimate from a meta-regression (Egger, PET, PEESE)."""
+
+    estimate: float
+    se: float
+    ci: Interval
+    p: float
+    slope: float
+    df: int
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"estimate": self.estimate, "intercept": self.estimate, "se": self.se,
+                            "ci_low": self.ci.low, "ci_high": self.ci.high, "p": self.p,
+                            "slope": self.slope, "df": self.df})
+
+
+def _fit_line(x, y, weights=None, level=0.95) -> Regression:
+    from scipy import stats
+    from statsmodels.regression.linear_model import OLS, WLS
+    X = np.column_stack([np.ones_like(x), x])
+    model = OLS(y, X) if weights is None else WLS(y, X, weights=weights)
+    fit = model.fit()
+    b0, se0 = float(fit.params[0]), float(fit.bse[0])
+    df = int(fit.df_resid)
+    t = stats.t.ppf(0.5 + level / 2, df)
+    return Regression(b0, se0, Interval(b0 - t * se0, b0 + t * se0, level),
+                      float(fit.pvalues[0]), float(fit.params[1]), df)
+
+
+def egger_test(y, v) -> Regression | NotEstimable:
+    """Egger's regression test (Egger et al. 1997): OLS of y/SE on 1/SE; the intercept
+    measures funnel asymmetry (t test, k - 2 df)."""
+    y, v = np.asarray(y, float), np.asarray(v, float)
+    if len(y) < 3:
+        return NotEstimable(f"Egger's test needs at least 3 studies (k = {len(y)})")
+    se = np.sqrt(v)
+    if np.ptp(se) == 0:
+        return NotEstimable("all studies have the same standard error")
+    return _fit_line(1 / se, y / se)
+
+
+def pet(y, v) -> Regression | NotEstimable:
+    """PET: WLS of y on SE with weights 1/SE² and multiplicative dispersion; the intercept
+    is the effect of a study with SE = 0 (Stanley & Doucouliagos 2014)."""
+    y, v = np.asarray(y, float), np.asarray(v, float)
+    if len(y) < 3:
+        return NotEstimable(f"PET needs at least 3 studies (k = {len(y)})")
+    if np.ptp(v) == 0:
+        return NotEstimable("all studies have the same standard error")
+    return _fit_line(np.sqrt(v), y, 1 / v)
+
+
+def peese(y, v) -> Regression | NotEstimable:
+    """PEESE: WLS of y on SE² with weights 1/SE² (Stanley & Doucouliagos 2014)."""
+    y, v = np.asarray(y, float), np.asarray(v, float)
+    if len(y) < 3:
+        return NotEstimable(f"PEESE needs at least 3 studies (k = {len(y)})")
+    if np.ptp(v) == 0:
+        return NotEstimable("all studies have the same standard error")
+    return _fit_line(v, y, 1 / v)
+
+
+@dataclass(frozen=True)
+class PetPeese:
+    """The conditional PET-PEESE estimate and which model was chosen, and why."""
+
+    estimate: float
+    se: float
+    ci: Interval
+    chosen: str  # "PET" or "PEESE"
+    why: str
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"estimate": self.estimate, "se": self.se, "ci_low": self.ci.low,
+                            "ci_high": self.ci.high, "chosen": self.chosen, "why": self.why})
+
+
+def pet_peese(pet_fit, peese_fit, alpha=0.05) -> PetPeese | NotEstimable:
+    """Conditional PET-PEESE (Stanley & Doucouliagos 2014): PEESE when PET's intercept is
+    significantly positive (two-tailed test at ``alpha``), else PET."""
+    if not estimable(pet_fit):
+        return pet_fit
+    if pet_fit.p < alpha and pet_fit.estimate > 0:
+        if not estimable(peese_fit):
+            return peese_fit
+        return PetPeese(peese_fit.estimate, peese_fit.se, peese_fit.ci, "PEESE",
+                        f"PET's intercept is significantly positive (p = {pet_fit.p:.3f}), "
+                        "so an effect exists and PEESE estimates it with less bias")
+    return PetPeese(pet_fit.estimate, pet_fit.se, pet_fit.ci, "PET",
+                    f"PET's intercept is not significantly positive (p = {pet_fit.p:.3f})")
+
+
+# ------------------------------------------------------------------ trim-and-fill
+
+@dataclass(frozen=True)
+class TrimAndFill:
+    """Trim-and-fill result: number and values of the imputed studies, adjusted estimate."""
+
+    k0: int
+    side: str  # side of the funnel where studies were imputed: "left" or "right"
+    estimator: str  # "L0" or "R0"
+    estimate: float
+    se: float
+    ci: Interval
+    tau2: float
+    filled_effects: tuple[float, ...]
+    filled_variances: tuple[float, ...]
+    iterations: int
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"k0": self.k0, "side": self.side, "estimator": self.estimator,
+                            "estimate": self.estimate, "se": self.se, "ci_low": self.ci.low,
+                            "ci_high": self.ci.high, "tau2": self.tau2,
+                            "filled": [{"effect": e, "variance": v, "imputed": True}
+                                       for e, v in zip(self.filled_effects,
+                                                       self.filled_variances)],
+                            "iterations": self.iterations})
+
+
+def _k0(dev, estimator):
+    """Duval & Tweedie (2000) eqs. 2-3 for studies missing on the left: ranks of |dev|;
+    L0 = (4 T - n(n + 1)) / (2n - 1) with T the rank sum of positive deviations;
+    R0 = γ - 1 with γ the length of the run of positive deviations at the top ranks."""
+    from scipy.stats import rankdata
+    n = len(dev)
+    ranks = rankdata(np.abs(dev))
+    if estimator == "L0":
+        t = ranks[dev > 0].sum()
+        return max(0, int(round((4 * t - n * (n + 1)) / (2 * n - 1))))
+    order = np.argsort(-np.abs(dev), kind="stable")
+    run = 0
+    for i in order:
+        if dev[i] > 0:
+            run += 1
+        else:
+            break
+    return max(0, run - 1)
+
+
+def trim_and_fill(y, v, side=None, estimator="L0", tau2_estimator="reml",
+                  interval="hksj", max_iter=100) -> TrimAndFill | NotEstimable:
+    """Trim-and-fill (Duval & Tweedie 2000).
+
+    ``side`` is where studies are missing ("left" = small effects missing, the usual case);
+    by default it is taken from the sign of Egger's intercept (positive → left). The trimming
+    uses the random-effects mean with ``tau2_estimator``.
+    """
+    y, v = np.asarray(y, float), np.asarray(v, float)
+    k = len(y)
+    if k < 3:
+        return NotEstimable(f"trim-and-fill needs at least 3 studies (k = {k})")
+    if estimator not in ("L0", "R0"):
+        raise ValueError("estimator must be 'L0' or 'R0'")
+    if side is None:
+        eg = egger_test(y, v)
+        side = "left" if (not estimable(eg) or eg.estimate >= 0) else "right"
+    sign = 1.0 if side == "left" else -1.0
+    ys = sign * y  # work as if studies were missing on the left
+    order = np.argsort(ys, kind="stable")  # ascending; the largest are trimmed
+    k0, it = 0, 0
+    mu = random_effects(ys, v, tau2_estimator, "wald").mu
+    for it in range(1, max_iter + 1):
+        keep = order[: k - k0] if k0 else order
+        mu = random_effects(ys[keep], v[keep], tau2_estimator, "wald").mu
+        new = min(_k0(ys - mu, estimator), k - 2)
+        if new == k0:
+            break
+        k0 = new
+    trimmed = order[k - k0:] if k0 else np.array([], int)
+    fill_y = 2 * mu - ys[trimmed]
+    fill_v = v[trimmed]
+    all_y = np.concatenate([ys, fill_y])
+    all_v = np.concatenate([v, fill_v])
+    fit = random_effects(all_y, all_v, tau2_estimator, interval)
+    est = sign * fit.mu
+    ci = Interval(min(sign * fit.ci.low, sign * fit.ci.high),
+                  max(sign * fit.ci.low, sign * fit.ci.high), fit.ci.level)
+    return TrimAndFill(int(k0), side, estimator, float(est), float(fit.se), ci, float(fit.tau2),
+                       tuple(float(x) for x in sign * fill_y), tuple(float(x) for x in fill_v), it)
+
+
+# ------------------------------------------------------------------ selection model
+
+@dataclass(frozen=True)
+class SelectionModel:
+    """Three-parameter selection model (one cutpoint at one-sided p = .025).
+
+    ``omega`` is the relative probability that a non-significant result is published
+    (1 = no selection). ``identified`` follows the planning rule of DEVELOPERS.md.
+    """
+
+    estimate: float
+    se: float | NotEstimable
+    ci: Interval | NotEstimable
+    tau2: float
+    omega: float
+    omega_se: float | NotEstimable
+    loglik: float
+    lrt_stat: float
+    lrt_p: float
+    k: int
+    k_significant: int
+    k_nonsignificant: int
+    converged: bool
+    at_bound: tuple[str, ...]
+    gradient: tuple[float, ...]
+    starts: int
+
+    def to_dict(self) -> dict:
+        ci_lo = self.ci.low if estimable(self.ci) else self.ci
+        ci_hi = self.ci.high if estimable(self.ci) else self.ci
+        return to_jsonable({"estimate": self.estimate, "se": self.se, "ci_low": ci_lo,
+                            "ci_high": ci_hi, "tau2": self.tau2, "omega": self.omega,
+                            "omega_se": self.omega_se, "loglik": self.loglik,
+                            "lrt_stat": self.lrt_stat, "lrt_p": self.lrt_p, "k": self.k,
+                            "k_significant": self.k_significant,
+                            "k_nonsignificant": self.k_nonsignificant,
+                            "converged": self.converged, "at_bound": list(self.at_bound),
+                            "gradient": list(self.gradient), "starts": self.starts})
+
+
+OMEGA_BOUNDS = (1e-3, 1e3)
+
+
+def selection_loglik(mu, tau2, omega, y, v) -> float:
+    """Log-likelihood of the three-parameter selection model (Vevea & Hedges 1995, eq. 8
+    with one cutpoint): each study's density is w(y) φ((y - μ)/s)/s / A, s² = v + τ²,
+    w = 1 when y/√v > 1.96 (one-sided p < .025) and ω otherwise, and
+    A = P(significant) + ω P(not significant)."""
+    from scipy.special import log_ndtr
+    y, v = np.asarray(y, float), np.asarray(v, float)
+    s = np.sqrt(v + tau2)
+    c = Z975 * np.sqrt(v)
+    sig = y > c
+    z = (y - mu) / s
+    a = (c - mu) / s
+    log_a = np.logaddexp(log_ndtr(-a), math.log(omega) + log_ndtr(a))
+    ll = -0.5 * z * z - np.log(s) - 0.5 * math.log(2 * math.pi) - log_a
+    ll = ll + np.where(sig, 0.0, math.log(omega))
+    return float(ll.sum())
+
+
+def selection_model(y, v, min_per_interval=MIN_PER_INTERVAL) -> SelectionModel | NotEstimable:
+    """Fit the three-parameter selection model by maximum likelihood (L-BFGS-B from several
+    starting points), SE from the observed information (numerical Hessian), and the
+    likelihood-ratio test against the unadjusted (ω = 1) random-effects model."""
+    from scipy import optimize, stats
+    from statsmodels.tools.numdiff import approx_fprime, approx_hess
+    y, v = np.asarray(y, float), np.asarray(v, float)
+    k = len(y)
+    sig = y > Z975 * np.sqrt(v)
+    ks, kn = int(sig.sum()), int(k - sig.sum())
+    if ks < min_per_interval or kn < min_per_interval:
+        return NotEstimable(f"the selection model needs at least {min_per_interval} significant "
+                            f"and {min_per_interval} non-significant studies "
+                            f"(here {ks} and {kn})")
+    tau2_hi = 10 * (float(np.var(y)) + float(np.max(v)))
+    lo_w, hi_w = math.log(OMEGA_BOUNDS[0]), math.log(OMEGA_BOUNDS[1])
+    bounds = [(None, None), (0.0, tau2_hi), (lo_w, hi_w)]
+
+    def nll(theta):
+        return -selection_loglik(theta[0], theta[1], math.exp(theta[2]), y, v)
+
+    ml = random_effects(y, v, "ml", "wald")
+    starts = [(ml.mu, ml.tau2, 0.0), (ml.mu, ml.tau2, math.log(0.3)),
+              (ml.mu / 2, ml.tau2, math.log(0.1)), (float(np.median(y)), ml.tau2 / 2 + 1e-3, 0.0),
+              (0.0, ml.tau2 + 0.01, math.log(0.05)), (ml.mu, 0.0, math.log(0.5))]
+    best = None
+    for s0 in starts:
+        r = optimize.minimize(nll, np.array(s0), method="L-BFGS-B", bounds=bounds,
+                              options={"maxiter": 2000, "ftol": 1e-14, "gtol": 1e-9})
+        if np.isfinite(r.fun) and (best is None or r.fun < best.fun):
+            best = r
+    if best is None:
+        return NotEstimable("the selection-model likelihood could not be evaluated")
+    theta = best.x
+    mu, tau2, omega = float(theta[0]), float(theta[1]), float(math.exp(theta[2]))
+    grad = approx_fprime(theta, nll, centered=True)
+    at_bound = []
+    if tau2 <= 1e-10:
+        at_bound.append("tau2 = 0")
+    if theta[2] <= lo_w + 1e-6 or theta[2] >= hi_w - 1e-6:
+        at_bound.append("omega at its bound")
+    scale = max(1.0, abs(best.fun))
+    free = [0] + ([1] if tau2 > 1e-10 else []) + ([2] if "omega at its bound" not in at_bound else [])
+    ok_free = all(abs(grad[i]) < 1e-3 * scale for i in free)
+    # at a lower bound the gradient of -loglik must point into the bound (>= 0)
+    ok_bound = (tau2 > 1e-10 or grad[1] > -1e-3 * scale)
+    converged = bool(best.success or ok_free) and ok_free and ok_bound
+
+    se: float | NotEstimable
+    ci: Interval | NotEstimable
+    omega_se: float | NotEstimable
+    try:
+        h = approx_hess(theta[free], lambda t: nll(_expand(t, theta, free)))
+        cov = np.linalg.inv(h)
+        if not np.all(np.isfinite(cov)) or cov[0, 0] <= 0:
+            raise np.linalg.LinAlgError
+        se = float(math.sqrt(cov[0, 0]))
+        ci = Interval(mu - Z975 * se, mu + Z975 * se, 0.95)
+        if 2 in free:
+            j = free.index(2)
+            omega_se = float(omega * math.sqrt(cov[j, j])) if cov[j, j] > 0 else \
+                NotEstimable("observed information not positive for omega")
+        else:
+            omega_se = NotEstimable("omega at its bound")
+    except (np.linalg.LinAlgError, ValueError):
+        se = ci = omega_se = NotEstimable("the observed information matrix is singular")
+    ll1 = -float(best.fun)
+    ll0 = selection_loglik(ml.mu, ml.tau2, 1.0, y, v)
+    lrt = max(0.0, 2 * (ll1 - ll0))
+    return SelectionModel(mu, se, ci, tau2, omega, omega_se, ll1, lrt,
+                          float(stats.chi2.sf(lrt, 1)), k, ks, kn, converged, tuple(at_bound),
+                          tuple(float(g) for g in grad), len(starts))
+
+
+def _expand(t, theta, free):
+    full = np.array(theta, float).copy()
+    full[free] = t
+    return full
+
+
+# ------------------------------------------------------------------ WAAP-WLS
+
+@dataclass(frozen=True)
+class WaapWls:
+    """WAAP-WLS: the WLS estimate of the adequately powered studies, or of all (fallback)."""
+
+    estimate: float
+    se: float
+    ci: Interval
+    k_adequate: int
+    wls_estimate: float
+    threshold_se: float
+    fallback: bool
+    note: str
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"estimate": self.estimate, "se": self.se, "ci_low": self.ci.low,
+                            "ci_high": self.ci.high, "k_adequate": self.k_adequate,
+                            "wls_estimate": self.wls_estimate, "threshold_se": self.threshold_se,
+                            "fallback": self.fallback, "note": self.note})
+
+
+def _wls_mean(y, v):
+    """Unrestricted WLS mean (Stanley & Doucouliagos 2015): the inverse-variance mean with a
+    multiplicative-dispersion SE, from statsmodels WLS on a constant."""
+    from scipy import stats
+    from statsmodels.regression.linear_model import WLS
+    fit = WLS(y, np.ones((len(y), 1)), weights=1 / v).fit()
+    b, se = float(fit.params[0]), float(fit.bse[0])
+    df = max(1, len(y) - 1)
+    t = stats.t.ppf(0.975, df)
+    return b, se, Interval(b - t * se, b + t * se, 0.95)
+
+
+def waap_wls(y, v) -> WaapWls | NotEstimable:
+    """WAAP-WLS (Stanley, Doucouliagos & Ioannidis 2017): adequately powered studies have
+    SE ≤ |WLS| / 2.8; with fewer than two of them, fall back to WLS on all studies."""
+    y, v = np.asarray(y, float), np.asarray(v, float)
+    if len(y) < 2:
+        return NotEstimable(f"WAAP-WLS needs at least 2 studies (k = {len(y)})")
+    b, se, ci = _wls_mean(y, v)
+    thr = abs(b) / 2.8
+    adequate = np.sqrt(v) <= thr
+    ka = int(adequate.sum())
+    if ka >= 2:
+        bw, sew, ciw = _wls_mean(y[adequate], v[adequate])
+        return WaapWls(bw, sew, ciw, ka, b, thr, False,
+                       f"{ka} adequately powered studies (SE <= {thr:.3f})")
+    return WaapWls(b, se, ci, ka, b, thr, True,
+                   f"only {ka} adequately powered stud{'y' if ka == 1 else 'ies'} "
+                   f"(SE <= {thr:.3f}): WLS on all studies reported instead")
+
+
+# ------------------------------------------------------------------ selection ratio
+
+@dataclass(frozen=True)
+class SelectionRatio:
+    """Mathur & VanderWeele (2020) sensitivity to selection of affirmative results."""
+
+    eta: tuple[float, ...]
+    estimates: tuple[float, ...]
+    worst_case: float | NotEstimable
+    s_value: float | NotEstimable
+    k_affirmative: int
+    k_nonaffirmative: int
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"rows": [{"eta": e, "estimate": m}
+                                     for e, m in zip(self.eta, self.estimates)],
+                            "worst_case": self.worst_case, "s_value": self.s_value,
+                            "k_affirmative": self.k_affirmative,
+                            "k_nonaffirmative": self.k_nonaffirmative})
+
+
+def eta_adjusted(y, v, tau2, eta) -> float:
+    """Estimate if affirmative results (significant, positive) were ``eta`` times more
+    likely to be published (Mathur & VanderWeele 2020): non-affirmative studies are
+    up-weighted by η in the random-effects mean, τ² held at its unadjusted estimate."""
+    y, v = np.asarray(y, float), np.asarray(v, float)
+    w = 1 / (v + tau2)
+    aff = y > Z975 * np.sqrt(v)
+    w = np.where(aff, w, eta * w)
+    return float(np.dot(w, y) / w.sum())
+
+
+def selection_ratio(y, v, tau2, etas=(2.0, 5.0, 10.0)) -> SelectionRatio | NotEstimable:
+    """η-adjusted estimates, the worst case (non-affirmative studies only) and the S-value,
+    the η that brings the estimate to 0 (Mathur & VanderWeele 2020)."""
+    y, v = np.asarray(y, float), np.asarray(v, float)
+    aff = y > Z975 * np.sqrt(v)
+    ka, kn = int(aff.sum()), int((~aff).sum())
+    if len(y) < 2:
+        return NotEstimable("needs at least 2 studies")
+    ests = tuple(eta_adjusted(y, v, tau2, e) for e in etas)
+    w = 1 / (v + tau2)
+    if kn == 0:
+        worst: float | NotEstimable = NotEstimable("every study is affirmative: no "
+                                                   "non-affirmative study to fall back on")
+        s: float | NotEstimable = NotEstimable("every study is affirmative")
+    else:
+        worst = float(np.dot(w[~aff], y[~aff]) / w[~aff].sum())
+        sa, sn = float(np.dot(w[aff], y[aff])), float(np.dot(w[~aff], y[~aff]))
+        if eta_adjusted(y, v, tau2, 1.0) <= 0:
+            s = NotEstimable("the unadjusted estimate is already not above 0")
+        elif sn >= 0:
+            s = NotEstimable("no amount of selection brings the estimate to 0: even the "
+                             "non-affirmative studies alone give a positive estimate")
+        else:
+            s = -sa / sn  # solves Σ_A w y + η Σ_N w y = 0
+    return SelectionRatio(tuple(etas), ests, worst, s, ka, kn)
+
+
+# ------------------------------------------------------------------ the suite
+
+@dataclass(frozen=True)
+class BiasResult:
+    """Every bias-sensitivity method, estimated or not estimable (with the reason)."""
+
+    metric: str
+    k: int
+    egger: Regression | NotEstimable
+    pet: Regression | NotEstimable
+    peese: Regression | NotEstimable
+    pet_peese: PetPeese | NotEstimable
+    trim_and_fill: TrimAndFill | NotEstimable
+    trim_and_fill_r0: TrimAndFill | NotEstimable
+    selection_3psm: SelectionModel | NotEstimable
+    waap_wls: WaapWls | NotEstimable
+    selection_ratio: SelectionRatio | NotEstimable
+
+    def adjusted(self) -> dict:
+        """The bias-adjusted estimates the planning rule can use: name -> (estimate, se)."""
+        out = {}
+        if estimable(self.selection_3psm) and estimable(self.selection_3psm.se):
+            out["selection model"] = (self.selection_3psm.estimate, self.selection_3psm.se)
+        if estimable(self.pet_peese):
+            out["PET-PEESE"] = (self.pet_peese.estimate, self.pet_peese.se)
+        if estimable(self.trim_and_fill):
+            out["trim-and-fill"] = (self.trim_and_fill.estimate, self.trim_and_fill.se)
+        if estimable(self.waap_wls):
+            out["WAAP-WLS"] = (self.waap_wls.estimate, self.waap_wls.se)
+        return out
+
+    def table(self) -> list[tuple[str, object, object, str]]:
+        """(method, estimate or NotEstimable, CI or None, note) rows for reports."""
+        rows = []
+        def add(name, res, note_fn):
+            if not estimable(res):
+                rows.append((name, res, None, str(res)))
+            else:
+                rows.append((name, res.estimate, getattr(res, "ci", None), note_fn(res)))
+        if estimable(self.egger):
+            e = self.egger
+            rows.append(("Egger's test", None, None,
+                         f"asymmetry: intercept {e.estimate:.2f} [{e.ci.low:.2f}, {e.ci.high:.2f}], "
+                         f"p = {e.p:.3f}"))
+        else:
+            rows.append(("Egger's test", self.egger, None, str(self.egger)))
+        add("PET", self.pet, lambda r: f"intercept p = {r.p:.3f}")
+        add("PEESE", self.peese, lambda r: f"slope on SE^2 = {r.slope:.2f}")
+        add("PET-PEESE", self.pet_peese, lambda r: f"{r.chosen}: {r.why}")
+        add("trim-and-fill (L0)", self.trim_and_fill,
+            lambda r: f"{r.k0} studies imputed on the {r.side}")
+        add("trim-and-fill (R0)", self.trim_and_fill_r0,
+            lambda r: f"{r.k0} studies imputed on the {r.side}")
+        add("selection model (3PSM)", self.selection_3psm,
+            lambda r: (f"omega = {r.omega:.2f}, LRT p = {r.lrt_p:.3f}, "
+                       f"{r.k_significant} significant / {r.k_nonsignificant} not"
+                       + ("" if r.converged else ", did not converge")
+                       + (f", {', '.join(r.at_bound)}" if r.at_bound else "")))
+        add("WAAP-WLS", self.waap_wls, lambda r: r.note)
+        return rows
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"egger": self.egger, "pet": self.pet, "peese": self.peese,
+                            "pet_peese": self.pet_peese, "trim_and_fill": self.trim_and_fill,
+                            "trim_and_fill_r0": self.trim_and_fill_r0,
+                            "selection_3psm": self.selection_3psm, "waap_wls": self.waap_wls,
+                            "selection_ratio": self.selection_ratio})
+
+    def to_frame(self):
+        import pandas as pd
+        return pd.DataFrame([{"method": m, "estimate": e if estimable(e) else None,
+                              "ci_low": c.low if c is not None and estimable(c) else None,
+                              "ci_high": c.high if c is not None and estimable(c) else None,
+                              "note": n} for m, e, c, n in self.table()])
+
+
+def bias_suite(pooled, tau2_estimator=None, interval=None) -> BiasResult:
+    """Run every bias-sensitivity method on the units of a :class:`PooledResult`.
+
+    Examples
+    --------
+    >>> from pooler import read_sheet, convert, pool, demo_sheet_path
+    >>> from pooler.bias import bias_suite
+    >>> b = bias_suite(pool(convert(read_sheet(demo_sheet_path()))))
+    >>> sorted(b.adjusted())
+    ['PET-PEESE', 'WAAP-WLS', 'selection model', 'trim-and-fill']
+    """
+    y = np.array(pooled.effects)
+    v = np.array(pooled.variances)
+    est = tau2_estimator or pooled.estimator
+    itv = interval or pooled.interval
+    p, q = pet(y, v), peese(y, v)
+    return BiasResult(
+        metric=pooled.metric, k=len(y), egger=egger_test(y, v), pet=p, peese=q,
+        pet_peese=pet_peese(p, q),
+        trim_and_fill=trim_and_fill(y, v, estimator="L0", tau2_estimator=est, interval=itv),
+        trim_and_fill_r0=trim_and_fill(y, v, estimator="R0", tau2_estimator=est, interval=itv),
+        selection_3psm=selection_model(y, v) if len(y) >= 2 else NotEstimable("one study"),
+        waap_wls=waap_wls(y, v),
+        selection_ratio=selection_ratio(y, v, pooled.tau2))

@@ -1,0 +1,331 @@
+"""Stage 5: from the pooled estimate and the bias suite to three planning effects.
+
+The default rule (DEVELOPERS.md, "The planning-effect rule"):
+
+- optimistic = the random-effects estimate (the literature taken as published);
+- realistic = the three-parameter selection model's estimate when the model is identified
+  (k ≥ 20, ≥ 3 significant and ≥ 3 non-significant studies, ω not at a bound, the fit
+  converged), never above the optimistic one; otherwise the safeguard lower limit of the
+  median of the bias-adjusted estimates that could be computed, with the median of their
+  SEs as its SE;
+- pessimistic = the lower limit of a two-sided safeguard interval (default 60 %) around the
+  realistic estimate (Perugini, Gallucci & Costantini 2014), never below the smallest
+  effect size of interest (SESOI) when one is given.
+
+References
+----------
+.. [PGC14] Perugini, M., Gallucci, M., & Costantini, G. (2014). Safeguard power as a
+   protection against imprecise power estimates. *Perspectives on Psychological Science*,
+   9(3), 319-332.
+.. [IT07] Ioannidis & Trikalinos (2007), test of excess significance (see pooler.bias).
+"""
+from __future__ import annotations
+
+import math
+import statistics
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._results import NotEstimable, estimable, to_jsonable
+from .bias import Z975
+from .errors import OptionError
+from .planning import PlanningEffect
+
+ADJUSTERS = ("default", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls")
+_ADJ_KEY = {"3psm": "selection model", "pet-peese": "PET-PEESE", "trim-and-fill": "trim-and-fill",
+            "waap-wls": "WAAP-WLS"}
+MIN_K_SELECTION = 20
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """One planning scenario on the literature's metric (g or Fisher z)."""
+
+    name: str
+    effect: float
+    se: float | None
+    basis: str
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"effect": self.effect, "se": self.se, "basis": self.basis})
+
+
+@dataclass(frozen=True)
+class StudyPower:
+    label: str
+    power: float
+    how: str
+
+
+@dataclass(frozen=True)
+class LiteratureAudit:
+    """Each prior study's power to detect the realistic effect with its own n and design."""
+
+    effect: float
+    rows: tuple[StudyPower, ...]
+    median: float
+    share_80: float
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"effect": self.effect, "median_power": self.median,
+                            "share_adequate": self.share_80,
+                            "rows": [{"label": r.label, "power": r.power, "how": r.how}
+                                     for r in self.rows]})
+
+
+@dataclass(frozen=True)
+class ExcessSignificance:
+    """Ioannidis & Trikalinos (2007): observed vs expected significant studies."""
+
+    observed: int
+    expected: float
+    k: int
+    chi2: float
+    p: float
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"observed": self.observed, "expected": self.expected, "k": self.k,
+                            "chi2": self.chi2, "p": self.p})
+
+
+@dataclass(frozen=True)
+class Scenarios:
+    """The three planning scenarios, their bases in words, and the audit at the realistic effect.
+
+    Attributes
+    ----------
+    metric : {"g", "z"}
+    optimistic, realistic, pessimistic : Scenario
+    supported : bool
+        False when the realistic effect is ≤ 0 or below the SESOI.
+    verdict : str
+        The plain-language summary.
+    predictive : (mean, sd) or NotEstimable
+        Predictive distribution of a new study's true effect, for assurance.
+    audit, excess_significance : results at the realistic effect
+    """
+
+    metric: str
+    optimistic: Scenario
+    realistic: Scenario
+    pessimistic: Scenario
+    rule: str
+    safeguard_level: float
+    sesoi: float | None
+    supported: bool
+    verdict: str
+    predictive: tuple[float, float] | NotEstimable
+    audit: LiteratureAudit | NotEstimable
+    excess_significance: ExcessSignificance | NotEstimable
+
+    @property
+    def planning_metric(self) -> str:
+        return "d" if self.metric == "g" else "r"
+
+    def _plan_value(self, x: float) -> float:
+        return math.tanh(x) if self.metric == "z" else x
+
+    def planning_effects(self) -> list[PlanningEffect]:
+        """The scenarios as planning effects on the planning metric (g, or r)."""
+        return [PlanningEffect(s.name, self._plan_value(s.effect), s.basis)
+                for s in (self.optimistic, self.realistic, self.pessimistic)]
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"optimistic": self.optimistic, "realistic": self.realistic,
+                            "pessimistic": self.pessimistic, "rule": self.rule,
+                            "safeguard_level": self.safeguard_level, "sesoi": self.sesoi,
+                            "supported": self.supported, "verdict": self.verdict,
+                            "predictive": ({"mean": self.predictive[0], "sd": self.predictive[1]}
+                                           if isinstance(self.predictive, tuple)
+                                           else self.predictive),
+                            "audit": self.audit})
+
+    def to_frame(self):
+        import pandas as pd
+        return pd.DataFrame([{"scenario": s.name, "effect": s.effect, "se": s.se,
+                              "basis": s.basis}
+                             for s in (self.optimistic, self.realistic, self.pessimistic)])
+
+
+def selection_identified(sm, k) -> tuple[bool, str]:
+    """Is the selection model identified enough to plan on? (the rule in DEVELOPERS.md)"""
+    if not estimable(sm):
+        return False, str(sm).removeprefix("not estimable: ")
+    if k < MIN_K_SELECTION:
+        return False, f"too few studies for a selection model ({k} < {MIN_K_SELECTION})"
+    if sm.k_significant < 3 or sm.k_nonsignificant < 3:
+        return False, (f"the selection model needs at least 3 significant and 3 non-significant "
+                       f"studies ({sm.k_significant} and {sm.k_nonsignificant})")
+    if sm.at_bound and any("omega" in b for b in sm.at_bound):
+        return False, "the selection model's omega is at a bound"
+    if not sm.converged:
+        return False, "the selection-model fit did not converge"
+    if not estimable(sm.se):
+        return False, f"the selection model has no standard error ({sm.se.reason})"
+    return True, ""
+
+
+def unit_powers(units, effect, metric, alpha=0.05):
+    """Power of each unit's own study to detect ``effect`` (two-sided ``alpha``), exact for its
+    design where n is known, otherwise from its SE by the normal approximation."""
+    from scipy.special import ndtr, ndtri
+    from .power import Design, power_at, to_design_effect
+    out = []
+    zc = float(ndtri(1 - alpha / 2))
+    for u in units:
+        if metric == "z" and u.n_total and u.n_total > 3:
+            p = float(power_at(math.tanh(effect), u.n_total, "correlation", alpha))
+            how = f"correlation, n = {u.n_total:g}"
+        elif metric == "g" and u.design == "between" and u.n1 and u.n2:
+            p = float(power_at(effect, u.n1, Design("two-group", ratio=u.n2 / u.n1), alpha))
+            how = f"two groups, {u.n1:g} + {u.n2:g}"
+        elif metric == "g" and u.design == "between" and u.n_total and u.n_total > 3:
+            p = float(power_at(effect, u.n_total / 2, "two-group", alpha))
+            how = f"two groups, {u.n_total:g} in all"
+        elif metric == "g" and u.design == "within" and u.n_total and u.within_r is not None:
+            des = Design("paired", planned_r=u.within_r)
+            p = float(power_at(to_design_effect(effect, "d", des), u.n_total, des, alpha))
+            how = f"paired, n = {u.n_total:g}, r = {u.within_r:g}"
+        else:
+            lam = effect / u.se
+            p = float(ndtr(lam - zc) + ndtr(-lam - zc))
+            how = "from its SE (normal approximation)"
+        out.append(StudyPower(u.label, p, how))
+    return out
+
+
+def literature_audit(units, effect, metric) -> LiteratureAudit:
+    rows = unit_powers(units, effect, metric)
+    pw = [r.power for r in rows]
+    return LiteratureAudit(effect, tuple(rows), float(statistics.median(pw)),
+                           float(np.mean(np.array(pw) >= 0.8)))
+
+
+def excess_significance(units, powers) -> ExcessSignificance | NotEstimable:
+    """χ² = (O - E)²/E + (O - E)²/(k - E) on 1 df (Ioannidis & Trikalinos 2007), with O the
+    studies significant at two-sided .05 and E the sum of their powers."""
+    from scipy import stats
+    k = len(units)
+    if k < 2:
+        return NotEstimable("needs at least 2 studies")
+    o = int(sum(abs(u.effect / u.se) > Z975 for u in units))
+    e = float(sum(powers))
+    if not 0 < e < k:
+        return NotEstimable("the expected number of significant studies is 0 or k")
+    chi2 = (o - e) ** 2 / e + (o - e) ** 2 / (k - e)
+    return ExcessSignificance(o, e, k, float(chi2), float(stats.chi2.sf(chi2, 1)))
+
+
+def make_scenarios(effects, pooled, bias, *, adjuster="default", safeguard_level=0.6,
+                   sesoi=None) -> Scenarios:
+    """Derive the optimistic / realistic / pessimistic planning effects.
+
+    Parameters
+    ----------
+    effects : Effects
+    pooled : PooledResult
+    bias : BiasResult
+    adjuster : {"default", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls"}
+        ``default`` is the rule above; ``median`` always uses the safeguard limit of the
+        median of the adjusted estimates; a method name plans on that adjuster alone.
+    safeguard_level : float
+        Two-sided level of the safeguard interval (Perugini et al. 2014 use 0.60).
+    sesoi : float or None
+        Smallest effect size of interest on the planning metric (d, or r).
+    """
+    from scipy.special import ndtri
+    # validation
+    if adjuster not in ADJUSTERS:
+        raise OptionError(f"`adjuster` must be one of {', '.join(ADJUSTERS)}, not {adjuster!r}")
+    if not 0 < safeguard_level < 1:
+        raise OptionError(f"`safeguard_level` must lie in (0, 1), not {safeguard_level!r}")
+    if sesoi is not None and not (sesoi > 0 and (pooled.metric == "g" or sesoi < 1)):
+        raise OptionError(f"`sesoi` must be a positive effect, not {sesoi!r}")
+    if not estimable(pooled.pooled) and pooled.k > 1:
+        raise OptionError(f"no random-effects estimate to plan on: {pooled.pooled.reason}")
+    z = float(ndtri(0.5 + safeguard_level / 2))
+    metric = pooled.metric
+    sesoi_m = None if sesoi is None else (math.atanh(sesoi) if metric == "z" else sesoi)
+    sym = "g" if metric == "g" else "z"
+    k = pooled.k
+
+    opt_est = pooled.mu
+    opt_se = pooled.pooled.se if estimable(pooled.pooled) else pooled.fixed.se
+    optimistic = Scenario("optimistic", opt_est, opt_se,
+                          f"random-effects estimate of {k} stud{'y' if k == 1 else 'ies'}, "
+                          "as published")
+
+    adjusted = bias.adjusted()
+    sm = bias.selection_3psm
+    ok, why_not = selection_identified(sm, k)
+    tau2 = pooled.tau2
+    if adjuster in _ADJ_KEY:
+        key = _ADJ_KEY[adjuster]
+        if key not in adjusted:
+            raise OptionError(f"--adjuster {adjuster}: that method is not estimable here "
+                              f"({_reason(bias, adjuster)}); choose another or the default rule")
+        est, se = adjusted[key]
+        basis = f"{key} alone (chosen with --adjuster)"
+        if key == "selection model":
+            tau2 = sm.tau2
+    elif adjuster == "default" and ok:
+        est, se = sm.estimate, sm.se
+        tau2 = sm.tau2
+        basis = (f"selection model, {k} studies, {sm.k_nonsignificant} non-significant "
+                 f"(omega = {sm.omega:.2f})")
+    else:
+        if not adjusted:
+            est, se = opt_est, opt_se
+            basis = "no bias adjustment could be computed: the random-effects estimate"
+        else:
+            est_med = statistics.median(e for e, _ in adjusted.values())
+            se = statistics.median(s for _, s in adjusted.values())
+            est = est_med - z * se
+            lead = (f"{why_not}: " if adjuster == "default" and why_not else "")
+            basis = (f"{lead}safeguard limit ({100 * safeguard_level:g}%) of the median of "
+                     f"{len(adjusted)} adjusted estimates ({', '.join(adjusted)}; median "
+                     f"{sym} = {est_med:.3f})")
+    if est > opt_est:
+        basis += "; capped at the optimistic estimate"
+        est = opt_est
+    realistic = Scenario("realistic", float(est), float(se), basis)
+
+    pess = est - z * se
+    pbasis = f"lower limit of a {100 * safeguard_level:g}% safeguard interval around the realistic"
+    if sesoi_m is not None and pess < sesoi_m:
+        pess = sesoi_m
+        pbasis += "; raised to the smallest effect size of interest"
+    pessimistic = Scenario("pessimistic", float(pess), float(se), pbasis)
+
+    supported = est > 0 and (sesoi_m is None or est >= sesoi_m)
+    if supported:
+        verdict = (f"The literature supports a positive planning effect: realistic {sym} = "
+                   f"{est:.3f} against {opt_est:.3f} as published.")
+    elif sesoi_m is None:
+        verdict = (f"The literature does not support a positive planning effect (realistic {sym} = "
+                   f"{est:.3f}). Plan on the smallest effect size of interest instead: give it "
+                   "with --sesoi.")
+    else:
+        verdict = (f"The literature does not support a planning effect of at least the smallest "
+                   f"effect size of interest (realistic {sym} = {est:.3f} < {sesoi_m:.3f}); the "
+                   "realistic and pessimistic scenarios plan on the smallest effect size of "
+                   "interest.")
+        realistic = Scenario("realistic", float(sesoi_m), float(se),
+                             "smallest effect size of interest (the literature supports less)")
+        pessimistic = Scenario("pessimistic", float(sesoi_m), float(se),
+                               "smallest effect size of interest")
+
+    sd = math.sqrt(se ** 2 + tau2) if se is not None else float("nan")
+    predictive = ((realistic.effect, sd) if math.isfinite(sd) and sd > 0
+                  else NotEstimable("no SE for the realistic effect"))
+    audit = literature_audit(effects.units, realistic.effect, metric)
+    tes = excess_significance(effects.units, [r.power for r in audit.rows])
+    return Scenarios(metric, optimistic, realistic, pessimistic, adjuster, safeguard_level, sesoi,
+                     supported, verdict, predictive, audit, tes)
+
+
+def _reason(bias, adjuster) -> str:
+    res = {"3psm": bias.selection_3psm, "pet-peese": bias.pet_peese,
+           "trim-and-fill": bias.trim_and_fill, "waap-wls": bias.waap_wls}[adjuster]
+    return res.reason if isinstance(res, NotEstimable) else "no standard error"
