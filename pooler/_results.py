@@ -99,3 +99,11 @@ def text_table(headers: list[str], rows: list[list[Any]], digits: int = 3) -> st
                          for v, w, num in zip(vals, widths, numeric)).rstrip()
     sep = "  ".join("-" * w for w in widths)
     return "\n".join([line(headers), sep] + [line(r) for r in cells])
+
+
+def csv_safe(value):
+    """Neutralise spreadsheet formula injection: text starting with = + - @ (or a tab or
+    carriage return) gets a leading apostrophe. Numbers are left alone."""
+    if isinstance(value, str) and value[:1] in ("=", "+", "-", "@", "\t", "\r"):
+        return "'" + value
+    return value

@@ -315,6 +315,123 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
         click.echo(plan_text(p))
 
 
+def _output_options(f):
+    f = click.option("--force", is_flag=True,
+                     help="Write into --out even if it is not empty.")(f)
+    f = click.option("--format", "fmt", type=click.Choice(["png", "svg", "pdf"]),
+                     default="png", show_default=True, help="File format of the figures.")(f)
+    f = click.option("--out", "out_dir", type=click.Path(file_okay=False), default="pooler_out",
+                     show_default=True, help="Folder for the report, figures and tables.")(f)
+    return f
+
+
+def _progress():
+    """Progress messages on stderr, only when stderr is a terminal."""
+    if sys.stderr.isatty():
+        return lambda msg: click.echo(f"pooler: {msg}...", err=True)
+    return None
+
+
+def _command_line(ctx, sheet_label) -> str:
+    """The command that reproduces this run: the options that differ from their defaults."""
+    import shlex
+    parts = ["pooler", ctx.info_name] + ([sheet_label] if sheet_label else [])
+    for param in ctx.command.params:
+        if param.name in ("sheet", "out_dir", "force", "as_json") or not param.opts:
+            continue
+        value = ctx.params.get(param.name)
+        if value == param.default or value in (None, (), False):
+            continue
+        flag = param.opts[0]
+        if getattr(param, "is_flag", False):
+            parts.append(flag)
+        elif isinstance(value, tuple):
+            for v in value:
+                parts += [flag, str(v)]
+        else:
+            parts += [flag, str(value)]
+    return shlex.join(parts)
+
+
+def _whole_job(ctx, sheet, sheet_label, params):
+    from .outputs import render, write
+    from .pipeline import run
+    from .report import run_summary_text
+    p = dict(params)
+    des = _make_design(p["design"], p["ratio"], p["planned_r"], p["covariate_r"],
+                       p["attenuation"], p["predictors_added"], p["predictors_total"],
+                       p["exact_r"])
+    metric = p["metric"]
+    if metric == "d" and p["design"] in ("correlation", "regression-increment"):
+        metric = "r"
+    analysis_options = {"metric": metric, "within_r": p["within_r"], "sample_r": p["sample_r"],
+                        "estimator": p["estimator"], "interval": p["interval"],
+                        "adjuster": p["adjuster"], "safeguard_level": p["safeguard_level"],
+                        "sesoi": p["sesoi"]}
+    plan_options = {"alpha": p["alpha"], "tails": p["tails"],
+                    "powers": tuple(p["powers"] or (0.8, 0.9, 0.95)),
+                    "attrition": p["attrition"], "n_total": p["n_total"]}
+    from pathlib import Path
+    out = Path(p["out_dir"])
+    if out.exists() and (not out.is_dir() or any(out.iterdir())) and not p["force"]:
+        from .errors import OptionError
+        raise OptionError(f"--out {out} is not empty; choose another folder or add --force")
+    result = run(sheet, design=des, analysis_options=analysis_options,
+                 plan_options=plan_options, command=_command_line(ctx, sheet_label),
+                 progress=_progress())
+    _echo_warnings(result.analysis.effects.warnings)
+    files = render(result, p["fmt"])
+    paths = write(files, out, force=p["force"])
+    if p["as_json"]:
+        _print_json(result.to_dict())
+    else:
+        click.echo(run_summary_text(result, paths))
+
+
+@main.command("run")
+@_sheet_argument
+@_analysis_options
+@_planning_options
+@_output_options
+@_json_option
+@click.pass_context
+def run_cmd(ctx, sheet, **params):
+    """The whole job on SHEET: convert, pool, adjust for bias, plan, plot and report.
+
+    Prints a compact summary (pooled estimate and heterogeneity, the bias table, the three
+    planning scenarios with their bases, the planning table, the fixed-N view with --n) and
+    writes into --out: report.md, report.html (self-contained), results.json,
+    planning_table.csv, effects.csv and four figures (forest, funnel, ladder, power).
+
+    \b
+    Example:
+      pooler run my_literature.csv --design two-group --out my_plan
+      pooler run my_literature.csv --design paired --planned-r 0.6 --n 120 --format svg
+    """
+    _whole_job(ctx, sheet, sheet, params)
+
+
+@main.command("demo")
+@_analysis_options
+@_planning_options
+@_output_options
+@_json_option
+@click.pass_context
+def demo_cmd(ctx, **params):
+    """The whole job on the bundled, invented demo literature.
+
+    Same as `pooler run` on demo_literature/break_and_proofreading.csv (25 invented reports
+    on whether a short movement break improves proofreading accuracy).
+
+    \b
+    Example:
+      pooler demo
+      pooler demo --design paired --out demo_plan --force
+    """
+    from .demo import demo_sheet_path
+    _whole_job(ctx, demo_sheet_path(), None, params)
+
+
 @main.command()
 @click.argument("path", type=click.Path(dir_okay=False))
 @click.option("--force", is_flag=True, help="Overwrite PATH if it exists.")

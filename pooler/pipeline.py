@@ -42,8 +42,13 @@ class Analysis:
 
 
 def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="reml",
-            interval="hksj", adjuster="default", safeguard_level=0.6, sesoi=None) -> Analysis:
-    """Read, convert, pool, run the bias suite and derive the planning scenarios."""
+            interval="hksj", adjuster="default", safeguard_level=0.6, sesoi=None,
+            progress=None) -> Analysis:
+    """Read, convert, pool, run the bias suite and derive the planning scenarios.
+
+    ``progress``, if given, is called with a short message before each slow step.
+    """
+    say = progress or (lambda msg: None)
     from .bias import bias_suite
     from .effects import convert
     from .pooling import pool
@@ -51,8 +56,49 @@ def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="re
     from .sheet import read_sheet
     sheet = read_sheet(sheet_path)
     effects = convert(sheet, metric, within_r=within_r, sample_r=sample_r)
+    say("pooling (with leave-one-out)")
     pooled = pool(effects, estimator, interval)
+    say("bias-sensitivity suite (selection model from several starting points)")
     bias = bias_suite(pooled)
     scen = make_scenarios(effects, pooled, bias, adjuster=adjuster,
                           safeguard_level=safeguard_level, sesoi=sesoi)
     return Analysis(sheet, effects, pooled, bias, scen)
+
+
+@dataclass(frozen=True)
+class RunResult:
+    """The whole job: the analysis, the plan, and how it was asked for."""
+
+    analysis: Analysis
+    plan: object  # pooler.planning.Plan
+    options: dict
+    command: str
+    version: str
+
+    def to_dict(self) -> dict:
+        """The ``pooler.run/1`` JSON document."""
+        eff = self.analysis.effects
+        return to_jsonable({
+            "schema": "pooler.run/1", "version": self.version,
+            "pool": self.analysis.pool_document(), "plan": self.plan.to_dict(),
+            "inputs": {"file": self.analysis.sheet.name, "sha256": self.analysis.sheet.sha256,
+                       "rows_read": len(eff.rows), "rows_used": eff.n_used,
+                       "rows_excluded": eff.n_excluded,
+                       "assumptions": list(eff.assumptions), "warnings": list(eff.warnings)},
+            "options": self.options, "command": self.command})
+
+
+def run(sheet_path, *, design, analysis_options: dict, plan_options: dict,
+        command: str = "", progress=None) -> RunResult:
+    """The whole job on one sheet: analyse, then plan the scenarios for ``design``."""
+    from . import __version__
+    from .planning import make_plan
+    a = analyse(sheet_path, progress=progress, **analysis_options)
+    sc = a.scenarios
+    p = make_plan(sc.planning_effects(), design, metric=sc.planning_metric,
+                  predictive=sc.predictive if isinstance(sc.predictive, tuple) else None,
+                  effect_label="g" if sc.planning_metric == "d" else "r", **plan_options)
+    opts = {**analysis_options, **plan_options, "design": design.to_dict()
+            if hasattr(design, "to_dict") else design}
+    opts = {k: (list(v) if isinstance(v, tuple) else v) for k, v in opts.items()}
+    return RunResult(a, p, opts, command, __version__)

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import math
 
-from ._results import text_table
+from ._results import csv_safe, text_table
 
 
 def _reported(row, sheet_rec) -> str:
@@ -144,7 +144,7 @@ def plan_csv(plan) -> str:
     w.writerow(["scenario", "effect", "design_effect", "target_power", "n_per_group", "n_total",
                 "achieved_power", "n_total_recruit"])
     for r in plan.rows:
-        w.writerow([_csv_safe(r.scenario), repr(r.effect), repr(r.design_effect), r.power,
+        w.writerow([csv_safe(r.scenario), repr(r.effect), repr(r.design_effect), r.power,
                     *[v if not hasattr(v, "reason") else f"not estimable: {v.reason}"
                       for v in (r.n_per_group, r.n_total, r.achieved_power, r.n_total_recruit)]])
     return buf.getvalue()
@@ -159,11 +159,6 @@ def plan_markdown(plan) -> str:
     lines = ["| " + " | ".join(headers) + " |", "|" + "---|" * len(headers)]
     lines += ["| " + " | ".join(esc(c) for c in r) + " |" for r in rows]
     return "\n".join(lines)
-
-
-def _csv_safe(text: str) -> str:
-    """Neutralise spreadsheet formula injection in a text cell."""
-    return "'" + text if text[:1] in ("=", "+", "-", "@") else text
 
 
 # ------------------------------------------------------------------ pooling
@@ -182,7 +177,8 @@ def pooled_text(res, eff) -> str:
     from .pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
     sym = "g" if res.metric == "g" else "z"
     lvl = f"{100 * res.level:g}%"
-    out = [f"{eff.file}: k = {res.k} independent samples ({eff.n_used} rows used, "
+    from pathlib import Path
+    out = [f"{Path(eff.file).name}: k = {res.k} independent samples ({eff.n_used} rows used, "
            f"{eff.n_excluded} excluded); metric {eff.metric_label}"]
     if res.metric == "z":
         out.append("  estimates on the Fisher z scale; r = tanh(z) in brackets")
@@ -307,4 +303,21 @@ def scenarios_text(scen) -> str:
                     f"{100 * a.share_80:.0f}% of studies at 80% or more"]
         out.append(text_table(["study", "power", "how"],
                               [[r.label, r.power, r.how] for r in a.rows], digits=2))
+    return "\n".join(out)
+
+
+def run_summary_text(run, paths) -> str:
+    """The compact summary that ``pooler run`` and ``pooler demo`` print."""
+    a = run.analysis
+    head = pooled_text(a.pooled, a.effects).split("\n\nStudies:")[0]
+    scen = scenarios_text(a.scenarios)
+    scen_short, _, audit = scen.partition("\n\nLiterature audit")
+    audit_line = ("Literature audit" + audit.split("\n")[0]) if audit else ""
+    out = [head, "", bias_text(a.bias, a.scenarios), "", scen_short]
+    if audit_line:
+        out.append(audit_line)
+    out += ["", plan_text(run.plan)]
+    if paths:
+        folder = paths[0].parent
+        out += ["", f"Written to {folder}/: " + ", ".join(p.name for p in paths)]
     return "\n".join(out)

@@ -292,7 +292,8 @@ def make_scenarios(effects, pooled, bias, *, adjuster="default", safeguard_level
     realistic = Scenario("realistic", float(est), float(se), basis)
 
     pess = est - z * se
-    pbasis = f"lower limit of a {100 * safeguard_level:g}% safeguard interval around the realistic"
+    pbasis = (f"lower limit of a {100 * safeguard_level:g}% safeguard interval around the "
+              "realistic estimate")
     if sesoi_m is not None and pess < sesoi_m:
         pess = sesoi_m
         pbasis += "; raised to the smallest effect size of interest"

@@ -1,0 +1,427 @@
+"""The written report: one structure of blocks rendered to Markdown and to self-contained HTML.
+
+Both renderings come from the same blocks, so every number in ``report.md`` is the number
+in ``report.html``, and both are formatted from the result objects that ``results.json``
+serialises. No statistics are computed here.
+"""
+from __future__ import annotations
+
+import base64
+import html
+import math
+import re
+from dataclasses import dataclass
+
+from ._results import NotEstimable, estimable, fmt
+
+CAUTION = (
+    "This report is a planning aid. It does not replace a statistician, an ethics board, or the "
+    "regulations that apply where the study will run; for clinical or safety-relevant studies "
+    "have the sample size reviewed by a qualified statistician before recruitment. The power "
+    "calculations assume the planned analysis and its assumptions hold: normally distributed "
+    "outcomes without floor or ceiling effects, the stated correlations, independent "
+    "observations and no missing data beyond the stated attrition. Real data usually fall "
+    "short of these, so real needs are higher. The bias adjustments are sensitivity analyses, "
+    "not corrections that recover the truth: each assumes a particular way in which studies "
+    "went missing."
+)
+
+
+@dataclass(frozen=True)
+class Block:
+    kind: str            # "h1", "h2", "p", "table", "list", "figure", "code", "key"
+    text: str = ""
+    headers: tuple = ()
+    rows: tuple = ()
+    items: tuple = ()
+    src: str = ""        # figure file name
+
+
+def md_escape(text: str) -> str:
+    """Escape user text for Markdown (and for the HTML many Markdown renderers allow)."""
+    text = str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+    return re.sub(r"([\\`*_\[\]|#!])", r"\\\1", text)
+
+
+def _cell(x) -> str:
+    if isinstance(x, NotEstimable):
+        return str(x)
+    return fmt(x)
+
+
+def _num(x, d=3) -> str:
+    if isinstance(x, NotEstimable) or x is None:
+        return str(x) if x is not None else ""
+    if isinstance(x, int):
+        return f"{x:,}"
+    return f"{x:.{d}f}"
+
+
+def _count(x: float) -> str:
+    return f"{int(x):,}" if float(x).is_integer() else f"{x:.1f}"
+
+
+def _ci(ci, d=3) -> str:
+    if ci is None or not estimable(ci):
+        return ""
+    return f"[{ci.low:.{d}f}, {ci.high:.{d}f}]"
+
+
+def _p(p) -> str:
+    return "p < .001" if p < 0.001 else f"p = {p:.3f}".replace("0.", ".", 1)
+
+
+# ------------------------------------------------------------------ building
+
+def build_blocks(run) -> list[Block]:
+    """The report, as blocks, from a :class:`pooler.pipeline.RunResult`."""
+    a, plan = run.analysis, run.plan
+    eff, pooled, bias, sc = a.effects, a.pooled, a.bias, a.scenarios
+    sym = "g" if pooled.metric == "g" else "z"
+    b: list[Block] = []
+    b.append(Block("h1", "Sample-size justification from prior studies"))
+    b.append(Block("p", (
+        f"This report turns the statistics reported by {eff.n_used + eff.n_excluded} results "
+        f"in {md_escape(a.sheet.name)} into a planning effect and a sample size for a "
+        f"{plan.design.describe()} study. It shows the literature as published, what the "
+        "bias adjustments make of it, three planning scenarios, and the sample size each "
+        "needs.")))
+    b.append(Block("h2", "Caution"))
+    b.append(Block("p", CAUTION))
+
+    b.append(Block("h2", "Key numbers"))
+    b.append(Block("key", headers=("quantity", "value"), rows=tuple(key_numbers(run))))
+
+    b.append(Block("h2", "Inputs"))
+    b.append(Block("list", items=(
+        f"file: {md_escape(a.sheet.name)}",
+        f"SHA-256: `{a.sheet.sha256}`",
+        f"rows read: {len(eff.rows)}; used: {eff.n_used}; excluded: {eff.n_excluded}; "
+        f"independent samples pooled: {eff.k}",
+    )))
+    excluded = [r for r in eff.rows if r.status == "excluded"]
+    if excluded:
+        b.append(Block("p", "Excluded rows:"))
+        b.append(Block("list", items=tuple(
+            f"row {r.row}, {md_escape(r.study)}: {md_escape(r.reason)}" for r in excluded)))
+    if eff.assumptions:
+        b.append(Block("p", "Assumptions made while converting:"))
+        b.append(Block("list", items=tuple(md_escape(x) for x in eff.assumptions)))
+    if eff.warnings:
+        b.append(Block("p", "Warnings:"))
+        b.append(Block("list", items=tuple(md_escape(w) for w in eff.warnings)))
+
+    b.append(Block("h2", "Conversions"))
+    rows = []
+    for r in eff.rows:
+        rows.append((r.row, md_escape(r.study), md_escape(r.stat or ""), r.design,
+                     _num(r.effect) if r.effect is not None else "",
+                     _num(r.se) if r.se is not None else "",
+                     "" if r.n_total is None else _count(r.n_total),
+                     r.status, md_escape(r.reason or "; ".join(r.notes))))
+    b.append(Block("table", headers=("row", "study", "reported", "design", sym, "SE", "n",
+                                      "status", "note"), rows=tuple(rows)))
+
+    b.append(Block("h2", "Pooled estimate"))
+    items = []
+    if estimable(pooled.pooled):
+        p = pooled.pooled
+        items.append(f"random effects: {sym} = {p.estimate:.3f} {_ci(p.ci)}, SE {p.se:.3f}, "
+                     f"{_p(p.p)} ({p.method})")
+    else:
+        items.append(f"random effects: {pooled.pooled}")
+    f = pooled.fixed
+    items.append(f"common effect: {sym} = {f.estimate:.3f} {_ci(f.ci)}")
+    h = pooled.heterogeneity
+    if estimable(h):
+        items.append(f"heterogeneity: tau^2 = {h.tau2:.4f} {_ci(h.tau2_ci, 4)}, tau = {h.tau:.3f}, "
+                     f"I^2 = {100 * h.i2:.1f}% [{100 * h.i2_ci.low:.1f}%, {100 * h.i2_ci.high:.1f}%], "
+                     f"Q({h.q_df}) = {h.q:.2f}, {_p(h.q_p)}")
+    pi = pooled.prediction
+    items.append("95% prediction interval for a new study: "
+                 + (_ci(pi) if estimable(pi) else str(pi)))
+    items += [md_escape(n) for n in pooled.notes]
+    b.append(Block("list", items=tuple(items)))
+    b.append(Block("figure", text="Forest plot: each study with its 95% CI (marker area by "
+                   "weight), the pooled estimates, the prediction interval, and the realistic "
+                   "and pessimistic planning effects.", src="forest"))
+    if isinstance(pooled.leave_one_out, tuple):
+        b.append(Block("p", "Leave one out:"))
+        b.append(Block("table", headers=("analysis", "k", sym, "95% CI", "tau^2"),
+                       rows=tuple((md_escape(r.label), r.k, _num(r.estimate),
+                                   f"[{r.ci_low:.3f}, {r.ci_high:.3f}]", _num(r.tau2, 4))
+                                  for r in pooled.leave_one_out)))
+    if pooled.subgroups is not None and estimable(pooled.subgroups):
+        s = pooled.subgroups
+        b.append(Block("p", f"Subgroups (separate tau^2): Q between = {s.q_between:.2f}, "
+                            f"df = {s.df}, {_p(s.p)}"))
+        b.append(Block("table", headers=("subgroup", "k", sym, "95% CI"),
+                       rows=tuple((md_escape(r.label), r.k, _num(r.estimate),
+                                   f"[{r.ci_low:.3f}, {r.ci_high:.3f}]") for r in s.rows)))
+
+    b.append(Block("h2", "Bias sensitivity"))
+    rows = []
+    for method, est, ci, note in bias.table():
+        rows.append((method, "" if est is None else (str(est) if isinstance(est, NotEstimable)
+                                                      else _num(est)),
+                     _ci(ci) if ci is not None else "",
+                     "" if isinstance(est, NotEstimable) else md_escape(note)))
+    b.append(Block("table", headers=("method", sym, "95% CI", "note"), rows=tuple(rows)))
+    sr = bias.selection_ratio
+    if estimable(sr):
+        b.append(Block("p", "Selection ratio (Mathur & VanderWeele 2020): "
+                       + "; ".join(f"eta = {e:g}: {m:.3f}" for e, m in zip(sr.eta, sr.estimates))
+                       + f"; worst case {_num(sr.worst_case)}; S-value {_num(sr.s_value, 2)}."))
+    tes = sc.excess_significance
+    if estimable(tes):
+        b.append(Block("p", f"Excess significance (Ioannidis & Trikalinos 2007): {tes.observed} "
+                            f"of {tes.k} studies significant, {tes.expected:.1f} expected at the "
+                            f"realistic effect; chi2(1) = {tes.chi2:.2f}, {_p(tes.p)}."))
+    b.append(Block("figure", text="Contour-enhanced funnel plot: shaded regions mark "
+                   "significance; hollow markers are studies imputed by trim-and-fill.",
+                   src="funnel"))
+    b.append(Block("figure", text="Every estimate on one axis.", src="ladder"))
+
+    b.append(Block("h2", "Planning scenarios"))
+    b.append(Block("table", headers=("scenario", sym, "basis"),
+                   rows=tuple((s.name, _num(s.effect), md_escape(s.basis))
+                              for s in (sc.optimistic, sc.realistic, sc.pessimistic))))
+    b.append(Block("p", md_escape(sc.verdict)))
+    au = sc.audit
+    if estimable(au):
+        b.append(Block("p", f"Literature audit: at the realistic effect the prior studies had a "
+                            f"median power of {au.median:.2f}; {100 * au.share_80:.0f}% had 80% "
+                            "or more."))
+
+    b.append(Block("h2", "Planning table"))
+    from .report import plan_table
+    headers, prow = plan_table(plan)
+    b.append(Block("table", headers=tuple(headers),
+                   rows=tuple(tuple(_cell(c) for c in r) for r in prow)))
+    tails = "two-tailed" if plan.tails == 2 else "one-tailed"
+    b.append(Block("p", f"{tails.capitalize()} test, alpha = {plan.alpha:g}"
+                        + (f", attrition {100 * plan.attrition:g}%" if plan.attrition else "")
+                        + f"; design: {plan.design.describe()}."))
+    asr = plan.assurance
+    if asr is not None:
+        if estimable(asr):
+            b.append(Block("p", f"Assurance over Normal({asr.mean:.3f}, {asr.sd:.3f}^2) "
+                                f"(ceiling {asr.ceiling:.3f}):"))
+            arows, why = [], []
+            for t, n, nt, ach in zip(asr.targets, asr.n, asr.n_total, asr.achieved):
+                if isinstance(n, NotEstimable):
+                    arows.append((f"{100 * t:g}%", "cannot be reached", "", ""))
+                    why.append(n.reason)
+                else:
+                    arows.append((f"{100 * t:g}%", _cell(n), _cell(nt), _cell(ach)))
+            b.append(Block("table", headers=("target assurance", "n", "total", "assurance"),
+                           rows=tuple(arows)))
+            for w in dict.fromkeys(why):
+                b.append(Block("p", md_escape(w[0].upper() + w[1:]) + "."))
+        else:
+            b.append(Block("p", f"Assurance: {asr}"))
+    fx = plan.fixed_n
+    if fx is not None:
+        b.append(Block("p", f"With a fixed total N = {fx.n_total}:"))
+        b.append(Block("table", headers=("scenario", "power"),
+                       rows=tuple((s, _num(pw)) for s, _, pw in fx.power)))
+        b.append(Block("table", headers=("target power", f"smallest {plan.design.effect_label}"),
+                       rows=tuple((f"{100 * t:g}%", _cell(de)) for t, de, _ in fx.detectable)))
+    b.append(Block("figure", text="Power against total N for each scenario, with the "
+                   "assurance curve.", src="power"))
+
+    b.append(Block("h2", "Methods paragraph"))
+    b.append(Block("p", methods_paragraph(run)))
+
+    b.append(Block("h2", "Reproducibility"))
+    b.append(Block("list", items=(f"pooler version {run.version}",
+                                  "options: " + md_escape(", ".join(
+                                      f"{k} = {v}" for k, v in sorted(_flat(run.options).items()))))))
+    b.append(Block("code", text=run.command))
+    return b
+
+
+def _flat(options: dict) -> dict:
+    out = {}
+    for k, v in options.items():
+        if isinstance(v, dict):
+            out.update({f"{k}.{kk}": vv for kk, vv in v.items()})
+        else:
+            out[k] = v
+    return out
+
+
+def key_numbers(run) -> list[tuple[str, str]]:
+    """Labelled numbers that tests parse back and compare with results.json."""
+    a, plan = run.analysis, run.plan
+    pooled, sc = a.pooled, a.scenarios
+    out = [("k (independent samples)", str(pooled.k))]
+    if estimable(pooled.pooled):
+        out += [("random-effects estimate", _num(pooled.pooled.estimate)),
+                ("random-effects CI low", _num(pooled.pooled.ci.low)),
+                ("random-effects CI high", _num(pooled.pooled.ci.high))]
+    if estimable(pooled.heterogeneity):
+        out += [("tau^2", _num(pooled.heterogeneity.tau2, 4)),
+                ("I^2", _num(pooled.heterogeneity.i2))]
+    out += [("optimistic effect", _num(sc.optimistic.effect)),
+            ("realistic effect", _num(sc.realistic.effect)),
+            ("pessimistic effect", _num(sc.pessimistic.effect))]
+    for r in plan.rows:
+        out.append((f"{r.scenario} n total at {100 * r.power:g}% power", _cell(r.n_total)))
+    return out
+
+
+def methods_paragraph(run) -> str:
+    """A methods-section paragraph in our own words, every number filled in."""
+    a, plan = run.analysis, run.plan
+    eff, pooled, bias, sc = a.effects, a.pooled, a.bias, a.scenarios
+    from .pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
+    metric = "Hedges' g" if pooled.metric == "g" else "Fisher's z-transformed correlations"
+    sym = "g" if pooled.metric == "g" else "z"
+    txt = [f"To justify the sample size we meta-analysed {eff.k} independent samples "
+           f"({eff.n_used} reported results; {eff.n_excluded} excluded with reasons) from prior "
+           f"studies, converted to {metric} (Hedges, 1981; Borenstein et al., 2009)"
+           + (", putting within-subject results on the between-subject scale (Morris & DeShon, "
+              "2002)" if any(u.design == "within" for u in eff.units) else "") + "."]
+    if estimable(pooled.pooled):
+        p = pooled.pooled
+        txt.append(f"A random-effects model ({ESTIMATOR_NAMES[pooled.estimator]} estimate of "
+                   f"tau^2; {INTERVAL_NAMES[pooled.interval]} confidence interval; Hartung & "
+                   f"Knapp, 2001) gave {sym} = {p.estimate:.2f}, 95% CI {_ci(p.ci, 2)}")
+        h = pooled.heterogeneity
+        if estimable(h):
+            txt[-1] += f", with tau^2 = {h.tau2:.3f} and I^2 = {100 * h.i2:.0f}% (Higgins & Thompson, 2002)"
+        if estimable(pooled.prediction):
+            txt[-1] += (f"; the 95% prediction interval for the true effect of a new study was "
+                        f"{_ci(pooled.prediction, 2)} (Higgins et al., 2009)")
+        txt[-1] += "."
+    methods = []
+    if estimable(bias.egger):
+        methods.append("Egger's regression test (Egger et al., 1997)")
+    if estimable(bias.pet_peese):
+        methods.append("PET-PEESE (Stanley & Doucouliagos, 2014)")
+    if estimable(bias.trim_and_fill):
+        methods.append("trim-and-fill (Duval & Tweedie, 2000)")
+    if estimable(bias.selection_3psm):
+        methods.append("a three-parameter selection model (Vevea & Hedges, 1995)")
+    if estimable(bias.waap_wls):
+        methods.append("WAAP-WLS (Stanley et al., 2017)")
+    if methods:
+        txt.append("Because published effects are inflated by publication bias and low power, "
+                   "we assessed small-study effects and selection with "
+                   + _join(methods) + ".")
+    r, ps = sc.realistic, sc.pessimistic
+    txt.append(f"We planned on a realistic effect of {sym} = {r.effect:.2f} ({r.basis}) "
+               f"rather than the published estimate of {sc.optimistic.effect:.2f}, and checked "
+               f"a pessimistic value of {ps.effect:.2f}, the {ps.basis} (Perugini et al., 2014).")
+    first = plan.powers[0]
+    row = plan.row("realistic", first)
+    pes = plan.row("pessimistic", first)
+    tails = "two-tailed" if plan.tails == 2 else "one-tailed"
+    if isinstance(row.n_total, int):
+        unit = ("per group" if plan.design.name in ("two-group", "ancova") else
+                "per cell" if plan.design.name == "interaction-2x2" else "")
+        n_txt = (f"{row.n_per_group} {unit} ({row.n_total} in total)" if unit
+                 else f"N = {row.n_total}")
+        s = (f"For a {tails} test at alpha = {plan.alpha:g} with {100 * first:g}% power, the "
+             f"planned {plan.design.describe()} study needs {n_txt}, computed with exact "
+             "noncentral distributions")
+        s = s.replace(" (allocation n2/n1 = 1)", "")
+        if plan.attrition:
+            s += (f"; allowing for {100 * plan.attrition:g}% attrition we will recruit "
+                  f"{row.n_total_recruit}")
+        s += "."
+        if isinstance(pes.n_total, int):
+            s += f" Under the pessimistic effect, N = {pes.n_total:,} would be needed."
+        txt.append(s)
+    else:
+        txt.append(f"No sample size reaches {100 * first:g}% power for the realistic effect: "
+                   f"{row.n_total.reason}.")
+    asr = plan.assurance
+    if asr is not None and estimable(asr) and isinstance(asr.n[0], int):
+        txt.append(f"Allowing for uncertainty in the true effect, N = {asr.n_total[0]:,} gives an "
+                   f"assurance (expected power) of {100 * asr.targets[0]:g}% (O'Hagan et al., "
+                   "2005).")
+    return " ".join(txt)
+
+
+def _join(items):
+    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + " and " + items[-1]
+
+
+# ------------------------------------------------------------------ rendering
+
+def to_markdown(blocks, figure_ext: str) -> str:
+    out = []
+    for b in blocks:
+        if b.kind == "h1":
+            out.append(f"# {b.text}\n")
+        elif b.kind == "h2":
+            out.append(f"## {b.text}\n")
+        elif b.kind == "p":
+            out.append(b.text + "\n")
+        elif b.kind == "list":
+            out.append("\n".join(f"- {i}" for i in b.items) + "\n")
+        elif b.kind in ("table", "key"):
+            out.append("| " + " | ".join(b.headers) + " |")
+            out.append("|" + "---|" * len(b.headers))
+            out += ["| " + " | ".join(str(c) for c in r) + " |" for r in b.rows]
+            out.append("")
+        elif b.kind == "figure":
+            out.append(f"![{b.text}]({b.src}.{figure_ext})\n")
+            out.append(f"*{b.text}*\n")
+        elif b.kind == "code":
+            out.append("```\n" + b.text + "\n```\n")
+    return "\n".join(out)
+
+
+_CSS = """body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;max-width:58rem;
+margin:2rem auto;padding:0 1rem;line-height:1.45;color:#1d1d1d}h1{font-size:1.6rem}
+h2{font-size:1.2rem;border-bottom:1px solid #ddd;padding-bottom:.2rem;margin-top:2rem}
+table{border-collapse:collapse;font-size:.85rem;margin:.6rem 0}td,th{padding:.2rem .5rem;
+border-bottom:1px solid #eee;text-align:left}th{background:#f4f4f4}
+figure{margin:1rem 0}figure img{max-width:100%}figcaption{font-size:.85rem;color:#555}
+code,pre{background:#f6f6f6;padding:.1rem .3rem}pre{padding:.6rem;overflow-x:auto}"""
+
+
+def _inline_md(text: str) -> str:
+    """The few Markdown constructs our blocks use, to HTML (text is already entity-escaped
+    by :func:`md_escape` where it is user text)."""
+    text = re.sub(r"`([^`]*)`", r"<code>\1</code>", text)
+    text = re.sub(r"\\([\\`*_\[\]|#!])", r"\1", text)
+    return text
+
+
+def to_html(blocks, figures_png: dict[str, bytes], title: str) -> str:
+    out = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
+           f"<title>{html.escape(title)}</title>", f"<style>{_CSS}</style></head><body>"]
+    for b in blocks:
+        if b.kind == "h1":
+            out.append(f"<h1>{html.escape(b.text)}</h1>")
+        elif b.kind == "h2":
+            out.append(f"<h2>{html.escape(b.text)}</h2>")
+        elif b.kind == "p":
+            out.append(f"<p>{_inline_md(_safe(b.text))}</p>")
+        elif b.kind == "list":
+            out.append("<ul>" + "".join(f"<li>{_inline_md(_safe(i))}</li>" for i in b.items)
+                       + "</ul>")
+        elif b.kind in ("table", "key"):
+            head = "".join(f"<th>{html.escape(h)}</th>" for h in b.headers)
+            body = "".join("<tr>" + "".join(f"<td>{_inline_md(_safe(str(c)))}</td>" for c in r)
+                           + "</tr>" for r in b.rows)
+            out.append(f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
+        elif b.kind == "figure":
+            data = base64.b64encode(figures_png[b.src]).decode("ascii")
+            out.append(f'<figure><img alt="{html.escape(b.text)}" '
+                       f'src="data:image/png;base64,{data}"><figcaption>'
+                       f"{html.escape(b.text)}</figcaption></figure>")
+        elif b.kind == "code":
+            out.append(f"<pre><code>{html.escape(b.text)}</code></pre>")
+    out.append("</body></html>")
+    return "\n".join(out)
+
+
+def _safe(text: str) -> str:
+    """User text in blocks is already entity-escaped by :func:`md_escape`; escape the '<' and
+    '>' of our own words (as in "p < .001") so that nothing can open a tag."""
+    return text.replace("<", "&lt;").replace(">", "&gt;")

@@ -1,0 +1,100 @@
+"""Files of a full run: rendered in memory first, then written atomically.
+
+Nothing is written until every file has been rendered, so a failure leaves no partial
+output; each file is written to a temporary name in the target folder and renamed.
+"""
+from __future__ import annotations
+
+import csv
+import io
+import json
+import os
+import tempfile
+from pathlib import Path
+
+from ._results import csv_safe
+from .errors import OptionError
+
+FIGURES = ("forest", "funnel", "ladder", "power")
+
+
+def effects_csv(effects) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    extra = list(dict.fromkeys(k for r in effects.rows for k in r.extra))
+    w.writerow(["row", "study", "stat", "design", "effect", "variance", "se", "ci_low",
+                "ci_high", "n_total", "n1", "n2", "sample", "status", "reason", "notes"] + extra)
+    for r in effects.rows:
+        ci = r.ci()
+        w.writerow([r.row, csv_safe(r.study), r.stat, r.design,
+                    *[("" if x is None else repr(float(x))) for x in
+                      (r.effect, r.variance, r.se, ci.low if ci else None,
+                       ci.high if ci else None, r.n_total, r.n1, r.n2)],
+                    csv_safe(r.sample or ""), r.status, csv_safe(r.reason),
+                    csv_safe("; ".join(r.notes))] + [csv_safe(r.extra.get(k, "")) for k in extra])
+    return buf.getvalue()
+
+
+def render(run, fmt: str = "png") -> dict[str, bytes]:
+    """Every output file of ``run`` as name -> bytes."""
+    from . import plots
+    from .document import build_blocks, to_html, to_markdown
+    from .report import plan_csv
+    if fmt not in ("png", "svg", "pdf"):
+        raise OptionError(f"--format must be png, svg or pdf, not {fmt!r}")
+    a = run.analysis
+    figs = {"forest": plots.forest_plot(a.pooled, a.scenarios),
+            "funnel": plots.funnel_plot(a.pooled, a.bias),
+            "ladder": plots.estimate_ladder(a.pooled, a.bias, a.scenarios),
+            "power": plots.power_curves(run.plan)}
+    files: dict[str, bytes] = {}
+    png: dict[str, bytes] = {}
+    for name, fig in figs.items():
+        buf = io.BytesIO()
+        plots.save(fig, buf, fmt)
+        files[f"{name}.{fmt}"] = buf.getvalue()
+        if fmt == "png":
+            png[name] = files[f"{name}.{fmt}"]
+        else:
+            b2 = io.BytesIO()
+            plots.save(fig, b2, "png")
+            png[name] = b2.getvalue()
+    blocks = build_blocks(run)
+    files["report.md"] = to_markdown(blocks, fmt).encode("utf-8")
+    files["report.html"] = to_html(blocks, png, "pooler report").encode("utf-8")
+    files["results.json"] = (json.dumps(run.to_dict(), indent=2, ensure_ascii=False,
+                                        allow_nan=False) + "\n").encode("utf-8")
+    files["planning_table.csv"] = plan_csv(run.plan).encode("utf-8")
+    files["effects.csv"] = effects_csv(a.effects).encode("utf-8")
+    return files
+
+
+def write(files: dict[str, bytes], out_dir, force: bool = False) -> list[Path]:
+    """Write ``files`` into ``out_dir`` atomically; refuse a non-empty folder without force."""
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise OptionError(f"--out {out} is a file, not a folder")
+    if out.exists() and any(out.iterdir()) and not force:
+        raise OptionError(f"--out {out} is not empty; choose another folder or add --force")
+    out.mkdir(parents=True, exist_ok=True)
+    written = []
+    for name, data in files.items():
+        target = out / name
+        fd, tmp = tempfile.mkstemp(prefix=f".{name}.", dir=out)
+        try:
+            with os.fdopen(fd, "wb") as fh:
+                fh.write(data)
+            os.chmod(tmp, 0o666 & ~_umask())
+            os.replace(tmp, target)
+        except BaseException:
+            if os.path.exists(tmp):
+                os.unlink(tmp)
+            raise
+        written.append(target)
+    return written
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask

@@ -1,0 +1,246 @@
+"""Figures: forest, contour-enhanced funnel, estimate ladder, power curves.
+
+Each function builds and returns a :class:`matplotlib.figure.Figure` (no pyplot, no global
+state); the caller saves it. matplotlib is imported inside the functions.
+
+Palette: the colour-blind-safe set of Okabe & Ito (2008), used sparingly.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ._results import estimable
+
+BLUE, ORANGE, VERMILION, GREEN, SKY, PURPLE, GREY = (
+    "#0072B2", "#E69F00", "#D55E00", "#009E73", "#56B4E9", "#CC79A7", "#6b6b6b")
+SCENARIO_COLOURS = {"optimistic": SKY, "realistic": BLUE, "pessimistic": VERMILION,
+                    "assurance": PURPLE}
+WIDTH = 6.3  # inches: a thesis page's text width
+
+
+def _figure(height):
+    from matplotlib.figure import Figure
+    fig = Figure(figsize=(WIDTH, height), layout="constrained")
+    return fig, fig.add_subplot()
+
+
+def _style(ax):
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+    ax.tick_params(labelsize=8)
+
+
+def _short(label: str, n: int = 34) -> str:
+    return label if len(label) <= n else label[: n - 1] + "…"
+
+
+def _scale_label(metric: str) -> str:
+    return "Hedges' g" if metric == "g" else "Fisher's z"
+
+
+def forest_plot(pooled, scenarios=None, *, ax=None):
+    """Forest plot: every study with its 95 % CI (marker area by random-effects weight),
+    the common and random-effects estimates, the prediction interval drawn as a band, and
+    the realistic and pessimistic planning effects as vertical lines.
+
+    The y tick labels are the study labels followed by the summary rows (tests rely on it).
+    """
+    from matplotlib.patches import Polygon
+    k = pooled.k
+    fig = None
+    if ax is None:
+        fig, ax = _figure(max(2.8, 0.24 * (k + 4) + 1.0))
+    else:
+        fig = ax.figure
+    y = np.array(pooled.effects)
+    se = np.sqrt(np.array(pooled.variances))
+    w = np.array(pooled.weights)
+    rows = np.arange(k)[::-1] + 3
+    ax.hlines(rows, y - 1.96 * se, y + 1.96 * se, color=GREY, lw=1)
+    ax.scatter(y, rows, s=20 + 400 * w / w.max() * 0.5, marker="s", color=BLUE, zorder=3,
+               edgecolor="white", linewidth=0.5)
+    labels = [_short(l) for l in pooled.labels]
+    summary = []
+
+    def diamond(center, lo, hi, row, colour):
+        ax.add_patch(Polygon([(lo, row), (center, row + 0.3), (hi, row), (center, row - 0.3)],
+                             closed=True, color=colour, zorder=3))
+    f = pooled.fixed
+    diamond(f.estimate, f.ci.low, f.ci.high, 1, GREY)
+    summary.append((1, "Common effect"))
+    if estimable(pooled.pooled):
+        p = pooled.pooled
+        if estimable(pooled.prediction):
+            ax.fill_between([pooled.prediction.low, pooled.prediction.high], -0.12, 0.12,
+                            color=ORANGE, alpha=0.45, lw=0, zorder=2)
+            ax.plot([], [], color=ORANGE, alpha=0.45, lw=6, label="95% prediction interval")
+        diamond(p.estimate, p.ci.low, p.ci.high, 0, BLUE)
+        summary.append((0, "Random effects"))
+    ax.axvline(0, color="black", lw=0.7)
+    if scenarios is not None:
+        for s, style in ((scenarios.realistic, "--"), (scenarios.pessimistic, ":")):
+            ax.axvline(s.effect, color=SCENARIO_COLOURS[s.name], ls=style, lw=1.2,
+                       label=f"{s.name} planning effect ({s.effect:.2f})")
+    ticks = list(rows) + [r for r, _ in summary]
+    ax.set_yticks(ticks, labels + [lab for _, lab in summary], fontsize=7.5)
+    ax.set_ylim(-0.8, k + 3.6)
+    ax.set_xlabel(f"{_scale_label(pooled.metric)} with 95% CI")
+    ax.set_title("Prior studies and the pooled estimate", fontsize=10, loc="left")
+    _style(ax)
+    ax.spines["left"].set_visible(False)
+    ax.tick_params(axis="y", length=0)
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(fontsize=7, frameon=False, loc="upper right", bbox_to_anchor=(1, 1.0))
+    return fig
+
+
+def funnel_plot(pooled, bias, *, ax=None):
+    """Contour-enhanced funnel plot (Peters et al. 2008): shaded regions where a study is
+    significant at two-sided p < .10, .05 and .01; studies imputed by trim-and-fill drawn
+    hollow; the PET or PEESE line chosen by PET-PEESE."""
+    fig = None
+    if ax is None:
+        fig, ax = _figure(4.6)
+    else:
+        fig = ax.figure
+    y = np.array(pooled.effects)
+    se = np.sqrt(np.array(pooled.variances))
+    top = se.max() * 1.08
+    s_grid = np.linspace(0, top, 100)
+    span = max(np.abs(y).max() * 1.15, 1.96 * top * 1.05)
+    shades = [(1.645, "#ececec", ".05 < p < .10"), (1.96, "#d4d4d4", ".01 < p < .05"),
+              (2.576, "#b8b8b8", "p < .01")]
+    for z, colour, lab in shades:
+        for sign in (1, -1):
+            ax.fill_betweenx(s_grid, sign * z * s_grid, sign * span, color=colour, lw=0,
+                             label=lab if sign == 1 else None)
+    ax.scatter(y, se, s=18, color=BLUE, zorder=3, label="studies")
+    tf = bias.trim_and_fill
+    if estimable(tf) and tf.k0:
+        ax.scatter(tf.filled_effects, np.sqrt(tf.filled_variances), s=18, facecolor="white",
+                   edgecolor=VERMILION, zorder=3, label=f"imputed by trim-and-fill ({tf.k0})")
+    pp = bias.pet_peese
+    if estimable(pp):
+        reg = bias.pet if pp.chosen == "PET" else bias.peese
+        x = reg.estimate + reg.slope * (s_grid if pp.chosen == "PET" else s_grid ** 2)
+        ax.plot(x, s_grid, color=GREEN, lw=1.4, label=f"{pp.chosen} line")
+    ax.axvline(pooled.mu, color=BLUE, lw=0.8, ls="--", label="random-effects estimate")
+    ax.axvline(0, color="black", lw=0.6)
+    ax.set_xlim(-span, span)
+    ax.set_ylim(top, 0)
+    ax.set_xlabel(_scale_label(pooled.metric))
+    ax.set_ylabel("standard error")
+    ax.set_title("Funnel plot with significance contours", fontsize=10, loc="left")
+    _style(ax)
+    ax.legend(fontsize=6.5, frameon=False, loc="upper center", bbox_to_anchor=(0.5, -0.13),
+              ncol=4)
+    return fig
+
+
+def ladder_rows(pooled, bias, scenarios):
+    """(label, estimate, low, high, group) rows of the estimate ladder."""
+    rows = []
+    if estimable(pooled.pooled):
+        p = pooled.pooled
+        rows.append(("as published (random effects)", p.estimate, p.ci.low, p.ci.high, "pooled"))
+    f = pooled.fixed
+    rows.append(("common effect", f.estimate, f.ci.low, f.ci.high, "pooled"))
+    for name, res in (("PET", bias.pet), ("PEESE", bias.peese), ("PET-PEESE", bias.pet_peese),
+                      ("trim-and-fill", bias.trim_and_fill),
+                      ("selection model", bias.selection_3psm), ("WAAP-WLS", bias.waap_wls)):
+        if estimable(res):
+            ci = getattr(res, "ci", None)
+            lo, hi = (ci.low, ci.high) if ci is not None and estimable(ci) else (None, None)
+            rows.append((name, res.estimate, lo, hi, "adjusted"))
+    sr = bias.selection_ratio
+    if estimable(sr) and estimable(sr.worst_case):
+        rows.append(("worst-case selection", sr.worst_case, None, None, "adjusted"))
+    if scenarios is not None:
+        for s in (scenarios.optimistic, scenarios.realistic, scenarios.pessimistic):
+            rows.append((f"{s.name} scenario", s.effect, None, None, s.name))
+    return rows
+
+
+def estimate_ladder(pooled, bias, scenarios=None, *, ax=None):
+    """Every estimate on one axis: as published, each adjuster, and the scenarios."""
+    rows = ladder_rows(pooled, bias, scenarios)
+    fig = None
+    if ax is None:
+        fig, ax = _figure(0.3 * len(rows) + 1.2)
+    else:
+        fig = ax.figure
+    colours = {"pooled": GREY, "adjusted": GREEN, **SCENARIO_COLOURS}
+    pos = np.arange(len(rows))[::-1]
+    for p, (lab, est, lo, hi, grp) in zip(pos, rows):
+        c = colours.get(grp, GREY)
+        if lo is not None:
+            ax.hlines(p, lo, hi, color=c, lw=1.2)
+        ax.plot(est, p, "o" if grp in ("pooled", "adjusted") else "D", color=c, ms=5)
+    ax.axvline(0, color="black", lw=0.6)
+    ax.set_yticks(pos, [r[0] for r in rows], fontsize=7.5)
+    ax.set_xlabel(f"{_scale_label(pooled.metric)} (95% CI where available)")
+    ax.set_title("What the evidence supports: every estimate", fontsize=10, loc="left")
+    _style(ax)
+    ax.tick_params(axis="y", length=0)
+    return fig
+
+
+def power_curves(plan, *, ax=None, n_max=None):
+    """Power against total N for each scenario, the target-power lines, the assurance curve
+    (when a predictive distribution is known), and the n chosen at the first target power
+    for the realistic scenario marked."""
+    from .power import assurance, power_at, to_design_effect
+    from .planning import per_group
+    des = plan.design
+    fig = None
+    if ax is None:
+        fig, ax = _figure(3.8)
+    else:
+        fig = ax.figure
+    ns = [r.n_total for r in plan.rows if isinstance(r.n_total, int)]
+    top = n_max or int(min(max(ns) * 1.3 if ns else 200, 50_000))
+    totals = np.unique(np.linspace(max(des.n_min * 2, 4), max(top, 10), 300).astype(int))
+    per = np.array([per_group(int(t), des) for t in totals])
+    ok = per >= des.n_min
+    totals, per = totals[ok], per[ok]
+    for s in plan.scenarios:
+        d = float(to_design_effect(s.effect, plan.metric, des))
+        if d <= 0:
+            continue
+        pw = power_at(d, per, des, plan.alpha, plan.alternative)
+        ax.plot(totals, pw, color=SCENARIO_COLOURS.get(s.scenario, BLUE), lw=1.6,
+                label=f"{s.scenario} ({plan.effect_label} = {s.effect:.2f})")
+    a = plan.assurance
+    if a is not None and estimable(a):
+        asr = assurance(a.mean, a.sd, per, des, plan.alpha, plan.alternative, a.metric)
+        ax.plot(totals, asr, color=PURPLE, lw=1.4, ls="--", label="assurance (realistic)")
+    for p in plan.powers:
+        ax.axhline(p, color=GREY, lw=0.6, ls=":")
+    chosen = next((r for r in plan.rows if r.scenario == "realistic" and
+                   isinstance(r.n_total, int)), None) or next(
+        (r for r in plan.rows if isinstance(r.n_total, int)), None)
+    if chosen is not None:
+        ax.plot(chosen.n_total, chosen.achieved_power, "o", color="black", ms=5, zorder=4)
+        ax.annotate(f"N = {chosen.n_total}", (chosen.n_total, chosen.achieved_power),
+                    xytext=(6, -12), textcoords="offset points", fontsize=7.5)
+    ax.set_ylim(0, 1.02)
+    ax.set_xlim(0, totals.max())
+    ax.set_xlabel("total sample size N")
+    ax.set_ylabel("power")
+    tails = "two-tailed" if plan.tails == 2 else "one-tailed"
+    ax.set_title(f"Power of the planned {des.name} study ({tails}, alpha = {plan.alpha:g})",
+                 fontsize=10, loc="left")
+    _style(ax)
+    ax.legend(fontsize=7, frameon=False, loc="lower right")
+    return fig
+
+
+def save(fig, path, fmt: str) -> None:
+    """Save ``fig`` reproducibly (no dates or random ids in SVG/PDF/PNG metadata)."""
+    import matplotlib
+    meta = {"svg": {"Date": None}, "pdf": {"CreationDate": None, "ModDate": None},
+            "png": {"Software": None}}[fmt]
+    with matplotlib.rc_context({"svg.hashsalt": "pooler", "svg.fonttype": "path"}):
+        fig.savefig(path, format=fmt, metadata=meta, dpi=200 if fmt == "png" else None)

@@ -1,0 +1,178 @@
+"""The whole job: `pooler run` / `pooler demo`, the files they write, plots and report."""
+from __future__ import annotations
+
+import json
+import re
+
+import pytest
+
+EXPECTED = {"report.md", "report.html", "results.json", "planning_table.csv", "effects.csv"}
+FIGS = ("forest", "funnel", "ladder", "power")
+
+
+@pytest.fixture(scope="module")
+def demo_run(tmp_path_factory):
+    from click.testing import CliRunner
+    from pooler.cli import main
+    out = tmp_path_factory.mktemp("demo") / "out"
+    res = CliRunner().invoke(main, ["demo", "--out", str(out), "--n", "200", "--attrition",
+                                    "0.1"], catch_exceptions=False)
+    return res, out
+
+
+def test_demo_writes_everything(demo_run):
+    res, out = demo_run
+    assert res.exit_code == 0, res.output
+    names = {p.name for p in out.iterdir()}
+    assert EXPECTED | {f"{f}.png" for f in FIGS} <= names
+    assert all((out / n).stat().st_size > 0 for n in names)
+    for text in ("Random effects", "Bias-sensitivity suite", "Planning scenarios",
+                 "Planning table", "With a fixed total N = 200", "Written to"):
+        assert text in res.stdout
+
+
+def test_results_json_contract(demo_run):
+    _, out = demo_run
+    doc = json.loads((out / "results.json").read_text())
+    assert doc["schema"] == "pooler.run/1"
+    assert doc["pool"]["schema"] == "pooler.pool/1" and doc["plan"]["schema"] == "pooler.plan/1"
+    inp = doc["inputs"]
+    assert {"file", "sha256", "rows_used", "rows_excluded"} <= set(inp)
+    assert inp["rows_used"] + inp["rows_excluded"] == inp["rows_read"] == len(doc["pool"]["rows"])
+    assert doc["plan"]["fixed_n"]["n_total"] == 200
+    assert {"options", "command"} <= set(doc)
+
+
+def _key_numbers(md: str) -> dict[str, str]:
+    section = md.split("## Key numbers", 1)[1].split("\n## ", 1)[0]
+    rows = {}
+    for line in section.splitlines():
+        m = re.match(r"^\| (.+?) \| (.+?) \|$", line)
+        if m and m.group(1) not in ("quantity", "---"):
+            rows[m.group(1)] = m.group(2)
+    return rows
+
+
+def test_report_numbers_equal_results_json(demo_run):
+    _, out = demo_run
+    md = (out / "report.md").read_text()
+    doc = json.loads((out / "results.json").read_text())
+    key = _key_numbers(md)
+    pool, plan = doc["pool"], doc["plan"]
+    assert int(key["k (independent samples)"]) == pool["k"]
+    assert float(key["random-effects estimate"]) == round(pool["pooled"]["estimate"], 3)
+    assert float(key["random-effects CI low"]) == round(pool["pooled"]["ci_low"], 3)
+    assert float(key["tau^2"]) == round(pool["heterogeneity"]["tau2"], 4)
+    assert float(key["I^2"]) == round(pool["heterogeneity"]["i2"], 3)
+    for s in ("optimistic", "realistic", "pessimistic"):
+        assert float(key[f"{s} effect"]) == round(pool["scenarios"][s]["effect"], 3)
+    for row in plan["rows"]:
+        label = f"{row['scenario']} n total at {100 * row['power']:g}% power"
+        assert int(key[label].replace(",", "")) == row["n_total"]
+    # the methods paragraph carries the realistic n at the first target power
+    first = next(r for r in plan["rows"] if r["scenario"] == "realistic")
+    para = md.split("## Methods paragraph", 1)[1]
+    assert f"{first['n_per_group']} per group ({first['n_total']} in total)" in para
+
+
+def test_every_input_row_in_report(demo_run, demo_path):
+    _, out = demo_run
+    md = (out / "report.md").read_text()
+    from pooler import read_sheet
+    from pooler.document import md_escape
+    table = md.split("## Conversions", 1)[1].split("\n## ", 1)[0]
+    for rec in read_sheet(demo_path).records:
+        assert f"| {rec.row} | {md_escape(rec.study)} |" in table
+
+
+def test_report_has_caution_methods_and_reproducibility(demo_run):
+    _, out = demo_run
+    md = (out / "report.md").read_text()
+    for heading in ("## Caution", "## Methods paragraph", "## Reproducibility", "## Inputs"):
+        assert heading in md
+    assert "not replace a statistician, an ethics board" in md
+    assert "pooler demo --attrition 0.1 --n 200" in md
+    html = (out / "report.html").read_text()
+    assert "data:image/png;base64," in html
+    assert not re.search(r'(src|href)="(https?:)?//', html)   # self-contained
+
+
+def test_special_characters_are_escaped(tmp_path, write_sheet, run_cli):
+    rows = [{"study": "<script>alert(1)</script> | *bold* [x](y)", "stat": "t", "value": 2.1,
+             "n1": 20, "n2": 20, "year": 2010},
+            {"study": "=HYPERLINK(\"x\")", "stat": "t", "value": 1.1, "n1": 30, "n2": 30,
+             "year": 2011},
+            {"study": "Plain & simple", "stat": "d", "value": 0.4, "n1": 25, "n2": 25,
+             "year": 2012}]
+    path = write_sheet(rows)
+    out = tmp_path / "o"
+    res = run_cli("run", path, "--out", out)
+    assert res.exit_code == 0, res.output
+    html = (out / "report.html").read_text()
+    assert "<script>" not in html and "&lt;script&gt;" in html
+    md = (out / "report.md").read_text()
+    assert "<script>" not in md and "\\|" in md and "\\*bold\\*" in md
+    csv_text = (out / "effects.csv").read_text()
+    assert "'=HYPERLINK" in csv_text
+
+
+@pytest.mark.parametrize("fmt", ["png", "svg", "pdf"])
+def test_figures_in_each_format(tmp_path, run_cli, demo_path, fmt):
+    out = tmp_path / fmt
+    res = run_cli("run", demo_path, "--out", out, "--format", fmt)
+    assert res.exit_code == 0
+    magic = {"png": b"\x89PNG", "svg": b"<?xml", "pdf": b"%PDF"}[fmt]
+    for f in FIGS:
+        data = (out / f"{f}.{fmt}").read_bytes()
+        assert data.startswith(magic) and len(data) > 1000
+
+
+def test_forest_plot_has_one_row_per_study_plus_summaries(demo_path):
+    from pooler.pipeline import analyse
+    from pooler.plots import forest_plot
+    a = analyse(demo_path)
+    fig = forest_plot(a.pooled, a.scenarios)
+    ax = fig.axes[0]
+    labels = [t.get_text() for t in ax.get_yticklabels()]
+    assert len(labels) == a.pooled.k + 2
+    assert labels[-2:] == ["Common effect", "Random effects"]
+    lines = {ln.get_label() for ln in ax.get_lines()}
+    assert any("realistic" in s for s in lines) and any("pessimistic" in s for s in lines)
+
+
+@pytest.mark.filterwarnings("error")
+def test_demo_raises_no_warnings(tmp_path):
+    from pooler.cli import main
+    from click.testing import CliRunner
+    res = CliRunner().invoke(main, ["demo", "--out", str(tmp_path / "w")],
+                             catch_exceptions=False)
+    assert res.exit_code == 0
+
+
+def test_existing_out_needs_force(tmp_path, run_cli):
+    out = tmp_path / "full"
+    out.mkdir()
+    (out / "keep.txt").write_text("mine")
+    res = run_cli("demo", "--out", out)
+    assert res.exit_code == 2 and "--force" in res.stderr
+    assert {p.name for p in out.iterdir()} == {"keep.txt"}
+    assert run_cli("demo", "--out", out, "--force").exit_code == 0
+
+
+def test_bad_input_writes_nothing(tmp_path, write_sheet, run_cli):
+    path = write_sheet([{"study": "A", "stat": "t", "value": "2.1*", "n1": 20, "n2": 20}])
+    out = tmp_path / "none"
+    res = run_cli("run", path, "--out", out)
+    assert res.exit_code == 2 and "significance stars" in res.stderr
+    assert not out.exists()
+
+
+def test_two_runs_are_byte_identical(tmp_path, run_cli, demo_path):
+    outs = []
+    for i in range(2):
+        out = tmp_path / f"r{i}"
+        assert run_cli("run", demo_path, "--out", out, "--format", "svg").exit_code == 0
+        outs.append(out)
+    for name in ("results.json", "planning_table.csv", "effects.csv", "report.md",
+                 "forest.svg", "funnel.svg", "ladder.svg", "power.svg"):
+        assert (outs[0] / name).read_bytes() == (outs[1] / name).read_bytes(), name
