@@ -211,7 +211,16 @@ def _t_power(ncp, df, alpha, alternative, upper_only=False):
     if alternative == "two-sided":
         c = sp.stdtrit(df, 1 - alpha / 2)
         upper = 1 - _nct_cdf(df, ncp, c)
-        return upper if upper_only else upper + _nct_cdf(df, ncp, -c)
+        if upper_only:
+            return upper
+        # P(T < -c) <= P(T < 0) = Phi(-ncp) < 1e-15 for ncp >= 8: computed only below that
+        ncp_b, df_b, c_b = np.broadcast_arrays(np.asarray(ncp, float), np.asarray(df, float),
+                                               np.asarray(c, float))
+        lower = np.zeros(ncp_b.shape)
+        m = ncp_b < 8
+        if m.any():
+            lower[m] = _nct_cdf(df_b[m], ncp_b[m], -c_b[m])
+        return upper + (lower if lower.ndim else float(lower))
     c = sp.stdtrit(df, 1 - alpha)
     return 1 - _nct_cdf(df, ncp, c)
 
@@ -341,15 +350,25 @@ class SampleSize:
                             "reason": self.reason.tolist()})
 
 
-def _int_search(fn, target, n_min, valid, n_max=N_MAX):
+def _int_search(fn, target, n_min, valid, n_max=N_MAX, guess=None):
     """Smallest integer n ≥ n_min with fn(n) ≥ target, for every cell at once.
 
-    fn must be non-decreasing in n. Brackets by doubling, then bisects; every cell
-    moves together, so a grid costs ~2 log2(n) vectorised calls.
+    fn must be non-decreasing in n. With a ``guess`` (e.g. the normal approximation) the
+    search first tries the bracket [0.99 guess - 2, 1.01 guess + 3] and falls back per cell;
+    then it brackets by doubling and bisects. Every cell moves together, so a grid costs a
+    handful of vectorised calls.
     """
     shape = np.shape(target)
     lo = np.full(shape, n_min - 1, dtype=np.int64)        # fn(lo) < target (by convention)
     hi = np.full(shape, n_min, dtype=np.int64)
+    if guess is not None:
+        g = np.where(valid & np.isfinite(guess), guess, n_min)
+        g = np.clip(g, n_min, n_max)
+        glo = np.clip(np.floor(0.99 * g - 2), n_min, n_max).astype(np.int64)
+        ghi = np.clip(np.ceil(1.01 * g + 3), n_min, n_max).astype(np.int64)
+        below = np.where(valid, fn(glo), 1.0) < target
+        lo = np.where(below, glo, lo)
+        hi = np.where(below, np.maximum(ghi, glo + 1), hi)
     active = valid.copy()
     done = np.zeros(shape, bool)
     while active.any():
@@ -371,6 +390,25 @@ def _int_search(fn, target, n_min, valid, n_max=N_MAX):
         hi = np.where(gap & ok, mid, hi)
         lo = np.where(gap & ~ok, mid, lo)
     return np.where(reach, hi, 0), reach
+
+
+def _normal_guess(e, target, alpha, alternative, des):
+    """Normal-approximation n, only to bracket the exact search (Cohen 1988, ch. 2-3), with
+    Guenther's (1981) t correction (+ z²/4 per group, + z²/2 for one sample)."""
+    za = sp.ndtri(1 - (alpha / 2 if alternative == "two-sided" else alpha))
+    z = (za + sp.ndtri(target)) ** 2
+    name = des.name
+    if name == "two-group":
+        return z / e ** 2 * (1 + des.ratio) / des.ratio + za ** 2 / 4
+    if name == "ancova":
+        return z / e ** 2 * (1 + des.ratio) / des.ratio * (1 - des.covariate_r ** 2) + za ** 2 / 4
+    if name in ("paired", "one-sample"):
+        return z / e ** 2 + za ** 2 / 2
+    if name == "interaction-2x2":
+        return 4 * z / (e * des.attenuation) ** 2
+    if name == "correlation":
+        return z / np.arctanh(e) ** 2 + 3
+    return z / np.abs(e) + des.predictors_total + 1
 
 
 def n_for_power(effect, target=0.8, design="two-group", alpha=0.05,
@@ -401,7 +439,9 @@ def n_for_power(effect, target=0.8, design="two-group", alpha=0.05,
 
     def fn(n):
         return power_at(e, n, des, alpha, alternative)
-    n, reach = _int_search(fn, target, des.n_min, valid)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        guess = _normal_guess(e, target, alpha, alternative, des)
+    n, reach = _int_search(fn, target, des.n_min, valid, guess=guess)
     power = np.where(reach, power_at(e, np.maximum(n, des.n_min), des, alpha, alternative), np.nan)
     reason = np.full(e.shape, "", dtype=object)
     reason[~positive] = "the effect is zero or goes against the hypothesis: no n reaches the power"
