@@ -53,13 +53,17 @@ class Regression:
                             "slope": self.slope, "df": self.df})
 
 
-def _fit_line(x, y, weights=None, level=0.95) -> Regression:
+def _fit_line(x, y, weights=None, level=0.95) -> Regression | NotEstimable:
     from scipy import stats
     from statsmodels.regression.linear_model import OLS, WLS
     X = np.column_stack([np.ones_like(x), x])
     model = OLS(y, X) if weights is None else WLS(y, X, weights=weights)
-    fit = model.fit()
-    b0, se0 = float(fit.params[0]), float(fit.bse[0])
+    with np.errstate(all="ignore"):
+        fit = model.fit()
+        b0, se0 = float(fit.params[0]), float(fit.bse[0])
+    if not (math.isfinite(b0) and math.isfinite(se0) and se0 > 0):
+        return NotEstimable("the regression line fits the studies exactly (no residual "
+                            "variation), so it has no standard error")
     df = int(fit.df_resid)
     t = stats.t.ppf(0.5 + level / 2, df)
     return Regression(b0, se0, Interval(b0 - t * se0, b0 + t * se0, level),

@@ -602,11 +602,9 @@ def _from_odds_ratio(ctx: _Ctx, rec: Record) -> _Raw:
     notes = ["SE of ln(OR) from the 95% CI"]
     log_or = math.log(o) * _sign(ctx, rec, 1.0, required=False)
     n1, n2 = rec.get("n1"), rec.get("n2")
-    if n1 is not None and n2 is not None:
-        n1 = ctx.positive(rec, "n1", "")
-        n2 = ctx.positive(rec, "n2", "")
-    else:
-        n1 = n2 = None
+    if (n1 is None) != (n2 is None):
+        missing = "n2" if n2 is None else "n1"
+        raise ctx.err(rec, missing, f"'{missing}' is empty; give both group sizes or neither")
     return _log_or_raw(ctx, rec, log_or, se * se, n1, n2, notes)
 
 

@@ -88,8 +88,8 @@ class Design:
         # validation
         if self.name not in DESIGNS:
             raise OptionError(f"`design` must be one of {', '.join(DESIGNS)}, not {self.name!r}")
-        if not (0 < self.ratio <= 100):
-            raise OptionError(f"`ratio` (n2/n1) must be in (0, 100], not {self.ratio!r}")
+        if not (0 < self.ratio < math.inf):
+            raise OptionError(f"`ratio` (n2/n1) must be a positive number, not {self.ratio!r}")
         if not -1 < self.planned_r < 1:
             raise OptionError(f"`planned_r` must lie strictly between -1 and 1, not {self.planned_r!r}")
         if not -1 < self.covariate_r < 1:

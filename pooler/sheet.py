@@ -193,6 +193,9 @@ def _read_text(data: bytes, name: str, suffix: str, notes: list[str]):
     if not data.strip():
         raise InputError("the file is empty; it needs a header row and at least one data row",
                          file=name)
+    if data[:2] in (b"\xff\xfe", b"\xfe\xff"):
+        raise InputError("the file is UTF-16 text; save it as 'CSV UTF-8' in your spreadsheet "
+                         "program", file=name)
     if b"\x00" in data[:4096]:
         raise InputError("this is not a text sheet (binary content); "
                          "save it as .csv or .xlsx", file=name)
@@ -239,6 +242,12 @@ def _read_xlsx(data: bytes, name: str, notes: list[str]):
         raise InputError(f"not a readable .xlsx workbook ({type(exc).__name__}); "
                          "re-save it from your spreadsheet program", file=name) from None
     ws = wb.worksheets[0]
+    if len(wb.worksheets) > 1 and ws.max_row <= 1 and ws.max_column <= 1 and ws.cell(1, 1).value is None:
+        others = [w.title for w in wb.worksheets[1:] if w.max_row > 1 or w.cell(1, 1).value]
+        if others:
+            raise InputError(f"the first worksheet ('{ws.title}') is empty; pooler reads only the "
+                             f"first worksheet, so move the data from '{others[0]}' to the front",
+                             file=name)
     if len(wb.worksheets) > 1:
         notes.append(f"workbook has {len(wb.worksheets)} sheets; read the first, '{ws.title}'")
     if ws.merged_cells.ranges:
@@ -363,6 +372,12 @@ def _validate(name, digest, head, body, notes) -> Sheet:
             if v is not None and not math.isfinite(v):
                 raise InputError(f"'{v}' is not a finite number", file=name, row=rownum,
                                  column=seen.get(key, key))
+        for key in ("n1", "n2", "n", "df", "df1", "sd1", "sd2", "events1", "events2"):
+            v = values[key]
+            if v is not None and (v < 0 or (v == 0 and key in ("n1", "n2", "n", "df", "df1"))):
+                raise InputError(f"{key} = {v:g} is impossible; it must be "
+                                 f"{'positive' if key in ('n1', 'n2', 'n', 'df', 'df1') else 'zero or more'}",
+                                 file=name, row=rownum, column=seen.get(key, key))
         records.append(Record(row=rownum, values=values, extra=extra))
     return Sheet(path=name, sha256=digest, columns=tuple(header), records=tuple(records),
                  notes=tuple(notes))
