@@ -196,14 +196,38 @@ def from_design_effect(x, metric: str, design) -> np.ndarray:
 # ------------------------------------------------------------------ power
 
 def _nct_cdf(df, ncp, x):
-    """``scipy.special.nctdtr`` with its NaNs replaced by the normal limit.
+    """CDF of the noncentral t, ``scipy.special.nctdtr``, made safe at the extremes.
 
-    scipy 1.17.1 returns NaN for some far-tail values (tiny probabilities, or df in the
-    millions). There the noncentral t is Normal(λ, 1) to many digits (df → ∞ limit), and
-    the probabilities involved are far below what a power table shows.
+    - For |λ| ≥ 40, where the answer is 0 or 1 to double precision, it is set from a
+      rigorous bound instead of calling nctdtr (which can take seconds per value there, seen
+      with scipy 1.17.1): T = (Z + λ)/S with S² ~ χ²(df)/df, so for λ > 0,
+      P(T ≤ x) ≤ Φ(-λ) when x ≤ 0, and ≤ Φ(-λ/2) + P(χ²(df) ≥ df (λ / 2x)²) when x > 0;
+      the mirror image holds for λ < 0.
+    - NaNs that nctdtr returns for some far-tail values (tiny probabilities, df in the
+      millions) are replaced by the normal limit, Normal(λ, 1).
     """
-    v = sp.nctdtr(df, ncp, x)
-    return np.where(np.isnan(v), sp.ndtr(x - np.asarray(ncp)), v)
+    df, ncp, x = np.broadcast_arrays(np.asarray(df, float), np.asarray(ncp, float),
+                                     np.asarray(x, float))
+    out = np.full(ncp.shape, np.nan)
+    big = np.abs(ncp) >= 40
+    if big.any():
+        a = np.abs(ncp[big])
+        xs = np.where(ncp[big] > 0, x[big], -x[big])  # mirror λ < 0 onto λ > 0
+        with np.errstate(divide="ignore", invalid="ignore"):
+            chi_tail = np.where(xs > 0, sp.chdtrc(df[big], df[big] * (a / (2 * xs)) ** 2), 0.0)
+        bound = np.where(xs <= 0, sp.ndtr(-a), sp.ndtr(-a / 2) + chi_tail)
+        tiny = bound < 1e-16
+        vals = np.where(ncp[big] > 0, 0.0, 1.0)
+        sub = out[big]
+        sub[tiny] = vals[tiny]
+        out[big] = sub
+    todo = np.isnan(out)
+    if todo.any():
+        out[todo] = sp.nctdtr(df[todo], ncp[todo], x[todo])
+    bad = np.isnan(out)
+    if bad.any():
+        out[bad] = sp.ndtr(x[bad] - ncp[bad])
+    return out if out.ndim else float(out)
 
 
 def _t_power(ncp, df, alpha, alternative, upper_only=False):

@@ -326,3 +326,18 @@ def test_plan_rejects_bad_options():
         make_plan([PlanningEffect("a", 0.5)], powers=(1.2,))
     with pytest.raises(OptionError, match="design"):
         Design("three-group")
+
+
+def test_noncentral_t_far_tail_bounds():
+    # |lambda| >= 40: set from the bound T = (Z + lambda)/S (see pooler.power._nct_cdf);
+    # compare with scipy.stats.nct where it is quick, and check the limits
+    from pooler.power import _nct_cdf
+    for df, ncp, x in [(10, 45.0, 2.0), (3, 41.0, -2.0), (50, -60.0, 1.98), (200, -45.0, -2.5)]:
+        assert_allclose(_nct_cdf(df, ncp, x), stats.nct.cdf(x, df, ncp), atol=1e-15)
+    assert float(_nct_cdf(78, 6e4, 1.99)) == 0.0
+    assert float(_nct_cdf(78, -6e4, 1.99)) == 1.0
+    # two-sided power of a huge effect in either direction is 1; the upper tail alone of a
+    # huge negative effect is 0
+    assert float(power_at(3000.0, 40)) == 1.0
+    assert float(power_at(-3000.0, 40)) == 1.0
+    assert float(power_at(-3000.0, 40, upper_only=True)) == 0.0
