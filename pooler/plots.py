@@ -244,3 +244,39 @@ def save(fig, path, fmt: str) -> None:
             "png": {"Software": None}}[fmt]
     with matplotlib.rc_context({"svg.hashsalt": "pooler", "svg.fonttype": "path"}):
         fig.savefig(path, format=fmt, metadata=meta, dpi=200 if fmt == "png" else None)
+
+
+def stress_plot(res, *, ax=None):
+    """Median true power (marker) and its 10th percentile (line end) of the n each planning
+    rule recommends, per simulation cell, with the target power drawn."""
+    from .simulate import RULES
+    colours = {"random effects": SKY, "median of adjusters": GREEN, "realistic": BLUE,
+               "pessimistic": VERMILION}
+    fig = None
+    if ax is None:
+        fig, ax = _figure(3.8)
+    else:
+        fig = ax.figure
+    cells = res.cells
+    offs = np.linspace(-0.27, 0.27, len(RULES))
+    for off, rule in zip(offs, RULES):
+        xs, med, p10 = [], [], []
+        for i, c in enumerate(cells):
+            a = c.true_power[rule]
+            ok = a[np.isfinite(a)]
+            if ok.size:
+                xs.append(i + off)
+                med.append(np.median(ok))
+                p10.append(np.quantile(ok, 0.1))
+        ax.vlines(xs, p10, med, color=colours[rule], lw=1)
+        ax.plot(xs, med, "o", color=colours[rule], ms=4, label=rule)
+    ax.axhline(res.power, color=GREY, ls=":", lw=0.8)
+    ax.set_xticks(range(len(cells)),
+                  [f"δ={c.cell.delta:g}\nπ={c.cell.pi:g}" for c in cells], fontsize=6.5)
+    ax.set_ylim(0, 1.02)
+    ax.set_ylabel("true power of the recommended n")
+    ax.set_title("How often would the recommended n really reach its power?", fontsize=10,
+                 loc="left")
+    _style(ax)
+    ax.legend(fontsize=7, frameon=False, loc="lower left", ncol=2)
+    return fig

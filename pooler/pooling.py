@@ -430,7 +430,8 @@ def _r_scale(res: PooledResult) -> dict:
     return out
 
 
-def pool(effects, estimator="reml", interval="hksj", level=0.95) -> PooledResult:
+def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
+         influence=True) -> PooledResult:
     """Pool the independent units of an :class:`pooler.effects.Effects`.
 
     Parameters
@@ -441,6 +442,9 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95) -> PooledResult
     interval : {"hksj", "wald"}
     level : float
         Confidence level of every interval.
+    influence : bool
+        Compute the leave-one-out, cumulative and subgroup tables (the simulation stage
+        turns them off; they are then "not estimable: not requested").
 
     Returns
     -------
@@ -506,6 +510,11 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95) -> PooledResult
     weights = tuple(float(x) for x in fit.weights / fit.weights.sum())
 
     loo: tuple | NotEstimable
+    if not influence:
+        skip = NotEstimable("not requested")
+        return PooledResult(effects.metric, k, estimator, interval, level, pooled, fixed, het,
+                            pred, fit.tau2_fit, labels, tuple(float(x) for x in y),
+                            tuple(float(x) for x in v), weights, skip, skip, None, tuple(notes))
     if k >= 3:
         idx = np.arange(k)
         loo = tuple(_row(f"without {labels[i]}", y[idx != i], v[idx != i], estimator, interval,

@@ -321,3 +321,39 @@ def run_summary_text(run, paths) -> str:
         folder = paths[0].parent
         out += ["", f"Written to {folder}/: " + ", ".join(p.name for p in paths)]
     return "\n".join(out)
+
+
+# ------------------------------------------------------------------ stress test
+
+def stress_text(res) -> str:
+    """What ``pooler stress`` prints: true power per planning rule, estimator bias and RMSE."""
+    from .simulate import ESTIMATORS, RULES
+    out = [f"Stress test: {res.reps} simulated literatures per cell ({res.shapes}); "
+           f"n planned for {100 * res.power:g}% power, {res.design}; seed {res.seed}",
+           "True power reached by the n each rule recommends: median (10th percentile); "
+           "'none' = share of literatures with no positive planning effect", ""]
+    heads = ["k", "delta", "tau", "pi"] + list(RULES)
+    rows = []
+    for c in res.cells:
+        s = c.summary()
+        line = [c.cell.k, c.cell.delta, c.cell.tau, c.cell.pi]
+        for r in RULES:
+            v = s["rules"][r]
+            cell = ("-" if v["median_power"] is None else
+                    f"{v['median_power']:.2f} ({v['p10_power']:.2f})")
+            if v["share_no_positive_effect"]:
+                cell += f" none {100 * v['share_no_positive_effect']:.0f}%"
+            line.append(cell)
+        rows.append(line)
+    out.append(text_table(heads, rows, digits=2))
+    out += ["", "Bias / RMSE of each estimator against the true mean effect:"]
+    rows = []
+    for c in res.cells:
+        s = c.summary()
+        line = [c.cell.k, c.cell.delta, c.cell.tau, c.cell.pi]
+        for e in ESTIMATORS:
+            v = s["estimators"][e]
+            line.append("-" if v["bias"] is None else f"{v['bias']:+.3f} / {v['rmse']:.3f}")
+        rows.append(line)
+    out.append(text_table(["k", "delta", "tau", "pi"] + list(ESTIMATORS), rows, digits=2))
+    return "\n".join(out)

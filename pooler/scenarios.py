@@ -6,8 +6,9 @@ The default rule (DEVELOPERS.md, "The planning-effect rule"):
 - realistic = the three-parameter selection model's estimate when the model is identified
   (k ≥ 20, ≥ 3 significant and ≥ 3 non-significant studies, ω not at a bound, the fit
   converged), never above the optimistic one; otherwise the safeguard lower limit of the
-  median of the bias-adjusted estimates that could be computed, with the median of their
-  SEs as its SE;
+  median of the selection-robust adjusted estimates that could be computed (the selection
+  model, if it could be fitted at all, and PET-PEESE), with the median of their SEs as its
+  SE (trim-and-fill and WAAP-WLS only when neither exists);
 - pessimistic = the lower limit of a two-sided safeguard interval (default 60 %) around the
   realistic estimate (Perugini, Gallucci & Costantini 2014), never below the smallest
   effect size of interest (SESOI) when one is given.
@@ -36,6 +37,8 @@ ADJUSTERS = ("default", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wl
 _ADJ_KEY = {"3psm": "selection model", "pet-peese": "PET-PEESE", "trim-and-fill": "trim-and-fill",
             "waap-wls": "WAAP-WLS"}
 MIN_K_SELECTION = 20
+#: Adjusters that correct under publication selection (used by the default fallback).
+ROBUST = ("selection model", "PET-PEESE")
 
 
 @dataclass(frozen=True)
@@ -124,7 +127,8 @@ class Scenarios:
         return "d" if self.metric == "g" else "r"
 
     def _plan_value(self, x: float) -> float:
-        return math.tanh(x) if self.metric == "z" else x
+        # r = tanh(z), kept inside (-1, 1): tanh rounds to ±1 beyond |z| ≈ 19
+        return max(-1 + 1e-9, min(1 - 1e-9, math.tanh(x))) if self.metric == "z" else x
 
     def planning_effects(self) -> list[PlanningEffect]:
         """The scenarios as planning effects on the planning metric (g, or r)."""
@@ -228,7 +232,7 @@ def make_scenarios(effects, pooled, bias, *, adjuster="default", safeguard_level
     bias : BiasResult
     adjuster : {"default", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls"}
         ``default`` is the rule above; ``median`` always uses the safeguard limit of the
-        median of the adjusted estimates; a method name plans on that adjuster alone.
+        median of all four adjusted estimates; a method name plans on that adjuster alone.
     safeguard_level : float
         Two-sided level of the safeguard interval (Perugini et al. 2014 use 0.60).
     sesoi : float or None
@@ -275,17 +279,27 @@ def make_scenarios(effects, pooled, bias, *, adjuster="default", safeguard_level
         basis = (f"selection model, {k} studies, {sm.k_nonsignificant} non-significant "
                  f"(omega = {sm.omega:.2f})")
     else:
-        if not adjusted:
+        # the fallback plans on the selection-robust adjusters only (the selection model, when
+        # it can be fitted at all, and PET-PEESE); trim-and-fill and WAAP-WLS barely correct
+        # under selection (see the calibration in the README) and are used only when neither
+        # of those can be computed; --adjuster median uses all four
+        robust = {kk: vv for kk, vv in adjusted.items() if kk in ROBUST}
+        pool_of = adjusted if adjuster == "median" or not robust else robust
+        if not pool_of:
             est, se = opt_est, opt_se
             basis = "no bias adjustment could be computed: the random-effects estimate"
         else:
-            est_med = statistics.median(e for e, _ in adjusted.values())
-            se = statistics.median(s for _, s in adjusted.values())
+            est_med = statistics.median(e for e, _ in pool_of.values())
+            se = statistics.median(s for _, s in pool_of.values())
             est = est_med - z * se
             lead = (f"{why_not}: " if adjuster == "default" and why_not else "")
+            what = (f"{len(pool_of)} adjusted estimates" if len(pool_of) > 1
+                    else "the adjusted estimate")
             basis = (f"{lead}safeguard limit ({100 * safeguard_level:g}%) of the median of "
-                     f"{len(adjusted)} adjusted estimates ({', '.join(adjusted)}; median "
-                     f"{sym} = {est_med:.3f})")
+                     f"{what} ({', '.join(pool_of)}; median {sym} = {est_med:.3f})"
+                     if len(pool_of) > 1 else
+                     f"{lead}safeguard limit ({100 * safeguard_level:g}%) of {what} "
+                     f"({', '.join(pool_of)}: {sym} = {est_med:.3f})")
     if est > opt_est:
         basis += "; capped at the optimistic estimate"
         est = opt_est

@@ -271,16 +271,27 @@ def test_scenarios_use_identified_selection_model():
     assert sc.optimistic.effect >= sc.realistic.effect >= sc.pessimistic.effect
 
 
-def test_scenarios_fall_back_to_median_safeguard_below_20_studies():
+def test_scenarios_fall_back_to_robust_median_safeguard_below_20_studies():
+    # default fallback: the safeguard limit (Perugini et al. 2014) of the median of the
+    # selection-robust adjusters (selection model, PET-PEESE)
     eff, pooled, bias = scenario_inputs(12, delta=0.3, publish_ns=0.3, seed=14)
     sc = make_scenarios(eff, pooled, bias)
-    adj = bias.adjusted()
+    adj = {k: v for k, v in bias.adjusted().items() if k in ("selection model", "PET-PEESE")}
+    assert len(adj) == 2
     med = np.median([e for e, _ in adj.values()])
     se = np.median([s for _, s in adj.values()])
     expect = min(med - stats.norm.ppf(0.8) * se, pooled.mu)
     assert "too few studies for a selection model" in sc.realistic.basis
-    assert f"median of {len(adj)} adjusted estimates" in sc.realistic.basis
+    assert "median of 2 adjusted estimates (selection model, PET-PEESE" in sc.realistic.basis
     assert_allclose(sc.realistic.effect, expect, rtol=1e-12)
+    # --adjuster median: all four adjusted estimates
+    allm = make_scenarios(eff, pooled, bias, adjuster="median")
+    a4 = bias.adjusted()
+    med4 = np.median([e for e, _ in a4.values()])
+    se4 = np.median([s for _, s in a4.values()])
+    assert_allclose(allm.realistic.effect, min(med4 - stats.norm.ppf(0.8) * se4, pooled.mu),
+                    rtol=1e-12)
+    assert "median of 4 adjusted estimates" in allm.realistic.basis
 
 
 def test_sesoi_floor_and_unsupported_verdict():
@@ -337,3 +348,13 @@ def test_plan_from_sheet(run_cli, demo_path):
     scen = [r["scenario"] for r in doc["rows"]]
     assert scen.count("realistic") == 3
     assert run_cli("plan").exit_code == 2
+
+
+def test_selection_gradient_matches_finite_differences():
+    from pooler.bias import selection_loglik_grad
+    from statsmodels.tools.numdiff import approx_fprime
+    y, v, _ = literature(30, seed=21, publish_ns=0.3)
+    for mu, tau2, omega in [(0.2, 0.02, 0.4), (0.0, 0.1, 1.5), (0.5, 0.001, 0.05)]:
+        f = lambda t: selection_loglik(t[0], t[1], math.exp(t[2]), y, v)  # noqa: E731
+        num = approx_fprime(np.array([mu, tau2, math.log(omega)]), f, centered=True)
+        assert_allclose(selection_loglik_grad(mu, tau2, omega, y, v), num, rtol=1e-5, atol=1e-6)

@@ -1,0 +1,319 @@
+"""Stage 7: stress-test the planning effect by simulating literatures like the user's.
+
+For each simulated literature the real pipeline runs (conversion-free: effects and variances
+directly): random-effects pooling, the bias suite, the planning scenarios; then the n each
+scenario recommends at the target power, and the *true* power of that n at the true mean
+effect δ (exact, from :mod:`pooler.power`). This measures, for a literature shaped like the
+user's, how often planning on each scenario would really reach its power.
+
+Studies are simulated from their exact sampling distribution: t = (Z + λ) / √(χ²_df / df)
+with λ from the study's true effect θ ~ Normal(δ, τ²) and its own n and design; a study is
+"published" when it is significant in the expected direction (two-sided α = .05) and
+otherwise with probability π.
+
+Seeds: every (cell, chunk) task gets its own child of ``numpy.random.SeedSequence(seed)``, so
+results are identical whatever the number of worker processes.
+"""
+from __future__ import annotations
+
+import math
+import statistics
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ._results import estimable, to_jsonable
+from .errors import OptionError
+
+#: Estimators whose bias and RMSE are reported.
+ESTIMATORS = ("random effects", "selection model", "PET-PEESE", "trim-and-fill", "WAAP-WLS",
+              "median of adjusters", "realistic", "pessimistic")
+#: Planning rules whose recommended n is evaluated.
+RULES = ("random effects", "median of adjusters", "realistic", "pessimistic")
+CHUNK = 20
+
+
+@dataclass(frozen=True)
+class Shapes:
+    """The study designs and sizes a literature is drawn from (resampled with replacement)."""
+
+    within: np.ndarray   # bool
+    n1: np.ndarray       # group sizes (between) or n (within, in n1)
+    n2: np.ndarray
+    r: np.ndarray        # correlation between repeated measures (within)
+    label: str = ""
+
+    @classmethod
+    def from_effects(cls, effects, default_r=0.5) -> "Shapes":
+        """The user's own literature: each independent sample's design and n."""
+        w, a, b, r = [], [], [], []
+        for u in effects.units:
+            if u.design == "within" and u.n_total:
+                w.append(True), a.append(u.n_total), b.append(u.n_total)
+                r.append(u.within_r if u.within_r is not None else default_r)
+            elif u.n1 and u.n2:
+                w.append(False), a.append(u.n1), b.append(u.n2), r.append(0.0)
+            elif u.n_total:
+                w.append(False), a.append(u.n_total / 2), b.append(u.n_total / 2), r.append(0.0)
+        if not w:
+            raise OptionError("no study in the sheet has a known sample size to simulate from")
+        return cls(np.array(w), np.array(a, float), np.array(b, float), np.array(r, float),
+                   f"the {len(w)} samples of {effects.file}")
+
+    @classmethod
+    def generic(cls, low=20, high=100, size=500, seed=0) -> "Shapes":
+        """Two-group studies with n per group uniform on [low, high] (small literatures)."""
+        rng = np.random.default_rng(seed)
+        n = rng.integers(low, high + 1, size).astype(float)
+        return cls(np.zeros(size, bool), n, n, np.zeros(size),
+                   f"two-group studies, {low}-{high} per group")
+
+
+@dataclass(frozen=True)
+class Cell:
+    """One condition of the simulation grid."""
+
+    k: int
+    delta: float
+    tau: float
+    pi: float
+
+    def describe(self) -> str:
+        return f"k={self.k} δ={self.delta:g} τ={self.tau:g} π={self.pi:g}"
+
+
+def simulate_literature(rng, cell: Cell, shapes: Shapes):
+    """One published literature of ``cell.k`` studies: (g, variance, shape index) arrays."""
+    from scipy.special import stdtrit
+    from .effects import hedges_j
+    ys, vs, idx = [], [], []
+    need = cell.k
+    for _ in range(10_000):
+        m = max(4 * need, 16)
+        i = rng.integers(0, len(shapes.n1), m)
+        within = shapes.within[i]
+        n1, n2, r = shapes.n1[i], shapes.n2[i], shapes.r[i]
+        theta = cell.delta + cell.tau * rng.standard_normal(m)
+        df = np.where(within, n1 - 1, n1 + n2 - 2)
+        lam = np.where(within, theta / np.sqrt(2 * (1 - r)) * np.sqrt(n1),
+                       theta * np.sqrt(n1 * n2 / (n1 + n2)))
+        t = (rng.standard_normal(m) + lam) / np.sqrt(rng.chisquare(df) / df)
+        sig = t > stdtrit(df, 0.975)
+        keep = sig | (rng.random(m) < cell.pi)
+        d = np.where(within, t / np.sqrt(n1) * np.sqrt(2 * (1 - r)), t * np.sqrt(1 / n1 + 1 / n2))
+        j = hedges_j(df)
+        vd = np.where(within, (1 / n1 + d * d / (2 * n1)) * 2 * (1 - r),    # Borenstein 4.28
+                      (n1 + n2) / (n1 * n2) + d * d / (2 * (n1 + n2)))       # Borenstein 4.20
+        sel = np.flatnonzero(keep)[:need]
+        ys.append(j[sel] * d[sel])
+        vs.append(j[sel] ** 2 * vd[sel])
+        idx.append(i[sel])
+        need -= len(sel)
+        if need == 0:
+            return np.concatenate(ys), np.concatenate(vs), np.concatenate(idx)
+    raise RuntimeError("selection so strong that no literature could be completed")
+
+
+def _effects_for(y, v, idx, shapes):
+    from .effects import Effects, Unit
+    units = tuple(Unit(label=f"sim{j}", effect=float(a), variance=float(b),
+                       n_total=float(shapes.n1[i] if shapes.within[i]
+                                     else shapes.n1[i] + shapes.n2[i]),
+                       n1=None if shapes.within[i] else float(shapes.n1[i]),
+                       n2=None if shapes.within[i] else float(shapes.n2[i]),
+                       design="within" if shapes.within[i] else "between", rows=(j + 2,),
+                       within_r=float(shapes.r[i]) if shapes.within[i] else None)
+                  for j, (a, b, i) in enumerate(zip(y, v, idx)))
+    return Effects(metric="g", rows=(), units=units, assumptions=(), warnings=(), file="simulated",
+                   sha256="", within_r=0.5, sample_r=0.5)
+
+
+def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0.8,
+                        alpha=0.05) -> tuple[dict, dict]:
+    """Run the pipeline on one literature: (estimates by estimator, true power by rule).
+
+    A rule whose planning effect is ≤ 0 recommends no study; its true power is NaN and is
+    counted as "no positive planning effect".
+    """
+    from .bias import bias_suite
+    from .pooling import pool
+    from .power import n_for_power, power_at
+    from .scenarios import make_scenarios
+    eff = _effects_for(y, v, idx, shapes)
+    pooled = pool(eff, influence=False)
+    bias = bias_suite(pooled)
+    sc = make_scenarios(eff, pooled, bias)
+    adj = bias.adjusted()
+    est = {"random effects": pooled.mu,
+           "selection model": adj.get("selection model", (math.nan,))[0],
+           "PET-PEESE": adj.get("PET-PEESE", (math.nan,))[0],
+           "trim-and-fill": adj.get("trim-and-fill", (math.nan,))[0],
+           "WAAP-WLS": adj.get("WAAP-WLS", (math.nan,))[0],
+           "median of adjusters": statistics.median(e for e, _ in adj.values()) if adj
+           else pooled.mu,
+           "realistic": sc.realistic.effect, "pessimistic": sc.pessimistic.effect}
+    plan_eff = np.array([est[r] for r in RULES])
+    res = n_for_power(np.where(plan_eff > 0, plan_eff, 0.0), power, design, alpha)
+    true = np.where(res.reachable, power_at(delta, np.maximum(res.n, 2), design, alpha), np.nan)
+    return est, dict(zip(RULES, (float(x) for x in true)))
+
+
+def _run_chunk(args):
+    cell, shapes, reps, seed_seq, design, power = args
+    rng = np.random.default_rng(seed_seq)
+    ests = {e: [] for e in ESTIMATORS}
+    pows = {r: [] for r in RULES}
+    for _ in range(reps):
+        y, v, idx = simulate_literature(rng, cell, shapes)
+        est, pw = evaluate_literature(y, v, idx, shapes, cell.delta, design=design, power=power)
+        for kname in ESTIMATORS:
+            ests[kname].append(est[kname])
+        for r in RULES:
+            pows[r].append(pw[r])
+    return ests, pows
+
+
+@dataclass(frozen=True)
+class CellResult:
+    """Every replication of one cell: estimates and the true power each rule's n reached."""
+
+    cell: Cell
+    estimates: dict = field(repr=False)   # estimator -> array
+    true_power: dict = field(repr=False)  # rule -> array (NaN: no positive planning effect)
+
+    @property
+    def reps(self) -> int:
+        return len(next(iter(self.true_power.values())))
+
+    def summary(self) -> dict:
+        out = {"cell": self.cell.__dict__, "reps": self.reps, "rules": {}, "estimators": {}}
+        for r, a in self.true_power.items():
+            ok = a[np.isfinite(a)]
+            out["rules"][r] = {
+                "median_power": float(np.median(ok)) if ok.size else None,
+                "p10_power": float(np.quantile(ok, 0.1)) if ok.size else None,
+                "share_no_positive_effect": float(np.mean(~np.isfinite(a)))}
+        for e, a in self.estimates.items():
+            ok = a[np.isfinite(a)]
+            out["estimators"][e] = {
+                "bias": float(np.mean(ok) - self.cell.delta) if ok.size else None,
+                "rmse": float(np.sqrt(np.mean((ok - self.cell.delta) ** 2))) if ok.size else None,
+                "share_not_estimable": float(np.mean(~np.isfinite(a)))}
+        return out
+
+
+@dataclass(frozen=True)
+class StressResult:
+    """A whole stress test: one CellResult per grid cell."""
+
+    cells: tuple[CellResult, ...]
+    reps: int
+    seed: int
+    shapes: str
+    design: str
+    power: float
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"schema": "pooler.stress/1", "reps": self.reps, "seed": self.seed,
+                            "shapes": self.shapes, "design": self.design, "power": self.power,
+                            "cells": [c.summary() for c in self.cells]})
+
+    def to_frame(self):
+        import pandas as pd
+        rows = []
+        for c in self.cells:
+            s = c.summary()
+            for r, v in s["rules"].items():
+                rows.append({**c.cell.__dict__, "rule": r, **v})
+        return pd.DataFrame(rows)
+
+
+def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design="two-group",
+                power=0.8, progress=None) -> StressResult:
+    """Simulate ``reps`` literatures in every cell and evaluate each planning rule.
+
+    Parameters
+    ----------
+    cells : sequence of Cell
+    shapes : Shapes
+        Study designs and sizes to draw from (:meth:`Shapes.from_effects` or
+        :meth:`Shapes.generic`).
+    reps : int
+        Literatures per cell.
+    seed : int
+    workers : int
+        Processes (1 = in this process). Results do not depend on it.
+    progress : callable(done, total) or None
+    """
+    # validation
+    if reps < 1:
+        raise OptionError(f"`reps` must be at least 1, not {reps!r}")
+    if workers < 1:
+        raise OptionError(f"`workers` must be at least 1, not {workers!r}")
+    cells = tuple(cells)
+    for c in cells:
+        if c.k < 2 or not 0 < c.pi <= 1 or c.tau < 0:
+            raise OptionError(f"bad simulation cell {c.describe()}")
+    root = np.random.SeedSequence(seed)
+    cell_seqs = root.spawn(len(cells))
+    tasks = []
+    for ci, (cell, cs) in enumerate(zip(cells, cell_seqs)):
+        n_chunks = math.ceil(reps / CHUNK)
+        for j, ss in enumerate(cs.spawn(n_chunks)):
+            size = min(CHUNK, reps - j * CHUNK)
+            tasks.append((ci, (cell, shapes, size, ss, design, power)))
+    results: dict[int, list] = {i: [None] * math.ceil(reps / CHUNK) for i in range(len(cells))}
+    order = {id(t[1]): (t[0], n) for n, t in enumerate(tasks)}
+    done = 0
+    if workers == 1:
+        for ci, args in tasks:
+            j = sum(1 for x in results[ci] if x is not None)
+            results[ci][j] = _run_chunk(args)
+            done += 1
+            if progress:
+                progress(done, len(tasks))
+    else:
+        from concurrent.futures import ProcessPoolExecutor
+        with ProcessPoolExecutor(max_workers=workers) as ex:
+            futs = {}
+            counters = {i: 0 for i in range(len(cells))}
+            for ci, args in tasks:
+                futs[ex.submit(_run_chunk, args)] = (ci, counters[ci])
+                counters[ci] += 1
+            from concurrent.futures import as_completed
+            for f in as_completed(futs):
+                ci, j = futs[f]
+                results[ci][j] = f.result()
+                done += 1
+                if progress:
+                    progress(done, len(tasks))
+    del order
+    out = []
+    for ci, cell in enumerate(cells):
+        ests = {e: np.concatenate([np.array(ch[0][e], float) for ch in results[ci]])
+                for e in ESTIMATORS}
+        pows = {r: np.concatenate([np.array(ch[1][r], float) for ch in results[ci]])
+                for r in RULES}
+        out.append(CellResult(cell, ests, pows))
+    return StressResult(tuple(out), reps, seed, shapes.label, str(design), power)
+
+
+def grid_around(analysis, scale=(0.5, 1.0, 1.5), pis=(1.0, 0.2, 0.05)) -> list[Cell]:
+    """A small grid around the user's realistic estimate: δ = scale × realistic (or 0.1,
+    0.2, 0.3 when the realistic effect is not positive), τ from the realistic basis, π from
+    no selection to strong selection, k = the user's number of samples."""
+    sc, bias, pooled = analysis.scenarios, analysis.bias, analysis.pooled
+    if analysis.pooled.metric != "g":
+        raise OptionError("the stress test simulates standardised mean differences: use --metric d")
+    r = sc.realistic.effect
+    deltas = [round(s * r, 3) for s in scale] if r > 0 else [0.1, 0.2, 0.3]
+    sm = bias.selection_3psm
+    tau2 = sm.tau2 if estimable(sm) and "selection model" in sc.realistic.basis else pooled.tau2
+    tau = round(math.sqrt(max(tau2, 0.0)), 3)
+    return [Cell(max(pooled.k, 2), d, tau, p) for d in deltas for p in pis]
+
+
+def calibration_grid() -> list[Cell]:
+    """The general calibration grid of the README (81 cells)."""
+    return [Cell(k, d, t, p) for k in (10, 20, 40) for d in (0.1, 0.2, 0.4)
+            for t in (0.0, 0.1, 0.2) for p in (1.0, 0.2, 0.05)]

@@ -1,0 +1,63 @@
+"""The stress-test stage: simulated literatures through the real pipeline.
+
+Checks: the random-effects estimate is unbiased without selection (standard result) and its
+n then reaches about 80 % median true power; under strong selection it is biased upward
+(Carter, Schönbrodt, Gervais & Hilgard 2019); seeded runs are exactly reproducible,
+whatever the number of worker processes.
+"""
+from __future__ import annotations
+
+import json
+
+import numpy as np
+
+from pooler.simulate import Cell, Shapes, simulate_literature, stress_test
+
+
+def test_simulated_studies_follow_their_sampling_distribution():
+    # no selection, tau = 0: g is (nearly) unbiased for delta and its variance matches the
+    # large-sample formula on average (Borenstein et al. 2009 eqs. 4.20, 4.24)
+    rng = np.random.default_rng(5)
+    sh = Shapes.generic(40, 40)
+    y, v, _ = simulate_literature(rng, Cell(4000, 0.4, 0.0, 1.0), sh)
+    assert abs(y.mean() - 0.4) < 3 * y.std() / np.sqrt(len(y)) + 0.005
+    assert abs(y.var() / v.mean() - 1) < 0.08
+
+
+def test_no_selection_random_effects_unbiased_and_near_80_percent():
+    res = stress_test([Cell(20, 0.4, 0.0, 1.0)], Shapes.generic(), reps=60, seed=11,
+                      workers=2)
+    c = res.cells[0]
+    re = c.estimates["random effects"]
+    assert abs(re.mean() - 0.4) < 3 * re.std() / np.sqrt(len(re))
+    med = float(np.nanmedian(c.true_power["random effects"]))
+    assert 0.70 <= med <= 0.90
+
+
+def test_strong_selection_inflates_the_naive_estimate():
+    res = stress_test([Cell(20, 0.2, 0.1, 0.05)], Shapes.generic(), reps=20, seed=12,
+                      workers=2)
+    c = res.cells[0]
+    assert c.estimates["random effects"].mean() > 0.2 + 0.1
+    # and planning on it gives far less than the promised 80 % power
+    assert float(np.nanmedian(c.true_power["random effects"])) < 0.6
+
+
+def test_seeded_runs_are_reproducible_across_worker_counts():
+    cells = [Cell(10, 0.3, 0.1, 0.2), Cell(10, 0.2, 0.0, 1.0)]
+    a = stress_test(cells, Shapes.generic(), reps=3, seed=7, workers=1)
+    b = stress_test(cells, Shapes.generic(), reps=3, seed=7, workers=2)
+    assert json.dumps(a.to_dict()) == json.dumps(b.to_dict())
+    c = stress_test(cells, Shapes.generic(), reps=3, seed=8, workers=1)
+    assert json.dumps(a.to_dict()) != json.dumps(c.to_dict())
+
+
+def test_stress_command_on_demo(run_cli, demo_path, tmp_path):
+    out = tmp_path / "s"
+    res = run_cli("stress", demo_path, "--reps", "2", "--workers", "1", "--out", out)
+    assert res.exit_code == 0, res.output
+    assert "True power reached" in res.stdout and "Bias / RMSE" in res.stdout
+    doc = json.loads((out / "stress.json").read_text())
+    assert doc["schema"] == "pooler.stress/1" and len(doc["cells"]) == 9
+    assert (out / "stress.png").stat().st_size > 1000
+    assert run_cli("stress").exit_code == 2
