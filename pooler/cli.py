@@ -253,11 +253,14 @@ def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_
                    "first --effect.")
 @_analysis_options
 @_planning_options
+@click.option("--table", "table_format", type=click.Choice(["text", "csv", "markdown"]),
+              default="text", show_default=True,
+              help="How to print the planning table (csv: one row per scenario x power).")
 @_json_option
 def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, interval, adjuster,
          safeguard_level, sesoi, design, alpha, tails, powers, attrition, n_total, ratio,
          planned_r, covariate_r, attenuation, predictors_added, predictors_total, exact_r,
-         as_json):
+         table_format, as_json):
     """Sample size for a planned study, from a SHEET of prior results or a given effect.
 
     From SHEET: the optimistic, realistic and pessimistic planning effects (as in
@@ -307,6 +310,11 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
                   n_total=n_total, effect_label=label)
     if as_json:
         _print_json(p.to_dict())
+    elif table_format != "text":
+        from .report import plan_csv, plan_markdown
+        click.echo(plan_csv(p) if table_format == "csv" else plan_markdown(p), nl=False)
+        if table_format == "markdown":
+            click.echo("")
     else:
         if analysis is not None:
             from .report import scenarios_text

@@ -59,3 +59,15 @@ def test_help_imports_no_numpy():
             "print('NUMPY', 'numpy' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert "NUMPY False" in out.stdout
+
+
+def test_plan_table_writers(run_cli):
+    import csv
+    import io
+    res = run_cli("plan", "--effect", "0.3", "--table", "csv")
+    rows = list(csv.DictReader(io.StringIO(res.stdout)))
+    assert len(rows) == 3 and rows[0]["n_per_group"] == "176" and rows[0]["n_total"] == "352"
+    md = run_cli("plan", "--effect", "0.3", "--table", "markdown").stdout
+    lines = md.strip().splitlines()
+    assert lines[0].startswith("| scenario |") and lines[1].startswith("|---|")
+    assert "| given | 0.300 | 0.300 | 176 | 352 |" in lines[2]
