@@ -13,6 +13,7 @@ import re
 from dataclasses import dataclass
 
 from ._results import NotEstimable, estimable, fmt
+from .report import _p
 
 CAUTION = (
     "This report is a planning aid. It does not replace a statistician, an ethics board, or the "
@@ -65,10 +66,6 @@ def _ci(ci, d=3) -> str:
     if ci is None or not estimable(ci):
         return ""
     return f"[{ci.low:.{d}f}, {ci.high:.{d}f}]"
-
-
-def _p(p) -> str:
-    return "p < .001" if p < 0.001 else f"p = {p:.3f}".replace("0.", ".", 1)
 
 
 # ------------------------------------------------------------------ building
