@@ -320,6 +320,8 @@ def run_summary_text(run, paths) -> str:
     if paths:
         folder = paths[0].parent
         out += ["", f"Written to {folder}/: " + ", ".join(p.name for p in paths)]
+    out += ["", "This is a planning aid, not a substitute for a statistician, an ethics board or "
+                "local regulations; see the Caution section of the report."]
     return "\n".join(out)
 
 
