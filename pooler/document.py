@@ -120,23 +120,8 @@ def build_blocks(run) -> list[Block]:
                                       "status", "note"), rows=tuple(rows)))
 
     b.append(Block("h2", "Pooled estimate"))
-    items = []
-    if estimable(pooled.pooled):
-        p = pooled.pooled
-        items.append(f"random effects: {sym} = {p.estimate:.3f} {_ci(p.ci)}, SE {p.se:.3f}, "
-                     f"{_p(p.p)} ({p.method})")
-    else:
-        items.append(f"random effects: {pooled.pooled}")
-    f = pooled.fixed
-    items.append(f"common effect: {sym} = {f.estimate:.3f} {_ci(f.ci)}")
-    h = pooled.heterogeneity
-    if estimable(h):
-        items.append(f"heterogeneity: tau^2 = {h.tau2:.4f} {_ci(h.tau2_ci, 4)}, tau = {h.tau:.3f}, "
-                     f"I^2 = {100 * h.i2:.1f}% [{100 * h.i2_ci.low:.1f}%, {100 * h.i2_ci.high:.1f}%], "
-                     f"Q({h.q_df}) = {h.q:.2f}, {_p(h.q_p)}")
-    pi = pooled.prediction
-    items.append("95% prediction interval for a new study: "
-                 + (_ci(pi) if estimable(pi) else str(pi)))
+    from .report import pooled_summary
+    items = [_safe_md(line) for line in pooled_summary(pooled)]
     items += [md_escape(n) for n in pooled.notes]
     b.append(Block("list", items=tuple(items)))
     b.append(Block("figure", text="Forest plot: each study with its 95% CI (marker area by "
@@ -340,6 +325,11 @@ def methods_paragraph(run) -> str:
                    f"assurance (expected power) of {100 * asr.targets[0]:g}% (O'Hagan et al., "
                    "2005).")
     return " ".join(txt)
+
+
+def _safe_md(text: str) -> str:
+    """Our own summary text for Markdown: only the characters Markdown would misread."""
+    return text.replace("|", "\\|").replace("*", "\\*")
 
 
 def _join(items):

@@ -171,41 +171,36 @@ def _ci(lo, hi, digits=3) -> str:
     return f"[{lo:.{digits}f}, {hi:.{digits}f}]"
 
 
-def pooled_text(res, eff) -> str:
-    """The pooling summary that ``pooler pool`` prints."""
+def pooled_summary(res) -> list[str]:
+    """The headline lines of a pooling result (random effects, common effect, heterogeneity,
+    prediction interval); shared by the terminal summary and the report."""
     from ._results import estimable
     from .pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
     sym = "g" if res.metric == "g" else "z"
     lvl = f"{100 * res.level:g}%"
-    from pathlib import Path
-    out = [f"{Path(eff.file).name}: k = {res.k} independent samples ({eff.n_used} rows used, "
-           f"{eff.n_excluded} excluded); metric {eff.metric_label}"]
-    if res.metric == "z":
-        out.append("  estimates on the Fisher z scale; r = tanh(z) in brackets")
+
     def rr(est):
         if res.metric != "z":
             return ""
         return (f" (r = {math.tanh(est.estimate):.3f} "
                 f"{_ci(math.tanh(est.ci.low), math.tanh(est.ci.high))})")
+    out = []
     if estimable(res.pooled):
         p = res.pooled
         out.append(f"Random effects ({ESTIMATOR_NAMES[res.estimator]} tau^2, "
-                   f"{INTERVAL_NAMES[res.interval]} {lvl} CI):")
-        out.append(f"  {sym} = {p.estimate:.3f} {_ci(p.ci.low, p.ci.high)}{rr(p)}, "
-                   f"SE {p.se:.3f}, {_p(p.p)}")
+                   f"{INTERVAL_NAMES[res.interval]} {lvl} CI): {sym} = {p.estimate:.3f} "
+                   f"{_ci(p.ci.low, p.ci.high)}{rr(p)}, SE {p.se:.3f}, {_p(p.p)}")
     else:
         out.append(f"Random effects: {res.pooled}")
     f = res.fixed
-    out.append(f"Common effect (inverse variance, {lvl} CI):")
-    out.append(f"  {sym} = {f.estimate:.3f} {_ci(f.ci.low, f.ci.high)}{rr(f)}, "
-               f"SE {f.se:.3f}, {_p(f.p)}")
+    out.append(f"Common effect (inverse variance, {lvl} CI): {sym} = {f.estimate:.3f} "
+               f"{_ci(f.ci.low, f.ci.high)}{rr(f)}, SE {f.se:.3f}, {_p(f.p)}")
     h = res.heterogeneity
     if estimable(h):
-        out.append("Heterogeneity:")
-        out.append(f"  tau^2 = {h.tau2:.4f} {_ci(h.tau2_ci.low, h.tau2_ci.high, 4)} (Q-profile), "
-                   f"tau = {h.tau:.3f}")
-        out.append(f"  I^2 = {100 * h.i2:.1f}% [{100 * h.i2_ci.low:.1f}%, {100 * h.i2_ci.high:.1f}%], "
-                   f"H^2 = {h.h2:.2f}, Q({h.q_df}) = {h.q:.2f}, {_p(h.q_p)}")
+        out.append(f"Heterogeneity: tau^2 = {h.tau2:.4f} {_ci(h.tau2_ci.low, h.tau2_ci.high, 4)} "
+                   f"(Q-profile), tau = {h.tau:.3f}, I^2 = {100 * h.i2:.1f}% "
+                   f"[{100 * h.i2_ci.low:.1f}%, {100 * h.i2_ci.high:.1f}%], H^2 = {h.h2:.2f}, "
+                   f"Q({h.q_df}) = {h.q:.2f}, {_p(h.q_p)}")
     else:
         out.append(f"Heterogeneity: {h}")
     pi = res.prediction
@@ -213,6 +208,19 @@ def pooled_text(res, eff) -> str:
                + (f"{_ci(pi.low, pi.high)}" + (f" (r {_ci(math.tanh(pi.low), math.tanh(pi.high))})"
                                                if res.metric == "z" else "")
                   if estimable(pi) else str(pi)))
+    return out
+
+
+def pooled_text(res, eff) -> str:
+    """The pooling summary that ``pooler pool`` prints."""
+    from pathlib import Path
+    from ._results import estimable
+    sym = "g" if res.metric == "g" else "z"
+    out = [f"{Path(eff.file).name}: k = {res.k} independent samples ({eff.n_used} rows used, "
+           f"{eff.n_excluded} excluded); metric {eff.metric_label}"]
+    if res.metric == "z":
+        out.append("  estimates on the Fisher z scale; r = tanh(z) in brackets")
+    out += pooled_summary(res)
     out += [f"  note: {n}" for n in res.notes]
     rows = []
     for lab, y, v, w in zip(res.labels, res.effects, res.variances, res.weights):
