@@ -109,9 +109,11 @@ def build_blocks(run) -> list[Block]:
         b.append(Block("list", items=tuple(md_escape(w) for w in eff.warnings)))
 
     b.append(Block("h2", "Conversions"))
+    from .report import _reported
+    recs = {rec.row: rec for rec in a.sheet.records}
     rows = []
     for r in eff.rows:
-        rows.append((r.row, md_escape(r.study), md_escape(r.stat or ""), r.design,
+        rows.append((r.row, md_escape(r.study), md_escape(_reported(r, recs[r.row])), r.design,
                      _num(r.effect) if r.effect is not None else "",
                      _num(r.se) if r.se is not None else "",
                      "" if r.n_total is None else _count(r.n_total),
@@ -308,7 +310,6 @@ def methods_paragraph(run) -> str:
         s = (f"For a {tails} test at alpha = {plan.alpha:g} with {100 * first:g}% power, the "
              f"planned {plan.design.describe()} study needs {n_txt}, computed with exact "
              "noncentral distributions")
-        s = s.replace(" (allocation n2/n1 = 1)", "")
         if plan.attrition:
             s += (f"; allowing for {100 * plan.attrition:g}% attrition we will recruit "
                   f"{row.n_total_recruit}")

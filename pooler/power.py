@@ -128,7 +128,7 @@ class Design:
         return n
 
     def describe(self) -> str:
-        extra = {"two-group": f"allocation n2/n1 = {self.ratio:g}",
+        extra = {"two-group": "" if self.ratio == 1 else f"allocation n2/n1 = {self.ratio:g}",
                  "paired": f"planned correlation between measures {self.planned_r:g}",
                  "one-sample": "", "correlation": "exact distribution of r" if self.exact_r
                  else "Fisher z test",
