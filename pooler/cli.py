@@ -79,12 +79,16 @@ def main():
     """pooler: turn the statistics prior studies reported into a defensible sample size.
 
     Collect one row per reported result in a sheet (`pooler template sheet.csv` writes a
-    starting point), then convert the rows to one metric.
+    starting point); `pooler run` then converts, pools, adjusts for publication bias,
+    derives optimistic / realistic / pessimistic planning effects, solves the sample size
+    and writes a report. `pooler demo` does it all on an invented literature.
 
     \b
     Example:
+      pooler demo
       pooler template my_literature.csv
-      pooler convert my_literature.csv
+      pooler run my_literature.csv --design two-group --out my_plan
+      pooler plan --effect 0.3 --design paired
     """
 
 
