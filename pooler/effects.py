@@ -488,6 +488,7 @@ def _from_means(ctx: _Ctx, rec: Record) -> _Raw:
         n = _n_within(ctx, rec, notes)
         r = _within_r(ctx, rec, notes)
         d = (m1 - m2) / math.sqrt((s1 * s1 + s2 * s2) / 2)
+        notes.append("standardised by the average of the two SDs")
         return _Raw("d", d, d_variance_within(d, n, r), n, None, None, n - 1, "within",
                     within_r=r, notes=notes)
     n1, n2 = _groups(ctx, rec, notes, allow_df=False)
