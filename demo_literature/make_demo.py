@@ -51,7 +51,10 @@ def main(out: Path) -> None:
         year += int(rng.integers(0, 2))
         place = PLACES[len(rows)]
         label = f"{place} {year}"
-        base = {"study": label, "year": year, "note": "invented"}
+        # setting of the (invented) study, for the subgroup analysis; fixed by the label so the
+        # random stream, and so every number, stays as it was
+        setting = "online" if len(place) % 2 else "lab"
+        base = {"study": label, "year": year, "subgroup": setting, "note": "invented"}
         if within:
             kind = "within_t" if rng.random() < 0.6 else "within_d"
             if kind == "within_t":
@@ -120,7 +123,7 @@ def main(out: Path) -> None:
     rows.append(dup)
     cols = ["study", "sample", "stat", "value", "n1", "n2", "n", "df", "df1", "mean1", "sd1",
             "mean2", "sd2", "events1", "events2", "ci_low", "ci_high", "direction", "design", "within_r", "tails",
-            "year", "exclude", "note"]
+            "year", "subgroup", "exclude", "note"]
     with open(out, "w", newline="", encoding="utf-8") as fh:
         w = csv.DictWriter(fh, fieldnames=cols)
         w.writeheader()
