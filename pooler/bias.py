@@ -495,7 +495,11 @@ def selection_ratio(y, v, tau2, etas=(2.0, 5.0, 10.0)) -> SelectionRatio | NotEs
             s = NotEstimable("no amount of selection brings the estimate to 0: even the "
                              "non-affirmative studies alone give a positive estimate")
         else:
-            s = -sa / sn  # solves Σ_A w y + η Σ_N w y = 0
+            with np.errstate(all="ignore"):
+                s = -sa / sn  # solves Σ_A w y + η Σ_N w y = 0
+            if not math.isfinite(s):
+                s = NotEstimable("the non-affirmative studies sum to an effect of almost "
+                                 "exactly 0, so no finite selection ratio reaches 0")
     return SelectionRatio(tuple(etas), ests, worst, s, ka, kn)
 
 

@@ -358,3 +358,11 @@ def test_selection_gradient_matches_finite_differences():
         f = lambda t: selection_loglik(t[0], t[1], math.exp(t[2]), y, v)  # noqa: E731
         num = approx_fprime(np.array([mu, tau2, math.log(omega)]), f, centered=True)
         assert_allclose(selection_loglik_grad(mu, tau2, omega, y, v), num, rtol=1e-5, atol=1e-6)
+
+
+def test_s_value_never_infinite():
+    # found by fuzzing: a non-affirmative study at an effect of -2e-311 made -sa/sn overflow
+    y = np.array([1.2, -2.225073858507e-311])
+    v = np.array([0.04, 0.5])
+    res = selection_ratio(y, v, 0.0)
+    assert not res.s_value and "almost exactly 0" in str(res.s_value)
