@@ -99,8 +99,8 @@ def main():
 def convert(sheet, metric, within_r, sample_r, as_json):
     """Convert every row of SHEET to one metric with its variance.
 
-    Prints one line per sheet row (used or excluded, with the reason), the assumptions
-    made, and the independent samples that will be pooled.
+    Prints one line per sheet row (used or excluded, with the reason or the conversion
+    notes), how many independent samples will be pooled, and every assumption made.
 
     \b
     Example:
