@@ -346,11 +346,14 @@ def power_at(effect, n, design="two-group", alpha=0.05, alternative="two-sided",
     u, p = des.predictors_added, des.predictors_total
     df2 = n - p - 1
     lam = np.abs(e) * n
-    if alternative == "greater" or upper_only:
-        if u != 1:
-            raise OptionError("a one-tailed test is defined only when one predictor is added")
+    if u == 1 and (alternative == "greater" or upper_only):
         return _t_power(np.sign(e) * np.sqrt(lam), df2, alpha, alternative, upper_only)
-    return _f_power(lam, u, df2, alpha)
+    if alternative == "greater":
+        raise OptionError("a one-tailed test is defined only when one predictor is added")
+    power = _f_power(lam, u, df2, alpha)
+    # the F test of several predictors has no direction: for assurance, an effect against
+    # the hypothesis counts as no success
+    return np.where(np.asarray(e) > 0, power, 0.0) if upper_only else power
 
 
 # ------------------------------------------------------------------ sample size

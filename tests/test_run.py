@@ -176,3 +176,18 @@ def test_two_runs_are_byte_identical(tmp_path, run_cli, demo_path):
     for name in ("results.json", "planning_table.csv", "effects.csv", "report.md",
                  "forest.svg", "funnel.svg", "ladder.svg", "power.svg"):
         assert (outs[0] / name).read_bytes() == (outs[1] / name).read_bytes(), name
+
+
+@pytest.mark.parametrize("args", [["--design", "correlation", "--metric", "r"],
+                                  ["--design", "ancova", "--covariate-r", "0.6"],
+                                  ["--design", "interaction-2x2", "--attenuation", "1"],
+                                  ["--design", "paired", "--planned-r", "0.7", "--tails", "1"],
+                                  ["--design", "regression-increment", "--predictors-added", "2",
+                                   "--predictors-total", "4"]])
+def test_run_every_design(tmp_path, run_cli, demo_path, args):
+    out = tmp_path / "d"
+    res = run_cli("run", demo_path, "--out", out, *args)
+    assert res.exit_code == 0, res.output
+    doc = json.loads((out / "results.json").read_text())
+    assert doc["plan"]["design"] == args[1]
+    assert any(isinstance(r["n_total"], int) for r in doc["plan"]["rows"])
