@@ -526,7 +526,7 @@ def assurance(mean, sd, n, design="two-group", alpha=0.05, alternative="two-side
     n = np.asarray(n, float)
     nodes = mean + math.sqrt(2) * sd * x
     if metric in ("r", "z"):
-        nodes = np.tanh(nodes)
+        nodes = np.clip(np.tanh(nodes), -1 + 1e-12, 1 - 1e-12)  # tanh rounds to ±1 for |z| > 19
         metric = "r"
     eff = to_design_effect(nodes, metric, des)
     p = power_at(eff[:, None], n.reshape(1, -1), des, alpha, alternative, upper_only=True)

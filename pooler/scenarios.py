@@ -179,7 +179,8 @@ def unit_powers(units, effect, metric, alpha=0.05):
     zc = float(ndtri(1 - alpha / 2))
     for u in units:
         if metric == "z" and u.n_total and u.n_total > 3:
-            p = float(power_at(math.tanh(effect), u.n_total, "correlation", alpha))
+            r = max(-1 + 1e-12, min(1 - 1e-12, math.tanh(effect)))
+            p = float(power_at(r, u.n_total, "correlation", alpha))
             how = f"correlation, n = {u.n_total:g}"
         elif metric == "g" and u.design == "between" and u.n1 and u.n2:
             p = float(power_at(effect, u.n1, Design("two-group", ratio=u.n2 / u.n1), alpha))
