@@ -256,38 +256,27 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
             raise OptionError(f"bad simulation cell {c.describe()}")
     root = np.random.SeedSequence(seed)
     cell_seqs = root.spawn(len(cells))
-    tasks = []
+    n_chunks = math.ceil(reps / CHUNK)
+    tasks = []  # ((cell index, chunk index), arguments)
     for ci, (cell, cs) in enumerate(zip(cells, cell_seqs)):
-        n_chunks = math.ceil(reps / CHUNK)
         for j, ss in enumerate(cs.spawn(n_chunks)):
             size = min(CHUNK, reps - j * CHUNK)
-            tasks.append((ci, (cell, shapes, size, ss, design, power)))
-    results: dict[int, list] = {i: [None] * math.ceil(reps / CHUNK) for i in range(len(cells))}
-    order = {id(t[1]): (t[0], n) for n, t in enumerate(tasks)}
-    done = 0
+            tasks.append(((ci, j), (cell, shapes, size, ss, design, power)))
+    results: dict[int, list] = {i: [None] * n_chunks for i in range(len(cells))}
+
+    def finished(key, value, done):
+        results[key[0]][key[1]] = value
+        if progress:
+            progress(done, len(tasks))
     if workers == 1:
-        for ci, args in tasks:
-            j = sum(1 for x in results[ci] if x is not None)
-            results[ci][j] = _run_chunk(args)
-            done += 1
-            if progress:
-                progress(done, len(tasks))
+        for done, (key, args) in enumerate(tasks, start=1):
+            finished(key, _run_chunk(args), done)
     else:
-        from concurrent.futures import ProcessPoolExecutor
+        from concurrent.futures import ProcessPoolExecutor, as_completed
         with ProcessPoolExecutor(max_workers=workers) as ex:
-            futs = {}
-            counters = {i: 0 for i in range(len(cells))}
-            for ci, args in tasks:
-                futs[ex.submit(_run_chunk, args)] = (ci, counters[ci])
-                counters[ci] += 1
-            from concurrent.futures import as_completed
-            for f in as_completed(futs):
-                ci, j = futs[f]
-                results[ci][j] = f.result()
-                done += 1
-                if progress:
-                    progress(done, len(tasks))
-    del order
+            futs = {ex.submit(_run_chunk, args): key for key, args in tasks}
+            for done, f in enumerate(as_completed(futs), start=1):
+                finished(futs[f], f.result(), done)
     out = []
     for ci, cell in enumerate(cells):
         ests = {e: np.concatenate([np.array(ch[0][e], float) for ch in results[ci]])
