@@ -170,6 +170,11 @@ def build_blocks(run) -> list[Block]:
     b.append(Block("table", headers=("scenario", sym, "basis"),
                    rows=tuple((s.name, _num(s.effect), md_escape(s.basis))
                               for s in (sc.optimistic, sc.realistic, sc.pessimistic))))
+    iv, ci95 = sc.realistic_interval(), sc.realistic_interval(0.95)
+    if estimable(iv):
+        b.append(Block("p", f"Realistic {sym} = {sc.realistic.effect:.3f} (SE "
+                            f"{sc.realistic.se:.3f}); {100 * iv.level:g}% safeguard interval "
+                            f"{_ci(iv)}, 95% interval {_ci(ci95)}."))
     b.append(Block("p", md_escape(sc.verdict)))
     au = sc.audit
     if estimable(au):

@@ -303,7 +303,13 @@ def scenarios_text(scen) -> str:
             line.append(math.tanh(s.effect))
         rows.append(line + [s.basis])
     heads = ["scenario", sym] + (["r"] if scen.metric == "z" else []) + ["basis"]
-    out = ["Planning scenarios:", text_table(heads, rows), scen.verdict]
+    out = ["Planning scenarios:", text_table(heads, rows)]
+    iv, ci = scen.realistic_interval(), scen.realistic_interval(0.95)
+    if estimable(iv):
+        out.append(f"Realistic {sym} = {scen.realistic.effect:.3f}, SE {scen.realistic.se:.3f}: "
+                   f"{100 * iv.level:g}% safeguard interval {_ci(iv.low, iv.high)}, "
+                   f"95% interval {_ci(ci.low, ci.high)}")
+    out.append(scen.verdict)
     a = scen.audit
     if estimable(a):
         out += ["", f"Literature audit: each study's power to detect the realistic {sym} = "

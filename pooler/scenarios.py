@@ -122,6 +122,18 @@ class Scenarios:
     audit: LiteratureAudit | NotEstimable
     excess_significance: ExcessSignificance | NotEstimable
 
+    def realistic_interval(self, level: float | None = None):
+        """Interval around the realistic effect (default: the safeguard level, whose lower
+        limit is the pessimistic scenario before any SESOI floor), or NotEstimable."""
+        from scipy.special import ndtri
+        from ._results import Interval
+        se = self.realistic.se
+        if se is None or not math.isfinite(se) or se <= 0:
+            return NotEstimable("the realistic effect has no standard error")
+        level = self.safeguard_level if level is None else level
+        z = float(ndtri(0.5 + level / 2))
+        return Interval(self.realistic.effect - z * se, self.realistic.effect + z * se, level)
+
     @property
     def planning_metric(self) -> str:
         return "d" if self.metric == "g" else "r"
@@ -140,6 +152,8 @@ class Scenarios:
                             "pessimistic": self.pessimistic, "rule": self.rule,
                             "safeguard_level": self.safeguard_level, "sesoi": self.sesoi,
                             "supported": self.supported, "verdict": self.verdict,
+                            "realistic_interval": self.realistic_interval(),
+                            "realistic_ci95": self.realistic_interval(0.95),
                             "predictive": ({"mean": self.predictive[0], "sd": self.predictive[1]}
                                            if isinstance(self.predictive, tuple)
                                            else self.predictive),

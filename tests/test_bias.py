@@ -366,3 +366,17 @@ def test_s_value_never_infinite():
     v = np.array([0.04, 0.5])
     res = selection_ratio(y, v, 0.0)
     assert not res.s_value and "almost exactly 0" in str(res.s_value)
+
+
+def test_realistic_interval_is_the_safeguard_interval():
+    # Perugini, Gallucci & Costantini (2014): the pessimistic value is the lower limit of the
+    # two-sided safeguard interval (60 %) around the realistic estimate
+    eff, pooled, bias = scenario_inputs(40, delta=0.2, publish_ns=0.2, seed=13)
+    sc = make_scenarios(eff, pooled, bias)
+    iv = sc.realistic_interval()
+    z = stats.norm.ppf(0.8)
+    assert_allclose([iv.low, iv.high], [sc.realistic.effect - z * sc.realistic.se,
+                                        sc.realistic.effect + z * sc.realistic.se], rtol=1e-12)
+    assert_allclose(iv.low, sc.pessimistic.effect, rtol=1e-12)
+    ci = sc.realistic_interval(0.95)
+    assert_allclose(ci.high - ci.low, 2 * stats.norm.ppf(0.975) * sc.realistic.se, rtol=1e-12)
