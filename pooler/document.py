@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import base64
 import html
-import math
 import re
 from dataclasses import dataclass
 

@@ -7,7 +7,6 @@ Palette: the colour-blind-safe set of Okabe & Ito (2008), used sparingly.
 """
 from __future__ import annotations
 
-import math
 
 import numpy as np
 
