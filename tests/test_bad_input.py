@@ -88,58 +88,33 @@ def test_column_named_as_user_spelled_it(write_sheet, run_cli):
     assert res.exit_code == 2 and "column 'Value'" in res.stderr
 
 
-def test_empty_file(tmp_path, run_cli):
-    p = tmp_path / "empty.csv"
-    p.write_text("")
-    res = run_cli("convert", p)
-    assert res.exit_code == 2 and "empty" in res.stderr and "empty.csv" in res.stderr
+RAW_FILES = [
+    # (file name, bytes, fragment, expected "row N" or None); the corpus in tests/bad_sheets
+    # runs these kinds through `pooler run`, here they go through `pooler convert`
+    ("empty.csv", b"", "empty", None),
+    ("head.csv", b"study,stat,value\n", "no data rows", None),
+    ("junk.csv", b"\x00\x01\x02garbage\x00", "binary", None),
+    ("latin.csv", "study,stat,value,n1,n2\nM\u00fcller,t,2,20,20\n".encode("latin-1"),
+     "not UTF-8", 2),
+    ("broken.xlsx", b"PK\x03\x04 not really a zip", "not a readable .xlsx", None),
+    ("dup.csv", b"study,stat,value,Value,n1,n2\nA,t,2,3,20,20\n", "appears twice", 1),
+    ("quote.csv", b'study,stat,value,n1,n2\n"A,t,2,20,20\nB,t,2,20,20\n', "quote", None),
+]
 
 
-def test_header_only(tmp_path, run_cli):
-    p = tmp_path / "head.csv"
-    p.write_text("study,stat,value\n")
+@pytest.mark.parametrize("name,data,fragment,row", RAW_FILES, ids=[r[0] for r in RAW_FILES])
+def test_unreadable_files(tmp_path, run_cli, name, data, fragment, row):
+    p = tmp_path / name
+    p.write_bytes(data)
     res = run_cli("convert", p)
-    assert res.exit_code == 2 and "no data rows" in res.stderr
+    assert res.exit_code == 2 and fragment in res.stderr and name in res.stderr
+    if row is not None:
+        assert f"row {row}" in res.stderr
 
 
 def test_missing_file(tmp_path, run_cli):
     res = run_cli("convert", tmp_path / "nope.csv")
     assert res.exit_code == 2 and "file not found" in res.stderr
-
-
-def test_binary_file(tmp_path, run_cli):
-    p = tmp_path / "junk.csv"
-    p.write_bytes(b"\x00\x01\x02garbage\x00")
-    res = run_cli("convert", p)
-    assert res.exit_code == 2 and "binary" in res.stderr
-
-
-def test_latin1_file(tmp_path, run_cli):
-    p = tmp_path / "latin.csv"
-    p.write_bytes("study,stat,value,n1,n2\nMüller,t,2,20,20\n".encode("latin-1"))
-    res = run_cli("convert", p)
-    assert res.exit_code == 2 and "not UTF-8" in res.stderr and "row 2" in res.stderr
-
-
-def test_broken_xlsx(tmp_path, run_cli):
-    p = tmp_path / "broken.xlsx"
-    p.write_bytes(b"PK\x03\x04 not really a zip")
-    res = run_cli("convert", p)
-    assert res.exit_code == 2 and "not a readable .xlsx" in res.stderr
-
-
-def test_duplicated_header(tmp_path, run_cli):
-    p = tmp_path / "dup.csv"
-    p.write_text("study,stat,value,Value,n1,n2\nA,t,2,3,20,20\n")
-    res = run_cli("convert", p)
-    assert res.exit_code == 2 and "appears twice" in res.stderr and "row 1" in res.stderr
-
-
-def test_unclosed_quote(tmp_path, run_cli):
-    p = tmp_path / "quote.csv"
-    p.write_text('study,stat,value,n1,n2\n"A,t,2,20,20\nB,t,2,20,20\n')
-    res = run_cli("convert", p)
-    assert res.exit_code == 2 and "quote" in res.stderr
 
 
 def test_warnings_go_to_stderr_and_run_continues(write_sheet, run_cli):
