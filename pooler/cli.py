@@ -238,6 +238,11 @@ _DESIGNS = ("two-group", "paired", "one-sample", "correlation", "ancova", "inter
             "regression-increment")
 
 
+def _planning_metric(metric, design):
+    """Correlational designs plan on r, whatever --metric says; others keep it."""
+    return "r" if design in ("correlation", "regression-increment") else metric
+
+
 def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
                  predictors_total, exact_r):
     from .power import Design
@@ -289,9 +294,8 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     analysis = None
     if sheet and effects:
         raise OptionError("give either SHEET or --effect, not both")
+    metric = _planning_metric(metric, design)
     if sheet:
-        if metric == "d" and design in ("correlation", "regression-increment"):
-            metric = "r"
         analysis = _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster,
                             safeguard_level, sesoi)
         sc = analysis.scenarios
@@ -300,7 +304,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
         pmetric = sc.planning_metric
         label = "g" if pmetric == "d" else "r"
     elif effects:
-        pmetric = "r" if design in ("correlation", "regression-increment") else metric
+        pmetric = metric
         names = ["given"] if len(effects) == 1 else [f"given {i + 1}" for i in range(len(effects))]
         scen = [PlanningEffect(nm, e) for nm, e in zip(names, effects)]
         predictive = None
@@ -373,9 +377,7 @@ def _whole_job(ctx, sheet, sheet_label, params):
     des = _make_design(p["design"], p["ratio"], p["planned_r"], p["covariate_r"],
                        p["attenuation"], p["predictors_added"], p["predictors_total"],
                        p["exact_r"])
-    metric = p["metric"]
-    if metric == "d" and p["design"] in ("correlation", "regression-increment"):
-        metric = "r"
+    metric = _planning_metric(p["metric"], p["design"])
     analysis_options = {"metric": metric, "within_r": p["within_r"], "sample_r": p["sample_r"],
                         "estimator": p["estimator"], "interval": p["interval"],
                         "adjuster": p["adjuster"], "safeguard_level": p["safeguard_level"],
@@ -383,11 +385,8 @@ def _whole_job(ctx, sheet, sheet_label, params):
     plan_options = {"alpha": p["alpha"], "tails": p["tails"],
                     "powers": tuple(p["powers"] or (0.8, 0.9, 0.95)),
                     "attrition": p["attrition"], "n_total": p["n_total"]}
-    from pathlib import Path
-    out = Path(p["out_dir"])
-    if out.exists() and (not out.is_dir() or any(out.iterdir())) and not p["force"]:
-        from .errors import OptionError
-        raise OptionError(f"--out {out} is not empty; choose another folder or add --force")
+    from .outputs import check_out
+    out = check_out(p["out_dir"], p["force"])   # before the work, so a refusal costs nothing
     result = run(sheet, design=des, analysis_options=analysis_options,
                  plan_options=plan_options, command=_command_line(ctx, sheet_label),
                  progress=_progress())
@@ -489,10 +488,8 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
     if not 0 < target < 1:
         raise OptionError("--power must lie strictly between 0 and 1")
     if out_dir:
-        from pathlib import Path
-        o = Path(out_dir)
-        if o.exists() and (not o.is_dir() or any(o.iterdir())) and not force:
-            raise OptionError(f"--out {o} is not empty; choose another folder or add --force")
+        from .outputs import check_out
+        check_out(out_dir, force)
     if calibration:
         cells, shapes = calibration_grid(), Shapes.generic()
     else:

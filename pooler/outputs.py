@@ -69,13 +69,19 @@ def render(run, fmt: str = "png") -> dict[str, bytes]:
     return files
 
 
-def write(files: dict[str, bytes], out_dir, force: bool = False) -> list[Path]:
-    """Write ``files`` into ``out_dir`` atomically; refuse a non-empty folder without force."""
+def check_out(out_dir, force: bool = False) -> Path:
+    """Refuse an --out that is a file, or a non-empty folder without ``force``."""
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise OptionError(f"--out {out} is a file, not a folder")
     if out.exists() and any(out.iterdir()) and not force:
         raise OptionError(f"--out {out} is not empty; choose another folder or add --force")
+    return out
+
+
+def write(files: dict[str, bytes], out_dir, force: bool = False) -> list[Path]:
+    """Write ``files`` into ``out_dir`` atomically; refuse a non-empty folder without force."""
+    out = check_out(out_dir, force)
     out.mkdir(parents=True, exist_ok=True)
     written = []
     for name, data in files.items():
