@@ -235,16 +235,7 @@ def _t_power(ncp, df, alpha, alternative, upper_only=False):
     if alternative == "two-sided":
         c = sp.stdtrit(df, 1 - alpha / 2)
         upper = 1 - _nct_cdf(df, ncp, c)
-        if upper_only:
-            return upper
-        # P(T < -c) <= P(T < 0) = Phi(-ncp) < 1e-15 for ncp >= 8: computed only below that
-        ncp_b, df_b, c_b = np.broadcast_arrays(np.asarray(ncp, float), np.asarray(df, float),
-                                               np.asarray(c, float))
-        lower = np.zeros(ncp_b.shape)
-        m = ncp_b < 8
-        if m.any():
-            lower[m] = _nct_cdf(df_b[m], ncp_b[m], -c_b[m])
-        return upper + (lower if lower.ndim else float(lower))
+        return upper if upper_only else upper + _nct_cdf(df, ncp, -c)
     c = sp.stdtrit(df, 1 - alpha)
     return 1 - _nct_cdf(df, ncp, c)
 
