@@ -234,6 +234,8 @@ def _planning_options(f):
     return f
 
 
+# the same tuple as pooler.power.DESIGNS, repeated so that --help need not import numpy
+# (tests/test_cli_plan.py checks the two agree)
 _DESIGNS = ("two-group", "paired", "one-sample", "correlation", "ancova", "interaction-2x2",
             "regression-increment")
 

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import math
 
-from ._results import csv_safe, text_table
+from ._results import NotEstimable, csv_safe, text_table
 
 
 def _reported(row, sheet_rec) -> str:
@@ -145,7 +145,7 @@ def plan_csv(plan) -> str:
                 "achieved_power", "n_total_recruit"])
     for r in plan.rows:
         w.writerow([csv_safe(r.scenario), repr(r.effect), repr(r.design_effect), r.power,
-                    *[v if not hasattr(v, "reason") else f"not estimable: {v.reason}"
+                    *[str(v) if isinstance(v, NotEstimable) else v
                       for v in (r.n_per_group, r.n_total, r.achieved_power, r.n_total_recruit)]])
     return buf.getvalue()
 

@@ -71,3 +71,9 @@ def test_plan_table_writers(run_cli):
     lines = md.strip().splitlines()
     assert lines[0].startswith("| scenario |") and lines[1].startswith("|---|")
     assert "| given | 0.300 | 0.300 | 176 | 352 |" in lines[2]
+
+
+def test_cli_design_list_is_the_power_modules():
+    from pooler.cli import _DESIGNS
+    from pooler.power import DESIGNS
+    assert _DESIGNS == DESIGNS
