@@ -10,7 +10,12 @@ import sys
 
 import click
 
+from ._threads import limit_before_numpy
 from .errors import PoolerError
+
+# One BLAS thread for the whole command (the reason is in pooler/_threads.py); this must run
+# before numpy is first imported, which every command does lazily after this point.
+limit_before_numpy()
 
 
 class _Group(click.Group):

@@ -8,6 +8,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from ._results import to_jsonable
+from ._threads import single_threaded
 
 
 @dataclass(frozen=True)
@@ -41,6 +42,7 @@ class Analysis:
         return self.pool_document()
 
 
+@single_threaded
 def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="reml",
             interval="hksj", adjuster="default", safeguard_level=0.6, sesoi=None,
             progress=None) -> Analysis:
@@ -88,6 +90,7 @@ class RunResult:
             "options": self.options, "command": self.command})
 
 
+@single_threaded
 def run(sheet_path, *, design, analysis_options: dict, plan_options: dict,
         command: str = "", progress=None) -> RunResult:
     """The whole job on one sheet: analyse, then plan the scenarios for ``design``."""

@@ -23,6 +23,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ._results import estimable, to_jsonable
+from ._threads import single_threaded
 from .errors import OptionError
 
 #: Estimators whose bias and RMSE are reported.
@@ -158,6 +159,7 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
     return est, dict(zip(RULES, (float(x) for x in true)))
 
 
+@single_threaded
 def _run_chunk(args):
     cell, shapes, reps, seed_seq, design, power = args
     rng = np.random.default_rng(seed_seq)
