@@ -340,7 +340,8 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
 
 def _output_options(f):
     f = click.option("--force", is_flag=True,
-                     help="Write into --out even if it is not empty.")(f)
+                     help="Write into --out even if it is not empty and pooler did not "
+                          "write it (a folder pooler wrote is replaced by a rerun).")(f)
     f = click.option("--format", "fmt", type=click.Choice(["png", "svg", "pdf"]),
                      default="png", show_default=True, help="File format of the figures.")(f)
     f = click.option("--out", "out_dir", type=click.Path(file_okay=False), default="pooler_out",
@@ -467,7 +468,8 @@ def demo_cmd(ctx, **params):
               help="Folder for stress.json and the figure stress.<format>.")
 @click.option("--format", "fmt", type=click.Choice(["png", "svg", "pdf"]), default="png",
               show_default=True, help="File format of the figure.")
-@click.option("--force", is_flag=True, help="Write into --out even if it is not empty.")
+@click.option("--force", is_flag=True, help="Write into --out even if it is not empty and "
+              "pooler did not write it (a folder pooler wrote is replaced by a rerun).")
 @_conversion_options
 @_json_option
 def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force, metric,

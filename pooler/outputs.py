@@ -69,35 +69,73 @@ def render(run, fmt: str = "png") -> dict[str, bytes]:
     return files
 
 
+#: The record of what pooler wrote into an output folder: a rerun replaces exactly these.
+MANIFEST = ".written-by-pooler.json"
+
+
+def _previous_files(out: Path) -> set[str] | None:
+    """Names pooler wrote into ``out`` last time, or None if ``out`` is not pooler's."""
+    try:
+        doc = json.loads((out / MANIFEST).read_text(encoding="utf-8"))
+        names = doc["files"]
+    except (OSError, ValueError, KeyError, TypeError):
+        return None
+    if not isinstance(names, list):
+        return None
+    # only plain names inside the folder: a manifest can never point elsewhere
+    return {n for n in names if isinstance(n, str) and n and Path(n).name == n
+            and n not in (".", "..")}
+
+
 def check_out(out_dir, force: bool = False) -> Path:
-    """Refuse an --out that is a file, or a non-empty folder without ``force``."""
+    """Refuse an --out that is a file, or a non-empty folder pooler did not write, unless
+    ``force``. A folder pooler wrote before (it holds the manifest) is replaced by a rerun."""
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise OptionError(f"--out {out} is a file, not a folder")
-    if out.exists() and any(out.iterdir()) and not force:
-        raise OptionError(f"--out {out} is not empty; choose another folder or add --force")
+    if (out.exists() and any(out.iterdir()) and _previous_files(out) is None
+            and not force):
+        raise OptionError(f"--out {out} is not empty and was not written by pooler; choose "
+                          "another folder or add --force")
     return out
 
 
 def write(files: dict[str, bytes], out_dir, force: bool = False) -> list[Path]:
-    """Write ``files`` into ``out_dir`` atomically; refuse a non-empty folder without force."""
+    """Write ``files`` into ``out_dir`` atomically and replace what pooler wrote there before.
+
+    A folder written by pooler (see :data:`MANIFEST`) is replaced as a whole: the files of the
+    previous run that this run does not write again (e.g. PNGs after ``--format svg``) are
+    removed; files pooler did not write are never touched. A non-empty folder that pooler did
+    not write is refused without ``force``.
+    """
     out = check_out(out_dir, force)
+    previous = _previous_files(out) or set()
     out.mkdir(parents=True, exist_ok=True)
     written = []
     for name, data in files.items():
-        target = out / name
-        fd, tmp = tempfile.mkstemp(prefix=f".{name}.", dir=out)
-        try:
-            with os.fdopen(fd, "wb") as fh:
-                fh.write(data)
-            os.chmod(tmp, 0o666 & ~_umask())
-            os.replace(tmp, target)
-        except BaseException:
-            if os.path.exists(tmp):
-                os.unlink(tmp)
-            raise
-        written.append(target)
+        written.append(_write_atomically(out, name, data))
+    for name in sorted(previous - set(files)):
+        stale = out / name
+        if stale.is_file() and not stale.is_symlink():
+            stale.unlink()
+    manifest = {"written_by": "pooler", "files": sorted(files)}
+    _write_atomically(out, MANIFEST, (json.dumps(manifest, indent=1) + "\n").encode("utf-8"))
     return written
+
+
+def _write_atomically(out: Path, name: str, data: bytes) -> Path:
+    target = out / name
+    fd, tmp = tempfile.mkstemp(prefix=f".{name}.", dir=out)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        os.chmod(tmp, 0o666 & ~_umask())
+        os.replace(tmp, target)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return target
 
 
 def _umask() -> int:

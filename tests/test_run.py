@@ -191,3 +191,32 @@ def test_run_every_design(tmp_path, run_cli, demo_path, args):
     doc = json.loads((out / "results.json").read_text())
     assert doc["plan"]["design"] == args[1]
     assert any(isinstance(r["n_total"], int) for r in doc["plan"]["rows"])
+
+
+def test_rerun_into_its_own_folder_replaces_it(tmp_path, run_cli):
+    # The README's first command runs `pooler demo` into pooler_out/: it must work twice.
+    out = tmp_path / "again"
+    assert run_cli("demo", "--out", out).exit_code == 0
+    (out / "my_notes.txt").write_text("mine")
+    first = {p.name for p in out.iterdir()}
+    assert "forest.png" in first
+    res = run_cli("demo", "--out", out, "--format", "svg")
+    assert res.exit_code == 0, res.stderr
+    names = {p.name for p in out.iterdir()}
+    # the PNG figures of the first run are gone, the SVGs are there, the user's file is kept
+    assert not any(n.endswith(".png") for n in names)
+    assert {"forest.svg", "funnel.svg", "power.svg", "my_notes.txt", "report.md"} <= names
+
+
+def test_a_manifest_cannot_delete_outside_the_folder(tmp_path, run_cli):
+    import json
+    out = tmp_path / "out"
+    assert run_cli("demo", "--out", out).exit_code == 0
+    victim = tmp_path / "victim.txt"
+    victim.write_text("keep")
+    man = out / ".written-by-pooler.json"
+    doc = json.loads(man.read_text())
+    doc["files"] += ["../victim.txt", str(victim), "..", ""]
+    man.write_text(json.dumps(doc))
+    assert run_cli("demo", "--out", out).exit_code == 0
+    assert victim.read_text() == "keep"
