@@ -39,65 +39,94 @@ def _scale_label(metric: str) -> str:
     return "Hedges' g" if metric == "g" else "Fisher's z"
 
 
-def forest_plot(pooled, scenarios=None, *, ax=None):
-    """Forest plot: every study with its 95 % CI (marker area by random-effects weight),
-    the common and random-effects estimates, the prediction interval drawn as a band, and
-    the realistic and pessimistic planning effects as vertical lines.
+#: Above this many studies the forest plot draws them as one cloud instead of a row each.
+FOREST_MAX_ROWS = 60
+SHARED_LABEL = "all studies, one shared effect"
+VARYING_LABEL = "all studies, effects allowed to vary"
 
-    The y tick labels are the study labels followed by the summary rows (tests rely on it).
+
+def forest_plot(pooled, scenarios=None, *, ax=None, max_rows=FOREST_MAX_ROWS):
+    """Forest plot: every study with its 95 % CI (marker area by random-effects weight), the
+    two summaries as bars (common effect: "all studies, one shared effect"; random effects:
+    "all studies, effects allowed to vary", with its prediction interval as a whiskered line
+    beneath), and the realistic and pessimistic planning effects as vertical lines.
+
+    Up to ``max_rows`` studies get a row each; above that they are drawn as one cloud (each
+    dot a study, more precise studies higher) so the figure stays readable and small at any
+    k — the per-study numbers are in ``effects.csv`` and the report. The legend sits below
+    the axes, so it never covers a study.
+
+    The y tick labels are the study rows (or the cloud's label) followed by the two summary
+    rows.
     """
-    from matplotlib.patches import Polygon
     k = pooled.k
+    one_row_each = k <= max_rows
+    study_rows = k if one_row_each else 6
     fig = None
     if ax is None:
-        fig, ax = _figure(max(2.8, 0.24 * (k + 4) + 1.0))
+        fig, ax = _figure(max(3.0, 0.24 * (study_rows + 4) + 1.6))
     else:
         fig = ax.figure
     y = np.array(pooled.effects)
     se = np.sqrt(np.array(pooled.variances))
     w = np.array(pooled.weights)
-    rows = np.arange(k)[::-1] + 3
-    ax.hlines(rows, y - 1.96 * se, y + 1.96 * se, color=GREY, lw=1)
-    ax.scatter(y, rows, s=20 + 400 * w / w.max() * 0.5, marker="s", color=BLUE, zorder=3,
-               edgecolor="white", linewidth=0.5)
-    labels = [_short(l) for l in pooled.labels]
-    summary = []
+    base = 2.2  # the studies sit above the two summary rows
+    if one_row_each:
+        rows = np.arange(k)[::-1] + base
+        ax.hlines(rows, y - 1.96 * se, y + 1.96 * se, color=GREY, lw=0.9)
+        ax.scatter(y, rows, s=14 + 160 * w / w.max(), marker="o", color=BLUE, zorder=3,
+                   edgecolor="white", linewidth=0.6)
+        ticks, labels = list(rows), [_short(l) for l in pooled.labels]
+    else:
+        # precision rank on the vertical axis: the most precise study at the top
+        order = np.argsort(np.argsort(-se))
+        rows = base + (study_rows - 1) * order / max(k - 1, 1)
+        ax.scatter(y, rows, s=6, color=BLUE, alpha=min(0.6, max(0.08, 40 / k)), lw=0,
+                   zorder=3)
+        ticks = [base + (study_rows - 1) / 2]
+        labels = [f"{k:,} studies (one dot each;\nmore precise higher)"]
 
-    def diamond(center, lo, hi, row, colour):
-        ax.add_patch(Polygon([(lo, row), (center, row + 0.3), (hi, row), (center, row - 0.3)],
-                             closed=True, color=colour, zorder=3))
+    def summary_bar(est, lo, hi, row, colour):
+        ax.hlines(row, lo, hi, color=colour, lw=5.5, alpha=0.85, zorder=3,
+                  capstyle="round")
+        ax.plot([est, est], [row - 0.28, row + 0.28], color="black", lw=1.6, zorder=4)
     f = pooled.fixed
-    diamond(f.estimate, f.ci.low, f.ci.high, 1, GREY)
-    summary.append((1, "Common effect"))
+    summary_bar(f.estimate, f.ci.low, f.ci.high, 1.0, GREY)
+    ticks.append(1.0)
+    labels.append(SHARED_LABEL)
     if estimable(pooled.pooled):
         p = pooled.pooled
+        summary_bar(p.estimate, p.ci.low, p.ci.high, 0.0, BLUE)
+        ticks.append(0.0)
+        labels.append(VARYING_LABEL)
         if estimable(pooled.prediction):
-            ax.fill_between([pooled.prediction.low, pooled.prediction.high], -0.12, 0.12,
-                            color=ORANGE, alpha=0.45, lw=0, zorder=2)
-            ax.plot([], [], color=ORANGE, alpha=0.45, lw=6, label="95% prediction interval")
-        diamond(p.estimate, p.ci.low, p.ci.high, 0, BLUE)
-        summary.append((0, "Random effects"))
+            lo, hi = pooled.prediction.low, pooled.prediction.high
+            ax.hlines(-0.45, lo, hi, color=ORANGE, lw=1.3, zorder=2)
+            ax.vlines([lo, hi], -0.6, -0.3, color=ORANGE, lw=1.3, zorder=2)
+            ax.plot([], [], color=ORANGE, lw=1.3,
+                    label="range of true effects expected in 95% of new studies "
+                          "(prediction interval)")
     ax.axvline(0, color="black", lw=0.7)
     if scenarios is not None:
         for s, style in ((scenarios.realistic, "--"), (scenarios.pessimistic, ":")):
             ax.axvline(s.effect, color=SCENARIO_COLOURS[s.name], ls=style, lw=1.2,
                        label=f"{s.name} planning effect ({s.effect:.2f})")
-    ticks = list(rows) + [r for r, _ in summary]
-    ax.set_yticks(ticks, labels + [lab for _, lab in summary], fontsize=7.5)
-    ax.set_ylim(-0.8, k + 3.6)
-    ax.set_xlabel(f"{_scale_label(pooled.metric)} with 95% CI")
-    ax.set_title("Prior studies and the pooled estimate", fontsize=10, loc="left")
+    ax.set_yticks(ticks, labels, fontsize=7.5)
+    ax.set_ylim(-0.9, base + study_rows - 0.4)
+    ax.set_xlabel(f"{_scale_label(pooled.metric)}, bars and lines 95% intervals")
+    ax.set_title("Prior studies and what they add up to", fontsize=10, loc="left")
     _style(ax)
     ax.spines["left"].set_visible(False)
     ax.tick_params(axis="y", length=0)
-    if ax.get_legend_handles_labels()[0]:
-        ax.legend(fontsize=7, frameon=False, loc="upper right", bbox_to_anchor=(1, 1.0))
+    handles, names = ax.get_legend_handles_labels()
+    if handles:  # below the plotting area, so it never covers a study
+        ax.figure.legend(handles, names, fontsize=7, frameon=False, loc="outside lower left")
     return fig
 
 
 def funnel_plot(pooled, bias, *, ax=None):
-    """Contour-enhanced funnel plot (Peters et al. 2008): shaded regions where a study is
-    significant at two-sided p < .10, .05 and .01; studies imputed by trim-and-fill drawn
+    """Contour-enhanced funnel plot (Peters et al. 2008): tinted regions where a study of
+    that standard error would be significant (two-sided) at 10 %, 5 % and 1 %; studies imputed by trim-and-fill drawn
     hollow; the PET or PEESE line chosen by PET-PEESE."""
     fig = None
     if ax is None:
@@ -109,8 +138,9 @@ def funnel_plot(pooled, bias, *, ax=None):
     top = se.max() * 1.08
     s_grid = np.linspace(0, top, 100)
     span = max(np.abs(y).max() * 1.15, 1.96 * top * 1.05)
-    shades = [(1.645, "#ececec", ".05 < p < .10"), (1.96, "#d4d4d4", ".01 < p < .05"),
-              (2.576, "#b8b8b8", "p < .01")]
+    # where a study of that SE would come out significant (two-sided), in warm tints
+    shades = [(1.645, "#fdf3e1", "a study here is significant at 10%"),
+              (1.96, "#f9e2b8", "... at 5%"), (2.576, "#f3cf8e", "... at 1%")]
     for z, colour, lab in shades:
         for sign in (1, -1):
             ax.fill_betweenx(s_grid, sign * z * s_grid, sign * span, color=colour, lw=0,
@@ -131,7 +161,8 @@ def funnel_plot(pooled, bias, *, ax=None):
     ax.set_ylim(top, 0)
     ax.set_xlabel(_scale_label(pooled.metric))
     ax.set_ylabel("standard error")
-    ax.set_title("Funnel plot with significance contours", fontsize=10, loc="left")
+    ax.set_title("Effect against precision, with where significance lies", fontsize=10,
+                 loc="left")
     _style(ax)
     ax.legend(fontsize=6.5, frameon=False, loc="upper center", bbox_to_anchor=(0.5, -0.13),
               ncol=4)

@@ -4,6 +4,8 @@ from __future__ import annotations
 import json
 import re
 
+import numpy as np
+
 import pytest
 
 EXPECTED = {"report.md", "report.html", "results.json", "planning_table.csv", "effects.csv"}
@@ -135,7 +137,8 @@ def test_forest_plot_has_one_row_per_study_plus_summaries(demo_path):
     ax = fig.axes[0]
     labels = [t.get_text() for t in ax.get_yticklabels()]
     assert len(labels) == a.pooled.k + 2
-    assert labels[-2:] == ["Common effect", "Random effects"]
+    assert labels[-2:] == ["all studies, one shared effect",
+                           "all studies, effects allowed to vary"]
     lines = {ln.get_label() for ln in ax.get_lines()}
     assert any("realistic" in s for s in lines) and any("pessimistic" in s for s in lines)
 
@@ -220,3 +223,33 @@ def test_a_manifest_cannot_delete_outside_the_folder(tmp_path, run_cli):
     man.write_text(json.dumps(doc))
     assert run_cli("demo", "--out", out).exit_code == 0
     assert victim.read_text() == "keep"
+
+
+def test_forest_plot_stays_small_at_large_k(tmp_path, write_sheet):
+    # Above FOREST_MAX_ROWS studies the forest plot draws one cloud, not a row per study.
+    from pooler.effects import convert
+    from pooler.plots import FOREST_MAX_ROWS, forest_plot
+    from pooler.pooling import pool
+    from pooler.sheet import read_sheet
+    rng = np.random.default_rng(7)
+    rows = [{"study": f"S{i}", "stat": "d", "value": round(float(rng.normal(0.3, 0.3)), 3),
+             "n1": int(rng.integers(10, 80)), "n2": int(rng.integers(10, 80))}
+            for i in range(400)]
+    pooled = pool(convert(read_sheet(write_sheet(rows))))
+    fig = forest_plot(pooled)
+    labels = [t.get_text() for t in fig.axes[0].get_yticklabels()]
+    assert len(labels) == 3 and labels[0].startswith("400 studies")
+    assert fig.get_size_inches()[1] < 5
+    assert 400 > FOREST_MAX_ROWS
+
+
+def test_forest_legend_never_covers_a_study(demo_path):
+    from pooler.pipeline import analyse
+    from pooler.plots import forest_plot
+    a = analyse(demo_path)
+    fig = forest_plot(a.pooled, a.scenarios)
+    fig.canvas.draw()
+    ax = fig.axes[0]
+    leg = fig.legends[0].get_window_extent()
+    axes_box = ax.get_window_extent()
+    assert leg.y1 <= axes_box.y0  # entirely below the plotting area
