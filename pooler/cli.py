@@ -405,6 +405,15 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
         label = "g" if pmetric == "d" else "r"
     elif effects:
         pmetric = metric
+        bad = [e for e in effects if pmetric == "r" and not -1 < e < 1]
+        if bad:
+            own = design in ("correlation", "regression-increment")
+            why = (f"on the r metric, the default of the {design} design," if own
+                   else "with --metric r")
+            raise OptionError(f"--effect {bad[0]:g} is not a correlation ({why} a planning "
+                              "effect lies strictly between -1 and 1)"
+                              + ("; for a standardised mean difference give --metric d"
+                                 if own else ""))
         names = ["given"] if len(effects) == 1 else [f"given {i + 1}" for i in range(len(effects))]
         scen = [PlanningEffect(nm, e) for nm, e in zip(names, effects)]
         predictive = None

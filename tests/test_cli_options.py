@@ -133,3 +133,14 @@ def test_good_values_still_pass(run_cli):
                   "--attrition", "0", "--safeguard", "0.5", "--effect-sd", "0.1",
                   "--ratio", "2", "--within-r", "-0.3")
     assert res.exit_code == 0, res.output
+
+
+def test_effect_outside_a_correlation_names_the_flag_and_the_way_out(run_cli):
+    res = run_cli("plan", "--effect", "1.5", "--design", "correlation")
+    assert res.exit_code == 2
+    assert "--effect 1.5 is not a correlation" in res.stderr and "--metric d" in res.stderr
+    res = run_cli("plan", "--effect", "-1", "--metric", "r")
+    assert res.exit_code == 2 and "--effect -1 is not a correlation" in res.stderr
+    # the same number as a d on the correlation design is converted, not refused
+    assert run_cli("plan", "--effect", "1.5", "--metric", "d", "--design",
+                   "correlation").exit_code == 0
