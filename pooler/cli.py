@@ -43,7 +43,9 @@ def _fraction(low: float, high: float, *, low_open: bool = True, high_open: bool
     several. With ``percent``, a value above 1 that fits once divided by 100 is taken
     for a percentage and the message says which fraction to give instead."""
     def inside(x):
-        return ((low < x) if low_open else (low <= x)) and ((x < high) if high_open else (x <= high))
+        above = low < x if low_open else low <= x
+        below = x < high if high_open else x <= high
+        return above and below
 
     def check(ctx, param, value):
         values = value if isinstance(value, tuple) else (value,)
@@ -53,7 +55,8 @@ def _fraction(low: float, high: float, *, low_open: bool = True, high_open: bool
             _finite(v, param)
             if inside(v):
                 continue
-            lo, hi = ("(" if low_open else "[") + f"{low:g}", f"{high:g}" + (")" if high_open else "]")
+            lo = ("(" if low_open else "[") + f"{low:g}"
+            hi = f"{high:g}" + (")" if high_open else "]")
             if percent and v > 1 and inside(v / 100):
                 raise click.BadParameter(f"{v:g} looks like a percentage; give it as a "
                                          f"fraction: use {v / 100:g}", param=param)

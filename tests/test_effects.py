@@ -136,8 +136,9 @@ def test_correlation_to_d_by_hand(write_sheet):
 
 
 def test_d_r_round_trip_with_group_factor():
-    # [B] eqs. 7.7-7.8 invert 7.5-7.6 for any a = (n1 + n2)^2 / (n1 n2)
-    for a in (4.0, (30 + 70) ** 2 / (30 * 70)):
+    # [B] eqs. 7.7-7.8 invert 7.5-7.6 for any factor a: 4, [B]'s (n1 + n2)^2 / (n1 n2), and
+    # the exact group factor N (N - 2) / (n1 n2) that pooler uses
+    for a in (4.0, (30 + 70) ** 2 / (30 * 70), group_factor(30, 70)):
         r, vr = d_to_r(0.6, 0.05, a)
         d, vd = r_to_d(r, vr, a)
         assert_allclose([d, vd], [0.6, 0.05], rtol=1e-12)
