@@ -29,19 +29,85 @@ class _Group(click.Group):
             ctx.exit(2)
 
 
+# ------------------------------------------------------------------ option checks
+# Each numeric option is checked where it is parsed, so a bad value is a usage error
+# (exit 2) naming the flag, before any work is done. The library checks again at its own
+# boundaries (OptionError) for Python users.
+
+def _finite(value, param) -> float:
+    import math
+    if value is not None and not math.isfinite(value):
+        raise click.BadParameter(f"{value} is not a number pooler can use; give a finite "
+                                 "value", param=param)
+    return value
+
+
+def _fraction(low: float, high: float, *, low_open: bool = True, high_open: bool = True,
+              hint: str = "", percent: bool = False):
+    """A callback accepting values in the interval (low, high) (ends open or closed), one or
+    several. With ``percent``, a value above 1 that fits once divided by 100 is taken
+    for a percentage and the message says which fraction to give instead."""
+    def inside(x):
+        above = low < x if low_open else low <= x
+        below = x < high if high_open else x <= high
+        return above and below
+
+    def check(ctx, param, value):
+        values = value if isinstance(value, tuple) else (value,)
+        for v in values:
+            if v is None:
+                continue
+            _finite(v, param)
+            if inside(v):
+                continue
+            lo = ("(" if low_open else "[") + f"{low:g}"
+            hi = f"{high:g}" + (")" if high_open else "]")
+            if percent and v > 1 and inside(v / 100):
+                raise click.BadParameter(f"{v:g} looks like a percentage; give it as a "
+                                         f"fraction: use {v / 100:g}", param=param)
+            raise click.BadParameter(f"{v:g} is outside {lo}, {hi}"
+                                     + (f" ({hint})" if hint else ""), param=param)
+        return value
+    return check
+
+
+def _positive(ctx, param, value):
+    values = value if isinstance(value, tuple) else (value,)
+    for v in values:
+        if v is not None and not (_finite(v, param) > 0):
+            raise click.BadParameter(f"{v:g} is not allowed; it must be greater than 0",
+                                     param=param)
+    return value
+
+
+def _finite_values(ctx, param, value):
+    for v in (value if isinstance(value, tuple) else (value,)):
+        _finite(v, param)
+    return value
+
+
+_correlation = _fraction(-1, 1, hint="a correlation lies strictly between -1 and 1")
+
+
 def _metric_option(f):
-    return click.option("--metric", type=click.Choice(["d", "r"]), default="d", show_default=True,
-                        help="Common metric: d = Hedges' g, r = Fisher's z of the correlation.")(f)
+    return click.option("--metric", type=click.Choice(["d", "r"]), default=None,
+                        help="Common metric: d = Hedges' g, r = Fisher's z of the correlation. "
+                             "[default: d; in plan, run and demo: r for the correlation and "
+                             "regression-increment designs, d otherwise; a d planned on a "
+                             "correlational design (or an r on a group design) is converted, "
+                             "and the output says how]")(f)
 
 
 def _within_r_option(f):
     return click.option("--within-r", type=float, default=0.5, show_default=True,
+                        callback=_correlation,
                         help="Correlation between repeated measures for within-subject rows "
                              "that do not give one (an assumption, printed).")(f)
 
 
 def _sample_r_option(f):
     return click.option("--sample-r", type=float, default=0.5, show_default=True,
+                        callback=_correlation,
                         help="Assumed correlation between outcomes of rows that share a "
                              "'sample' (they are combined into one effect).")(f)
 
@@ -113,7 +179,7 @@ def convert(sheet, metric, within_r, sample_r, as_json):
       pooler convert my_literature.csv --metric r --json
     """
     from .report import effects_text
-    s, eff = _load(sheet, metric, within_r, sample_r)
+    s, eff = _load(sheet, metric or "d", within_r, sample_r)
     _echo_warnings(eff.warnings)
     if as_json:
         _print_json(eff.to_dict())
@@ -134,11 +200,12 @@ def _pooling_options(f):
 
 
 def _scenario_options(f):
-    f = click.option("--sesoi", type=float, default=None,
+    f = click.option("--sesoi", type=float, default=None, callback=_positive,
                      help="Smallest effect size of interest (d, or r): the pessimistic scenario "
                           "never goes below it.")(f)
     f = click.option("--safeguard", "safeguard_level", type=float, default=0.6,
-                     show_default=True,
+                     show_default=True, callback=_fraction(0, 1, percent=True,
+                                                       hint="a two-sided level, e.g. 0.6"),
                      help="Two-sided level of the safeguard interval for the pessimistic "
                           "scenario (Perugini et al. 2014).")(f)
     f = click.option("--adjuster", type=click.Choice(["default", "median", "3psm", "pet-peese",
@@ -155,9 +222,17 @@ def _analysis_options(f):
     return f
 
 
+def _check_sesoi(sesoi, metric):
+    if sesoi is not None and metric == "r" and not sesoi < 1:
+        from .errors import OptionError
+        raise OptionError(f"--sesoi {sesoi:g} is not a correlation; with the r metric the "
+                          "smallest effect of interest must lie below 1")
+
+
 def _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster, safeguard_level,
              sesoi):
     from .pipeline import analyse
+    _check_sesoi(sesoi, metric)
     a = analyse(sheet, metric=metric, within_r=within_r, sample_r=sample_r, estimator=estimator,
                 interval=interval, adjuster=adjuster, safeguard_level=safeguard_level,
                 sesoi=sesoi)
@@ -188,7 +263,7 @@ def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
       pooler pool my_literature.csv --sesoi 0.2 --adjuster median
     """
     from .report import bias_text, pooled_text, scenarios_text
-    a = _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster,
+    a = _analyse(sheet, metric or "d", within_r, sample_r, estimator, interval, adjuster,
                  safeguard_level, sesoi)
     if as_json:
         _print_json(a.pool_document())
@@ -205,25 +280,37 @@ def _planning_options(f):
         click.option("--design", type=click.Choice(list(_DESIGNS)), default="two-group",
                      show_default=True, help="The planned study's design."),
         click.option("--alpha", type=float, default=0.05, show_default=True,
+                     callback=_fraction(0, 0.5, percent=True,
+                                        hint="the significance level, e.g. 0.05"),
                      help="Significance level."),
         click.option("--tails", type=click.IntRange(1, 2), default=2, show_default=True,
                      help="2 = two-tailed; 1 = one-tailed in the hypothesised direction."),
         click.option("--power", "powers", type=float, multiple=True,
+                     callback=_fraction(0, 1, percent=True,
+                                        hint="a target power such as 0.8; 1 would need an "
+                                             "infinite sample"),
                      help="Target power; repeat for several.  [default: 0.8 0.9 0.95]"),
         click.option("--attrition", type=float, default=0.0, show_default=True,
+                     callback=_fraction(0, 1, low_open=False, percent=True,
+                                        hint="the fraction expected to be lost, e.g. 0.1"),
                      help="Expected fraction of participants lost; totals to recruit are "
                           "inflated to n / (1 - attrition)."),
         click.option("--n", "n_total", type=click.IntRange(min=1), default=None,
                      help="A fixed feasible total N: adds power under each scenario and the "
                           "smallest detectable effect."),
         click.option("--ratio", type=float, default=1.0, show_default=True,
+                     callback=_positive,
                      help="two-group, ancova: allocation n2/n1."),
         click.option("--planned-r", type=float, default=0.5, show_default=True,
+                     callback=_correlation,
                      help="paired: planned correlation between the repeated measures "
                           "(d_z = d / sqrt(2(1 - r)); at 0.5, d_z = d)."),
         click.option("--covariate-r", type=float, default=0.5, show_default=True,
+                     callback=_correlation,
                      help="ancova: correlation between covariate (pre-test) and outcome."),
         click.option("--attenuation", type=float, default=0.5, show_default=True,
+                     callback=_fraction(0, 2, high_open=False,
+                                        hint="1 = the effect vanishes, 2 = full crossover"),
                      help="interaction-2x2: share of the simple effect that disappears at the "
                           "other moderator level (1 = vanishes, 2 = full crossover)."),
         click.option("--predictors-added", type=click.IntRange(min=1), default=1,
@@ -246,12 +333,22 @@ _DESIGNS = ("two-group", "paired", "one-sample", "correlation", "ancova", "inter
 
 
 def _planning_metric(metric, design):
-    """Correlational designs plan on r, whatever --metric says; others keep it."""
-    return "r" if design in ("correlation", "regression-increment") else metric
+    """--metric as given; when not given, the design's own metric (r for the correlational
+    designs, d otherwise). A metric that differs from the design's is converted by
+    pooler.planning, which says so in the plan's notes."""
+    if metric is not None:
+        return metric
+    from .planning import design_metric
+    return design_metric(design)
 
 
 def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
                  predictors_total, exact_r):
+    from .errors import OptionError
+    if predictors_total is not None and predictors_total < predictors_added:
+        raise OptionError(f"--predictors-total {predictors_total} is smaller than "
+                          f"--predictors-added {predictors_added}; the full model contains the "
+                          "added predictors")
     from .power import Design
     return Design(design, ratio=ratio, planned_r=planned_r, covariate_r=covariate_r,
                   attenuation=attenuation, predictors_added=predictors_added,
@@ -260,10 +357,11 @@ def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_
 
 @main.command()
 @click.argument("sheet", type=click.Path(dir_okay=False), required=False)
-@click.option("--effect", "effects", type=float, multiple=True,
-              help="Planning effect (d, or r with --metric r); repeat for several. "
+@click.option("--effect", "effects", type=float, multiple=True, callback=_finite_values,
+              help="Planning effect (d; r with --metric r, the default for the correlation "
+                   "and regression-increment designs); repeat for several. "
                    "Use instead of SHEET.")
-@click.option("--effect-sd", type=float, default=None,
+@click.option("--effect-sd", type=float, default=None, callback=_positive,
               help="With --effect: SD of the predictive distribution of the true effect "
                    "(sqrt(SE^2 + tau^2)); adds the n for a target assurance, centred on the "
                    "first --effect.")
@@ -301,6 +399,9 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     analysis = None
     if sheet and effects:
         raise OptionError("give either SHEET or --effect, not both")
+    if sheet and effect_sd is not None:
+        raise OptionError("--effect-sd goes with --effect; from a SHEET the predictive "
+                          "distribution comes from the pooled literature")
     metric = _planning_metric(metric, design)
     if sheet:
         analysis = _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster,
@@ -312,6 +413,15 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
         label = "g" if pmetric == "d" else "r"
     elif effects:
         pmetric = metric
+        bad = [e for e in effects if pmetric == "r" and not -1 < e < 1]
+        if bad:
+            own = design in ("correlation", "regression-increment")
+            why = (f"on the r metric, the default of the {design} design," if own
+                   else "with --metric r")
+            raise OptionError(f"--effect {bad[0]:g} is not a correlation ({why} a planning "
+                              "effect lies strictly between -1 and 1)"
+                              + ("; for a standardised mean difference give --metric d"
+                                 if own else ""))
         names = ["given"] if len(effects) == 1 else [f"given {i + 1}" for i in range(len(effects))]
         scen = [PlanningEffect(nm, e) for nm, e in zip(names, effects)]
         predictive = None
@@ -386,6 +496,7 @@ def _whole_job(ctx, sheet, sheet_label, params):
                        p["attenuation"], p["predictors_added"], p["predictors_total"],
                        p["exact_r"])
     metric = _planning_metric(p["metric"], p["design"])
+    _check_sesoi(p["sesoi"], metric)
     analysis_options = {"metric": metric, "within_r": p["within_r"], "sample_r": p["sample_r"],
                         "estimator": p["estimator"], "interval": p["interval"],
                         "adjuster": p["adjuster"], "safeguard_level": p["safeguard_level"],
@@ -463,6 +574,7 @@ def demo_cmd(ctx, **params):
 @click.option("--workers", type=click.IntRange(min=1), default=2, show_default=True,
               help="Processes to spread the work over (results do not depend on it).")
 @click.option("--power", "target", type=float, default=0.8, show_default=True,
+              callback=_fraction(0, 1, percent=True, hint="a target power such as 0.8"),
               help="Target power the planning rules are asked for.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for stress.json and the figure stress.<format>.")
@@ -494,15 +606,14 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
     from .simulate import Shapes, calibration_grid, grid_around, stress_test
     if calibration == bool(sheet):
         raise OptionError("give a SHEET, or --calibration for the general grid (not both)")
-    if not 0 < target < 1:
-        raise OptionError("--power must lie strictly between 0 and 1")
     if out_dir:
         from .outputs import check_out
         check_out(out_dir, force)
     if calibration:
         cells, shapes = calibration_grid(), Shapes.generic()
     else:
-        a = _analyse(sheet, metric, within_r, sample_r, "reml", "hksj", "default", 0.6, None)
+        a = _analyse(sheet, metric or "d", within_r, sample_r, "reml", "hksj", "default", 0.6,
+                     None)
         cells, shapes = grid_around(a), Shapes.from_effects(a.effects)
     bar = None
     if sys.stderr.isatty():

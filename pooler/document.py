@@ -215,6 +215,8 @@ def build_blocks(run) -> list[Block]:
                        rows=tuple((s, _num(pw)) for s, _, pw in fx.power)))
         b.append(Block("table", headers=("target power", f"smallest {plan.design.effect_label}"),
                        rows=tuple((f"{100 * t:g}%", _cell(de)) for t, de, _ in fx.detectable)))
+    for note in getattr(plan, "notes", ()):
+        b.append(Block("p", md_escape("Note: " + note + ".")))
     b.append(Block("figure", text="Power against total N for each scenario, with the "
                    "assurance curve.", src="power"))
 

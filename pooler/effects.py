@@ -71,15 +71,45 @@ def raw_to_dz(d: float, r: float) -> float:
     return d / math.sqrt(2 * (1 - r))
 
 
+def group_factor(n1, n2):
+    """The factor ``a`` linking d and r for two groups of ``n1`` and ``n2``.
+
+    ``a = (n1 + n2)(n1 + n2 - 2) / (n1 n2)``. With it, ``r = d / sqrt(d^2 + a)`` is
+    exactly the point-biserial correlation of the sample when d is standardised by the
+    pooled SD: d = t sqrt(1/n1 + 1/n2) and r = t / sqrt(t^2 + df) with df = n1 + n2 - 2
+    (the identity between the pooled two-group t and the correlation of the outcome with
+    the group indicator), so ``d^2 + a = (t^2 + df) (n1 + n2) / (n1 n2)``. The same form
+    is given by Aaron, Kromrey & Ferron (1998) as ``(N^2 - 2N) / (n1 n2)`` (from memory).
+    Borenstein et al. (2009) eq. 7.5 uses its large-sample form ``(n1 + n2)^2 / (n1 n2)``,
+    with which the conversion gives t / sqrt(t^2 + N) instead; both reduce to ``a = 4``
+    for equal groups as N grows. Works on scalars and arrays.
+
+    Examples
+    --------
+    >>> round(group_factor(10, 500), 4)
+    51.816
+    >>> t, n1, n2 = 3.0, 10, 500
+    >>> d = t * (1 / n1 + 1 / n2) ** 0.5
+    >>> round(d_to_r(d, 0.1, group_factor(n1, n2))[0], 6) == round(t / (t * t + 508) ** 0.5, 6)
+    True
+    """
+    n = n1 + n2
+    return n * (n - 2) / (n1 * n2)
+
+
 def r_to_d(r: float, var_r: float, a: float = 4.0) -> tuple[float, float]:
-    """Correlation to d, Borenstein et al. (2009) eqs. 7.5-7.6, generalised to unequal
-    groups with ``a = (n1 + n2)^2 / (n1 n2)`` (``a = 4`` for equal groups)."""
+    """Correlation to d, Borenstein et al. (2009) eqs. 7.5-7.6 with a general factor
+    ``a`` (``a = 4`` for equal groups of unknown size; :func:`group_factor` when the
+    group sizes are known): ``d = sqrt(a) r / sqrt(1 - r^2)``, ``V_d = a V_r / (1 - r^2)^3``.
+    """
     d = math.sqrt(a) * r / math.sqrt(1 - r * r)
     return d, a * var_r / (1 - r * r) ** 3
 
 
 def d_to_r(d: float, var_d: float, a: float = 4.0) -> tuple[float, float]:
-    """d to a correlation, Borenstein et al. (2009) eqs. 7.7-7.8."""
+    """d to a correlation, Borenstein et al. (2009) eqs. 7.7-7.8 with a general factor
+    ``a`` (see :func:`r_to_d`): ``r = d / sqrt(d^2 + a)``, ``V_r = a^2 V_d / (d^2 + a)^3``
+    (the delta method: dr/dd = a / (d^2 + a)^{3/2})."""
     r = d / math.sqrt(d * d + a)
     return r, a * a * var_d / (d * d + a) ** 3
 
@@ -265,9 +295,16 @@ class _Raw:
     n2: float | None
     df_j: float | None  # df for Hedges' J; None: no correction possible
     design: str
-    a: float = 4.0
     within_r: float | None = None
     notes: list[str] = field(default_factory=list)
+
+    @property
+    def a(self) -> float:
+        """The d <-> r factor: :func:`group_factor` for two groups of known (or equally
+        split) size, else 4 (Borenstein et al. 2009 eq. 7.5, equal groups)."""
+        if self.design == "between" and self.n1 and self.n2 and self.n1 + self.n2 > 2:
+            return group_factor(self.n1, self.n2)
+        return 4.0
 
 
 class _Ctx:
@@ -531,8 +568,7 @@ def _from_r(ctx: _Ctx, rec: Record) -> _Raw:
 
 
 def _r_raw(r, n, n1, n2, notes) -> _Raw:
-    a = 4.0 if n1 is None else (n1 + n2) ** 2 / (n1 * n2)
-    return _Raw("r", r, None, n, n1, n2, n - 2, "between", a=a, notes=notes)
+    return _Raw("r", r, None, n, n1, n2, n - 2, "between", notes=notes)
 
 
 def _from_chi2(ctx: _Ctx, rec: Record) -> _Raw:

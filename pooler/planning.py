@@ -61,10 +61,12 @@ class FixedN:
     power: tuple[tuple[str, float, float], ...]           # (scenario, effect, power)
     detectable: tuple[tuple[float, float | NotEstimable, float | NotEstimable], ...]
     # (target power, effect in design metric, effect on literature metric)
+    n_total_used: int | None = None  # the total the groups really add up to
 
     def to_dict(self) -> dict:
         return to_jsonable({
             "n_total": self.n_total, "n_per_group": self.n_per_group,
+            "n_total_used": self.n_total if self.n_total_used is None else self.n_total_used,
             "power": [{"scenario": s, "effect": e, "power": p} for s, e, p in self.power],
             "detectable": [{"power": t, "design_effect": de, "effect": e}
                            for t, de, e in self.detectable]})
@@ -86,6 +88,9 @@ class Plan:
         One per scenario × target power, scenario-major.
     assurance : AssuranceResult, NotEstimable or None
     fixed_n : FixedN or None
+    notes : tuple of str
+        What the table silently depends on, in words: a conversion between the
+        literature's metric and the design's, a fixed N that does not split evenly.
     """
 
     design: Design
@@ -99,6 +104,7 @@ class Plan:
     assurance: AssuranceResult | NotEstimable | None = None
     fixed_n: FixedN | None = None
     effect_label: str = "g"
+    notes: tuple[str, ...] = ()
 
     @property
     def alternative(self) -> str:
@@ -125,6 +131,7 @@ class Plan:
             NotEstimable("no predictive distribution given"),
             "fixed_n": self.fixed_n if self.fixed_n is not None else
             NotEstimable("no fixed N given (use --n)"),
+            "notes": list(self.notes),
         })
 
     def __repr__(self) -> str:
@@ -216,13 +223,60 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
             assurance = n_for_assurance(mean, sd, tuple(assurance_targets or powers), des, alpha,
                                         alternative, "r" if metric == "r" else "d")
 
+    notes = [] if conversion_note(metric, des) is None else [conversion_note(metric, des)]
     fixed = None
     if n_total is not None:
         fixed = _fixed_n(int(n_total), scenarios, effects, deff, des, metric, alpha, alternative,
                          powers)
+        if fixed.n_total_used != fixed.n_total:
+            unit = "per cell" if des.name == "interaction-2x2" else "per group"
+            notes.append(f"a total N of {fixed.n_total} does not split into whole groups as "
+                         f"planned: the fixed-N figures are for {fixed.n_per_group} {unit}, "
+                         f"{fixed.n_total_used} in all")
     return Plan(design=des, metric=metric, alpha=alpha, tails=tails, powers=powers,
                 attrition=attrition, scenarios=scenarios, rows=tuple(rows), assurance=assurance,
-                fixed_n=fixed, effect_label=effect_label or ("g" if metric == "d" else "r"))
+                fixed_n=fixed, effect_label=effect_label or ("g" if metric == "d" else "r"),
+                notes=tuple(notes))
+
+
+#: designs whose test is on a correlation (their own metric is r); the others test a d
+CORRELATIONAL = ("correlation", "regression-increment")
+
+
+def design_metric(design) -> str:
+    """The metric a design plans on when the user does not choose one: r for the
+    correlational designs, d otherwise."""
+    return "r" if _design(design).name in CORRELATIONAL else "d"
+
+
+def conversion_note(metric: str, design) -> str | None:
+    """The sentence saying how planning effects on ``metric`` reach the design's test, when
+    they must be converted (a d for a correlational design, an r for a group design); None
+    when no conversion is made. The conversions are those of
+    :func:`pooler.power.to_design_effect` (Borenstein et al. 2009, eqs. 7.5 and 7.7 with
+    a = 4, i.e. two equal groups).
+
+    Examples
+    --------
+    >>> conversion_note("d", "two-group") is None
+    True
+    >>> conversion_note("d", "correlation")[:40]
+    'the planning effects are d, and the corr'
+    """
+    des = _design(design)
+    metric = {"g": "d", "z": "r"}.get(metric, metric)
+    if metric == design_metric(des):
+        return None
+    if metric == "d":
+        then = ("" if des.name == "correlation"
+                else ", then f^2 = r^2 / (1 - r^2)")
+        return (f"the planning effects are d, and the {des.name} design tests a correlation: "
+                "each d is converted to r = d / sqrt(d^2 + 4), the correlation of the outcome "
+                "with membership of one of two equal groups (Borenstein et al. 2009, eq. 7.7)"
+                f"{then}; give --metric r to plan on a correlation directly")
+    return (f"the planning effects are correlations, and the {des.name} design tests a "
+            "standardised mean difference: each r is converted to d = 2 r / sqrt(1 - r^2), "
+            "as if it compared two equal groups (Borenstein et al. 2009, eq. 7.5)")
 
 
 def per_group(n_total: int, design: Design) -> int:
@@ -243,6 +297,7 @@ def _fixed_n(n_total, scenarios, effects, deff, des, metric, alpha, alternative,
     power = tuple((s.scenario, float(e), float(p) if d > 0 else 0.0)
                   for s, e, d, p in zip(scenarios, effects, deff, np.atleast_1d(pw)))
     det = []
+    used = int(des.n_total(n))
     for p in powers:
         x = float(detectable_effect(n, p, des, alpha, alternative))
         if math.isfinite(x):
@@ -250,4 +305,5 @@ def _fixed_n(n_total, scenarios, effects, deff, des, metric, alpha, alternative,
         else:
             why = NotEstimable("no effect in range reaches this power at this N")
             det.append((p, why, why))
-    return FixedN(n_total=n_total, n_per_group=n, power=power, detectable=tuple(det))
+    return FixedN(n_total=n_total, n_per_group=n, power=power, detectable=tuple(det),
+                  n_total_used=used)

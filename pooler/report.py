@@ -102,6 +102,8 @@ def plan_text(plan) -> str:
     reasons = {str(r.n_total) for r in plan.rows if isinstance(r.n_total, NotEstimable)}
     for why in sorted(reasons):
         out.append(f"  cannot be reached: {why.removeprefix('not estimable: ')}")
+    for note in getattr(plan, "notes", ()):
+        out.append(f"  note: {note}")
     a = plan.assurance
     if a is not None:
         out += ["", "Assurance (expected power over the predictive distribution of the true effect):"]

@@ -57,6 +57,17 @@ def write_template(path: str | Path) -> list[Path]:
     suffix = p.suffix.lower()
     if suffix not in (".csv", ".tsv", ".xlsx"):
         raise OptionError(f"the template path must end in .csv, .tsv or .xlsx, not '{p.name}'")
+    if not p.parent.is_dir():
+        why = "is a file, not a folder" if p.parent.exists() else "does not exist"
+        raise OptionError(f"cannot write {p}: the folder '{p.parent}' {why}; "
+                          "create the folder first or choose another path")
+    try:
+        return _write(p, suffix)
+    except OSError as exc:
+        raise OptionError(f"cannot write {p}: {exc.strerror or exc}") from None
+
+
+def _write(p: Path, suffix: str) -> list[Path]:
     rows = [[r.get(c, "") for c in TEMPLATE_COLUMNS] for r in EXAMPLE_ROWS]
     guide = [(c, COLUMN_GUIDE[c]) for c in TEMPLATE_COLUMNS]
     if suffix == ".xlsx":

@@ -16,7 +16,7 @@ from numpy.testing import assert_allclose
 from scipy import stats
 
 from pooler import convert, read_sheet
-from pooler.effects import d_to_r, hedges_j, r_to_d
+from pooler.effects import d_to_r, group_factor, hedges_j, r_to_d
 
 
 def one(write_sheet, metric="d", **row):
@@ -136,11 +136,86 @@ def test_correlation_to_d_by_hand(write_sheet):
 
 
 def test_d_r_round_trip_with_group_factor():
-    # [B] eqs. 7.7-7.8 invert 7.5-7.6 for any a = (n1 + n2)^2 / (n1 n2)
-    for a in (4.0, (30 + 70) ** 2 / (30 * 70)):
+    # [B] eqs. 7.7-7.8 invert 7.5-7.6 for any factor a: 4, [B]'s (n1 + n2)^2 / (n1 n2), and
+    # the exact group factor N (N - 2) / (n1 n2) that pooler uses
+    for a in (4.0, (30 + 70) ** 2 / (30 * 70), group_factor(30, 70)):
         r, vr = d_to_r(0.6, 0.05, a)
         d, vd = r_to_d(r, vr, a)
         assert_allclose([d, vd], [0.6, 0.05], rtol=1e-12)
+
+
+def test_d_to_r_is_the_point_biserial_correlation():
+    # The pooled two-group t and the correlation of the outcome with the group indicator
+    # satisfy r = t / sqrt(t^2 + df), df = n1 + n2 - 2 (point-biserial identity), and
+    # d = t sqrt(1/n1 + 1/n2) ([B] eq. 4.18 via t). Over many generated (t, n1, n2),
+    # d -> r ([B] eq. 7.7) with a = group_factor(n1, n2) must give that r, and r -> d
+    # ([B] eq. 7.5) must give d back. [B]'s large-sample a = N^2/(n1 n2) gives t / sqrt(t^2 + N)
+    # instead (shown too, so the test says which identity each factor satisfies).
+    rng = np.random.default_rng(11)
+    t = rng.normal(0, 4, 5000)
+    n1 = rng.integers(2, 2000, 5000).astype(float)
+    n2 = rng.integers(2, 2000, 5000).astype(float)
+    n2 = np.where(n1 + n2 < 4, 3.0, n2)
+    d = t * np.sqrt(1 / n1 + 1 / n2)
+    a = group_factor(n1, n2)
+    r_pb = t / np.sqrt(t * t + n1 + n2 - 2)
+    got = np.array([d_to_r(di, 1.0, ai)[0] for di, ai in zip(d, a)])
+    assert_allclose(got, r_pb, rtol=1e-12, atol=1e-15)
+    back = np.array([r_to_d(ri, 1.0, ai)[0] for ri, ai in zip(r_pb, a)])
+    assert_allclose(back, d, rtol=1e-10, atol=1e-13)
+    a_large = (n1 + n2) ** 2 / (n1 * n2)
+    got_large = np.array([d_to_r(di, 1.0, ai)[0] for di, ai in zip(d, a_large)])
+    assert_allclose(got_large, t / np.sqrt(t * t + n1 + n2), rtol=1e-12, atol=1e-15)
+    # equal groups: a -> 4 ([B] eq. 7.5) as N grows
+    assert_allclose(group_factor(1e8, 1e8), 4.0, rtol=1e-7)
+
+
+def test_group_factor_matches_a_correlation_computed_from_data():
+    # Independent of the t identity: simulate two groups, standardise the mean difference by
+    # the pooled SD, and compare d -> r with numpy's Pearson correlation of y with the group
+    # indicator (the point-biserial correlation).
+    rng = np.random.default_rng(12)
+    for _ in range(200):
+        n1, n2 = (int(x) for x in rng.integers(2, 300, 2))
+        y1 = rng.normal(rng.normal(0, 1), 1, n1)
+        y2 = rng.normal(0, 1, n2)
+        sp = math.sqrt(((n1 - 1) * y1.var(ddof=1) + (n2 - 1) * y2.var(ddof=1)) / (n1 + n2 - 2))
+        d = (y1.mean() - y2.mean()) / sp
+        r_data = np.corrcoef(np.r_[np.ones(n1), np.zeros(n2)], np.r_[y1, y2])[0, 1]
+        assert_allclose(d_to_r(d, 1.0, group_factor(n1, n2))[0], r_data, rtol=1e-9)
+
+
+def test_d_to_r_variance_uses_the_same_factor():
+    # The variance of the converted r is the delta method of the same conversion:
+    # V_r = (dr/dd)^2 V_d; checked against a central finite difference of d_to_r itself,
+    # so a factor in the variance that differs from the one in the estimate fails.
+    rng = np.random.default_rng(13)
+    for _ in range(500):
+        d, vd = rng.normal(0, 1.5), rng.uniform(0.001, 0.5)
+        n1, n2 = (float(x) for x in rng.integers(2, 1000, 2))
+        a = group_factor(n1, n2) if n1 + n2 > 2 else 4.0
+        h = 1e-6
+        slope = (d_to_r(d + h, vd, a)[0] - d_to_r(d - h, vd, a)[0]) / (2 * h)
+        assert_allclose(d_to_r(d, vd, a)[1], slope ** 2 * vd, rtol=1e-6)
+        r = d_to_r(d, vd, a)[0]
+        slope_back = (r_to_d(r + h, vd, a)[0] - r_to_d(r - h, vd, a)[0]) / (2 * h)
+        assert_allclose(r_to_d(r, vd, a)[1], slope_back ** 2 * vd, rtol=1e-5)
+
+
+def test_unequal_groups_on_r_give_the_point_biserial_r(write_sheet):
+    # The same result reported as t(508) = 3 with 10 + 500, and as its correlation:
+    # on --metric r the t row is r = t / sqrt(t^2 + df) = 0.131940 (not 0.432, which a = 4
+    # gave), and on d both rows agree (the r row rounded to 4 decimals).
+    eff = convert(read_sheet(write_sheet([
+        {"study": "A", "stat": "t", "value": 3, "n1": 10, "n2": 500},
+        {"study": "B", "stat": "r", "value": 0.131940, "n1": 10, "n2": 500}])), "r")
+    a, b = eff.rows
+    assert_allclose(math.tanh(a.effect), 3 / math.sqrt(9 + 508), rtol=1e-12)
+    assert_allclose(math.tanh(b.effect), 0.131940, rtol=1e-12)
+    eff_d = convert(read_sheet(write_sheet([
+        {"study": "A", "stat": "t", "value": 3, "n1": 10, "n2": 500},
+        {"study": "B", "stat": "r", "value": 0.131940, "n1": 10, "n2": 500}])), "d")
+    assert_allclose(eff_d.rows[0].effect, eff_d.rows[1].effect, rtol=1e-5)
 
 
 def test_fisher_z_metric(write_sheet):
@@ -148,11 +223,14 @@ def test_fisher_z_metric(write_sheet):
     r, eff = one(write_sheet, "r", stat="r", value=0.3, n=85)
     assert eff.metric == "z"
     assert_allclose([r.effect, r.variance], [math.atanh(0.3), 1 / 82], rtol=1e-12)
-    # a d converted to r ([B] 7.7-7.8), then z with the delta-method variance V_r / (1 - r^2)^2
+    # a d converted to r ([B] 7.7-7.8 with the exact group factor a = N(N - 2)/(n1 n2) = 3.9
+    # for 40 + 40, see test_d_to_r_is_the_point_biserial_correlation), then z with the
+    # delta-method variance V_r / (1 - r^2)^2
     r2, _ = one(write_sheet, "r", stat="d", value=0.5, n1=40, n2=40)
     vd = 80 / 1600 + 0.25 / 160
-    rr = 0.5 / math.sqrt(0.25 + 4)
-    vr = 16 * vd / (0.25 + 4) ** 3
+    a = 80 * 78 / 1600
+    rr = 0.5 / math.sqrt(0.25 + a)
+    vr = a * a * vd / (0.25 + a) ** 3
     assert_allclose([r2.effect, r2.variance], [math.atanh(rr), vr / (1 - rr * rr) ** 2],
                     rtol=1e-12)
 
