@@ -260,16 +260,13 @@ def key_numbers(run) -> list[tuple[str, str]]:
 
 
 def _power_basis(design) -> str:
-    """How the planning power was computed, in words (only the Fisher z test and covariates
-    held fixed are approximations)."""
-    if design.name == "correlation" and not design.exact_r:
-        return "the Fisher z approximation"
-    if design.name in ("ancova", "regression-increment"):
-        kind = "covariate" if design.name == "ancova" else "predictors"
-        if design.fixed_covariates:
-            return (f"noncentral distributions with the {kind} values held fixed (an "
-                    "approximation when they are sampled)")
-        return f"the exact power averaged over normally distributed {kind}"
+    """How the planning power was computed, in words: the Fisher z test and covariates held
+    fixed are approximations; the design description says which covariate model was used."""
+    if design.name == "correlation":
+        return "the exact distribution of r" if design.exact_r else "the Fisher z approximation"
+    if design.name in ("ancova", "regression-increment") and design.fixed_covariates:
+        kind = "covariate" if design.name == "ancova" else "predictor"
+        return f"noncentral distributions (an approximation when the {kind} values are sampled)"
     return "exact noncentral distributions"
 
 

@@ -161,10 +161,11 @@ class Design:
         return self.name + (f" ({extra})" if extra else "")
 
     def _covariate_basis(self) -> str:
-        kind = "covariate" if self.name == "ancova" else "predictors"
+        ancova = self.name == "ancova"
         if self.fixed_covariates:
+            kind = "covariate" if ancova else "predictor"
             return f"{kind} values held fixed (approximate if sampled)"
-        return f"power averaged over normally distributed {kind}"
+        return "power averaged over " + ("a normal covariate" if ancova else "normal predictors")
 
     def to_dict(self) -> dict:
         return {"name": self.name, "ratio": self.ratio, "planned_r": self.planned_r,

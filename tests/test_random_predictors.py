@@ -71,19 +71,23 @@ def _quad_increment(f2, n, u, p, alpha, m=None):
 
 
 def _quad_ancova(d, n1, n2, rho, alpha):
-    """E over B ~ Beta((N - 2)/2, 1/2) of the noncentral-t power, by adaptive quadrature."""
+    """E over the covariate imbalance of the noncentral-t power, by adaptive quadrature.
+
+    Written over F = D² (1/n1 + 1/n2)⁻¹ / (W / (N - 2)) ~ F(1, N - 2) (D the difference in
+    covariate means, W the within-group sum of squares), the noncentrality being
+    δ₀ / √(1 + F / (N - 2)); the module integrates over B = 1 / (1 + F / (N - 2)) instead.
+    """
     n = n1 + n2
     delta0 = d * math.sqrt(n1 * n2 / n) / math.sqrt(1 - rho * rho)
     crit = stats.t.isf(alpha / 2, n - 3)
-    a = (n - 2) / 2
 
-    def g(b):
-        lam = delta0 * math.sqrt(b)
+    def g(f):
+        lam = delta0 / math.sqrt(1 + f / (n - 2))
         return (stats.nct.sf(crit, n - 3, lam) + stats.nct.cdf(-crit, n - 3, lam)) * \
-            stats.beta.pdf(b, a, 0.5)
-    lo = stats.beta.ppf(1e-14, a, 0.5)
-    mode = (a - 1) / (a - 0.5) if a > 1 else 0.5
-    return integrate.quad(g, lo, 1, points=[mode], limit=400, epsabs=1e-12)[0]
+            stats.f.pdf(f, 1, n - 2)
+    body = integrate.quad(g, 0, 5, points=[1e-6, 1e-3, 1], limit=500, epsabs=1e-14,
+                          epsrel=1e-13)[0]
+    return body + integrate.quad(g, 5, np.inf, limit=500, epsabs=1e-14)[0]
 
 
 def test_increment_quadrature_against_adaptive_quadrature():
@@ -92,7 +96,7 @@ def test_increment_quadrature_against_adaptive_quadrature():
                         (0.3, 4, 1, 1), (0.001, 20000, 1, 3), (2.0, 6, 2, 3)]:
         ours = float(power_at(f2, n, Design("regression-increment", predictors_added=u,
                                                  predictors_total=p)))
-        assert_allclose(ours, _quad_increment(f2, n, u, p, 0.05), atol=1e-8,
+        assert_allclose(ours, _quad_increment(f2, n, u, p, 0.05), atol=1e-9, rtol=0,
                         err_msg=f"f2={f2} n={n} u={u} p={p}")
 
 
@@ -101,7 +105,7 @@ def test_ancova_quadrature_against_adaptive_quadrature():
                            (0.15, 500, 300, 0.3), (0.3, 40, 80, 0.9), (2.0, 2, 2, 0.5),
                            (1.5, 3, 3, 0.9), (0.02, 20000, 20000, 0.5)]:
         ours = float(ancova_power(d, n1, n2, rho, 0.05))
-        assert_allclose(ours, _quad_ancova(d, n1, n2, rho, 0.05), atol=1e-8,
+        assert_allclose(ours, _quad_ancova(d, n1, n2, rho, 0.05), atol=1e-9, rtol=0,
                         err_msg=f"d={d} n={n1}+{n2} rho={rho}")
 
 
@@ -276,9 +280,21 @@ def test_cli_default_and_fixed_covariates_flag():
     assert fixed.exit_code == 0, fixed.output
     assert ",0.8,64,128," in fixed.output
     text = runner.invoke(main, base)
-    assert "power averaged over normally distributed covariate" in text.output
+    assert "power averaged over a normal covariate" in text.output
     text = runner.invoke(main, ["plan", "--effect", "0.25", "--metric", "r", "--design",
                                 "regression-increment", "--predictors-total", "8",
                                 "--power", "0.8", "--table", "csv", "--fixed-covariates"])
     assert text.exit_code == 0, text.output
     assert ",0.8,120,120," in text.output
+
+
+def test_methods_sentence_says_exact_only_where_exact():
+    from pooler.document import _power_basis
+    assert _power_basis(Design("ancova")) == "exact noncentral distributions"
+    assert "approximation" in _power_basis(Design("ancova", fixed_covariates=True))
+    assert "approximation" in _power_basis(Design("regression-increment",
+                                                  fixed_covariates=True))
+    assert "approximation" in _power_basis(Design("correlation"))
+    assert _power_basis(Design("correlation", exact_r=True)) == "the exact distribution of r"
+    assert "averaged over normal predictors" in Design("regression-increment").describe()
+    assert "held fixed" in Design("ancova", fixed_covariates=True).describe()
