@@ -211,6 +211,10 @@ def test_issue_examples():
     assert_allclose(float(power_at(0.4, 64, des)), 0.7983, atol=5e-5)
     assert int(n_for_power(0.4, 0.8, des).n) == 65
     assert int(n_for_power(0.4, 0.8, fixed).n) == 64
+    # d = .8, rho = .7: 14 per group held fixed (.813), but 14 really gives .797; 15 needed
+    des, fixed = (Design("ancova", covariate_r=0.7, fixed_covariates=f) for f in (False, True))
+    assert (int(n_for_power(0.8, 0.8, fixed).n), int(n_for_power(0.8, 0.8, des).n)) == (14, 15)
+    assert_allclose(float(power_at(0.8, 14, des)), 0.7973, atol=5e-5)
     # u = 1 of p = 8, partial r = .25: 120 with λ = f² N, 130 with normal predictors
     reg = dict(predictors_added=1, predictors_total=8)
     assert int(n_for_power(f2_of(0.25), 0.8, Design("regression-increment", **reg)).n) == 130
