@@ -320,6 +320,11 @@ def _planning_options(f):
                           "[default: the added ones]."),
         click.option("--exact-r", is_flag=True,
                      help="correlation: use the exact distribution of r, not Fisher's z."),
+        click.option("--fixed-covariates", is_flag=True,
+                     help="ancova, regression-increment: hold the covariate / predictor values "
+                          "fixed (right when the design sets them) instead of averaging the "
+                          "power over normally distributed ones; for sampled values this "
+                          "overstates the power slightly."),
     ]
     for o in reversed(opts):
         f = o(f)
@@ -343,7 +348,7 @@ def _planning_metric(metric, design):
 
 
 def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
-                 predictors_total, exact_r):
+                 predictors_total, exact_r, fixed_covariates=False):
     from .errors import OptionError
     if predictors_total is not None and predictors_total < predictors_added:
         raise OptionError(f"--predictors-total {predictors_total} is smaller than "
@@ -352,7 +357,8 @@ def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_
     from .power import Design
     return Design(design, ratio=ratio, planned_r=planned_r, covariate_r=covariate_r,
                   attenuation=attenuation, predictors_added=predictors_added,
-                  predictors_total=predictors_total or predictors_added, exact_r=exact_r)
+                  predictors_total=predictors_total or predictors_added, exact_r=exact_r,
+                  fixed_covariates=fixed_covariates)
 
 
 @main.command()
@@ -374,14 +380,15 @@ def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_
 def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, interval, adjuster,
          safeguard_level, sesoi, design, alpha, tails, powers, attrition, n_total, ratio,
          planned_r, covariate_r, attenuation, predictors_added, predictors_total, exact_r,
-         table_format, as_json):
+         fixed_covariates, table_format, as_json):
     """Sample size for a planned study, from a SHEET of prior results or a given effect.
 
     From SHEET: the optimistic, realistic and pessimistic planning effects (as in
     `pooler pool`) and the n for a target assurance over the predictive distribution of
     the true effect. From --effect: that effect alone. Prints the smallest n reaching each
-    target power (exact noncentral distributions); with --n, the power a fixed total N
-    gives and the smallest effect it can detect.
+    target power (noncentral t and F; the covariate of ancova and the predictors of
+    regression-increment are averaged over, unless --fixed-covariates); with --n, the power
+    a fixed total N gives and the smallest effect it can detect.
 
     \b
     Example:
@@ -395,7 +402,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     from .planning import PlanningEffect, make_plan
     from .report import plan_text
     des = _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
-                       predictors_total, exact_r)
+                       predictors_total, exact_r, fixed_covariates)
     analysis = None
     if sheet and effects:
         raise OptionError("give either SHEET or --effect, not both")
@@ -494,7 +501,7 @@ def _whole_job(ctx, sheet, sheet_label, params):
     p = dict(params)
     des = _make_design(p["design"], p["ratio"], p["planned_r"], p["covariate_r"],
                        p["attenuation"], p["predictors_added"], p["predictors_total"],
-                       p["exact_r"])
+                       p["exact_r"], p["fixed_covariates"])
     metric = _planning_metric(p["metric"], p["design"])
     _check_sesoi(p["sesoi"], metric)
     analysis_options = {"metric": metric, "within_r": p["within_r"], "sample_r": p["sample_r"],

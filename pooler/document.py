@@ -261,6 +261,17 @@ def key_numbers(run) -> list[tuple[str, str]]:
     return out
 
 
+def _power_basis(design) -> str:
+    """How the planning power was computed, in words: the Fisher z test and covariates held
+    fixed are approximations; the design description says which covariate model was used."""
+    if design.name == "correlation":
+        return "the exact distribution of r" if design.exact_r else "the Fisher z approximation"
+    if design.name in ("ancova", "regression-increment") and design.fixed_covariates:
+        kind = "covariate" if design.name == "ancova" else "predictor"
+        return f"noncentral distributions (an approximation when the {kind} values are sampled)"
+    return "exact noncentral distributions"
+
+
 def methods_paragraph(run) -> str:
     """A methods-section paragraph in our own words, every number filled in."""
     a, plan = run.analysis, run.plan
@@ -314,8 +325,8 @@ def methods_paragraph(run) -> str:
         n_txt = (f"{row.n_per_group} {unit} ({row.n_total} in total)" if unit
                  else f"N = {row.n_total}")
         s = (f"For a {tails} test at alpha = {plan.alpha:g} with {100 * first:g}% power, the "
-             f"planned {plan.design.describe()} study needs {n_txt}, computed with exact "
-             "noncentral distributions")
+             f"planned {plan.design.describe()} study needs {n_txt}, computed with "
+             f"{_power_basis(plan.design)}")
         if plan.attrition:
             s += (f"; allowing for {100 * plan.attrition:g}% attrition we will recruit "
                   f"{row.n_total_recruit}")

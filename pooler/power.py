@@ -1,4 +1,4 @@
-"""Stage 6: exact power, sample size, smallest detectable effect and assurance.
+"""Stage 6: power, sample size, smallest detectable effect and assurance.
 
 Only numpy and ``scipy.special`` are imported at module level, so that a quick
 ``pooler plan --effect 0.3`` starts fast. Everything is vectorised over numpy arrays:
@@ -13,10 +13,20 @@ design                        test                                              
 ``paired``                    t, df = n - 1, λ = d_z √n, d_z = d / √(2 (1 - ρ))        d → d_z
 ``one-sample``                t, df = n - 1, λ = d √n                                  d
 ``correlation``               Fisher z: z_r √(n - 3) (or the exact distribution of r) r
-``ancova``                    t, df = n1 + n2 - 3, λ = d √(n1 n2/(n1 + n2)) / √(1 - ρ²)  d
+``ancova``                    t, df = n1 + n2 - 3, λ = λ₀ √B, averaged over B          d
+                              λ₀ = d √(n1 n2/(n1 + n2)) / √(1 - ρ²), B ~ Beta((N-2)/2, ½)
 ``interaction-2x2``           contrast t, df = 4m - 4, λ = d a √m / 2 (m per cell)    d, a
-``regression-increment``      F(u, N - p - 1), λ = f² N, f² = r² / (1 - r²)           r → f²
+``regression-increment``      F(u, N - p - 1), λ = f² K, averaged over               r → f²
+                              K ~ χ²(N - p + u - 1), f² = r² / (1 - r²)
 ============================  ====================================================  ==========
+
+Every figure is exact (noncentral t, F or the exact distribution of r) except the Fisher z
+test of a correlation, which is the usual normal approximation (``exact_r`` gives the exact
+one). For ``ancova`` and ``regression-increment`` the covariate or predictors are taken to be
+sampled from a normal distribution, and the power is averaged over them by quadrature (see
+:mod:`pooler._random_predictors`); ``fixed_covariates=True`` gives instead the power with the
+values held fixed — Borm et al.'s λ₀ (the groups exactly balanced on the covariate) and
+Cohen's λ = f² N — which overstates the power of a study that samples them.
 
 References
 ----------
@@ -30,6 +40,8 @@ References
 .. [MD] Morris, S. B., & DeShon, R. P. (2002). *Psychological Methods*, 7(1), 105-125.
 .. [OH] O'Hagan, A., Stevens, J. W., & Campbell, M. J. (2005). Assurance in clinical
    trial design. *Pharmaceutical Statistics*, 4(3), 187-201.
+.. [GS] Gatsonis, C., & Sampson, A. R. (1989). Multiple correlation: exact power and sample
+   size calculations. *Psychological Bulletin*, 106(3), 516-524.
 .. [HK] Hotelling, H. (1953). New light on the correlation coefficient and its
    transforms. *JRSS B*, 15(2), 193-232 (density of r).
 """
@@ -73,6 +85,12 @@ class Design:
         ``regression-increment``: u predictors tested, p predictors in the full model.
     exact_r : bool
         ``correlation``: use the exact distribution of r instead of Fisher's z.
+    fixed_covariates : bool
+        ``ancova``, ``regression-increment``: hold the covariate / predictor values fixed
+        (Borm et al. 2007; Cohen 1988, λ = f² N) instead of averaging the power over
+        normally distributed ones (the default, exact when they are sampled). The fixed
+        figure is the exact power only when the values are set by the design; for sampled
+        ones it is a little too high.
     """
 
     name: str = "two-group"
@@ -83,6 +101,7 @@ class Design:
     predictors_added: int = 1
     predictors_total: int = 1
     exact_r: bool = False
+    fixed_covariates: bool = False
 
     def __post_init__(self):
         # validation
@@ -133,18 +152,27 @@ class Design:
                  "one-sample": "", "correlation": "exact distribution of r" if self.exact_r
                  else "Fisher z test",
                  "ancova": f"covariate-outcome correlation {self.covariate_r:g}, "
-                           f"allocation {self.ratio:g}",
+                           f"allocation {self.ratio:g}, " + self._covariate_basis(),
                  "interaction-2x2": f"attenuation {self.attenuation:g} "
                                     "(1 = effect vanishes, 2 = full crossover)",
                  "regression-increment": f"{self.predictors_added} of "
-                                         f"{self.predictors_total} predictors tested"}[self.name]
+                                         f"{self.predictors_total} predictors tested, "
+                                         + self._covariate_basis()}[self.name]
         return self.name + (f" ({extra})" if extra else "")
+
+    def _covariate_basis(self) -> str:
+        ancova = self.name == "ancova"
+        if self.fixed_covariates:
+            kind = "covariate" if ancova else "predictor"
+            return f"{kind} values held fixed (approximate if sampled)"
+        return "power averaged over " + ("a normal covariate" if ancova else "normal predictors")
 
     def to_dict(self) -> dict:
         return {"name": self.name, "ratio": self.ratio, "planned_r": self.planned_r,
                 "covariate_r": self.covariate_r, "attenuation": self.attenuation,
                 "predictors_added": self.predictors_added,
-                "predictors_total": self.predictors_total, "exact_r": self.exact_r}
+                "predictors_total": self.predictors_total, "exact_r": self.exact_r,
+                "fixed_covariates": self.fixed_covariates}
 
 
 def _design(design) -> Design:
@@ -282,7 +310,8 @@ def _r_exact_power(rho, n, alpha, alternative, upper_only=False):
 
 def power_at(effect, n, design="two-group", alpha=0.05, alternative="two-sided", *,
              upper_only=False) -> np.ndarray:
-    """Exact power of the planned test.
+    """Power of the planned test (exact except the Fisher z correlation test; see the
+    module docstring).
 
     Parameters
     ----------
@@ -317,8 +346,11 @@ def power_at(effect, n, design="two-group", alpha=0.05, alternative="two-sided",
         n2 = des.ratio * n
         scale = np.sqrt(n * n2 / (n + n2))
         if name == "ancova":
-            return _t_power(e * scale / math.sqrt(1 - des.covariate_r ** 2), n + n2 - 3, alpha,
-                            alternative, upper_only)
+            if des.fixed_covariates:   # Borm et al. (2007): covariate balanced, held fixed
+                return _t_power(e * scale / math.sqrt(1 - des.covariate_r ** 2), n + n2 - 3,
+                                alpha, alternative, upper_only)
+            from ._random_predictors import ancova_power
+            return ancova_power(e, n, n2, des.covariate_r, alpha, alternative, upper_only)
         return _t_power(e * scale, n + n2 - 2, alpha, alternative, upper_only)
     if name in ("paired", "one-sample"):
         return _t_power(e * np.sqrt(n), n - 1, alpha, alternative, upper_only)
@@ -335,12 +367,18 @@ def power_at(effect, n, design="two-group", alpha=0.05, alternative="two-sided",
         return sp.ndtr(z - sp.ndtri(1 - alpha))
     # regression increment
     u, p = des.predictors_added, des.predictors_total
+    if alternative == "greater" and u > 1:
+        raise OptionError("a one-tailed test is defined only when one predictor is added")
+    if not des.fixed_covariates:   # normal predictors (Gatsonis & Sampson 1989)
+        from ._random_predictors import increment_power
+        power = increment_power(e, n, u, p, alpha, alternative, upper_only)
+        if upper_only and u > 1:
+            return np.where(np.asarray(e) > 0, power, 0.0)
+        return power
     df2 = n - p - 1
-    lam = np.abs(e) * n
+    lam = np.abs(e) * n   # Cohen (1988), ch. 9: predictors held fixed
     if u == 1 and (alternative == "greater" or upper_only):
         return _t_power(np.sign(e) * np.sqrt(lam), df2, alpha, alternative, upper_only)
-    if alternative == "greater":
-        raise OptionError("a one-tailed test is defined only when one predictor is added")
     power = _f_power(lam, u, df2, alpha)
     # the F test of several predictors has no direction: for assurance, an effect against
     # the hypothesis counts as no success

@@ -55,10 +55,13 @@ def test_one_sample_and_paired_power_match_statsmodels():
 
 def test_regression_increment_matches_statsmodels_anova_power():
     # FTestAnovaPower: lambda = f^2 nobs, df = (k - 1, nobs - k); ours with u = p = k - 1
+    # and the predictors held fixed (the default averages over normal predictors, checked in
+    # tests/test_random_predictors.py)
     ref = sm_power.FTestAnovaPower()
     for f, a, u, n in itertools.product([0.1, 0.25, 0.4], GRID_ALPHA, [1, 3], [20, 80, 300]):
         p = ref.power(effect_size=f, nobs=n, alpha=a, k_groups=u + 1)
-        des = Design("regression-increment", predictors_added=u, predictors_total=u)
+        des = Design("regression-increment", predictors_added=u, predictors_total=u,
+                     fixed_covariates=True)
         assert_allclose(power_at(f * f, n, des, a), p, atol=1e-6)
 
 
@@ -170,13 +173,15 @@ def test_attenuated_interaction_needs_about_16_times_the_n():
 
 
 def test_ancova_against_scipy_nct_and_borm_rule():
-    # exact: noncentral t with lambda = d sqrt(n/2) / sqrt(1 - rho^2), df = 2n - 3,
-    # recomputed with scipy.stats.nct (a different code path from scipy.special)
+    # covariate held fixed: noncentral t with lambda = d sqrt(n/2) / sqrt(1 - rho^2),
+    # df = 2n - 3, recomputed with scipy.stats.nct (a different code path from scipy.special);
+    # the default (normal covariate) is checked in tests/test_random_predictors.py
     d, rho, n = 0.4, 0.6, 50
     lam = d * math.sqrt(n / 2) / math.sqrt(1 - rho ** 2)
     c = stats.t.ppf(0.975, 2 * n - 3)
     ref = stats.nct.sf(c, 2 * n - 3, lam) + stats.nct.cdf(-c, 2 * n - 3, lam)
-    assert_allclose(power_at(d, n, Design("ancova", covariate_r=rho)), ref, rtol=1e-9)
+    assert_allclose(power_at(d, n, Design("ancova", covariate_r=rho, fixed_covariates=True)),
+                    ref, rtol=1e-9)
     # [BFL]: n_ancova ~ n_ttest (1 - rho^2), to within a participant or two per group
     for d, rho in [(0.3, 0.5), (0.5, 0.7), (0.25, 0.3)]:
         n_t = int(n_for_power(d, 0.8).n)
