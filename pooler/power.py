@@ -118,11 +118,21 @@ class Design:
                 "ancova": "d", "interaction-2x2": "d (simple effect)",
                 "regression-increment": "f²"}[self.name]
 
+    def n2(self, n1):
+        """Size of the second group for ``n1`` in the first (``two-group``, ``ancova``).
+
+        The rounding rule: n2 = ⌈ratio × n1⌉, the smallest whole group keeping the allocation
+        at least ``ratio`` (a 1e-9 slack absorbs floating-point error, so ratio 1 gives
+        n2 = n1). Power and sample size are computed at these integer sizes.
+        """
+        n1 = np.asarray(n1)
+        return np.ceil(self.ratio * n1 - 1e-9).astype(n1.dtype)
+
     def n_total(self, n):
         """Total participants for n per group (per cell for the 2x2)."""
         n = np.asarray(n)
         if self.name in ("two-group", "ancova"):
-            return n + np.ceil(self.ratio * n - 1e-9).astype(n.dtype)
+            return n + self.n2(n)
         if self.name == "interaction-2x2":
             return 4 * n
         return n
@@ -258,12 +268,13 @@ def _f_power(lam, df1, df2, alpha):
 def _r_exact_power(rho, n, alpha, alternative, upper_only=False):
     """Power from the exact density of r (Hotelling 1953, eq. for f(r; ρ, n))."""
     from scipy.integrate import quad
-    rho, n = np.broadcast_arrays(np.asarray(rho, float), np.asarray(n, float))
+    rho, n, alpha = np.broadcast_arrays(np.asarray(rho, float), np.asarray(n, float),
+                                        np.asarray(alpha, float))
     out = np.empty(rho.shape)
     for idx in np.ndindex(rho.shape):
-        p, m = float(rho[idx]), float(n[idx])
+        p, m, a = float(rho[idx]), float(n[idx]), float(alpha[idx])
         df = m - 2
-        tc = sp.stdtrit(df, 1 - (alpha / 2 if alternative == "two-sided" else alpha))
+        tc = float(sp.stdtrit(df, 1 - (a / 2 if alternative == "two-sided" else a)))
         rc = tc / math.sqrt(tc * tc + df)
         logc = (math.log(m - 2) + sp.gammaln(m - 1) - sp.gammaln(m - 0.5)
                 - 0.5 * math.log(2 * math.pi) + (m - 1) / 2 * math.log1p(-p * p))
@@ -290,7 +301,8 @@ def power_at(effect, n, design="two-group", alpha=0.05, alternative="two-sided",
         The effect in the design's own metric (see :func:`to_design_effect`): d, d_z, r or f².
     n : array_like
         n per group (per cell for ``interaction-2x2``) or, for designs without groups, the
-        total N.
+        total N. For ``two-group`` and ``ancova`` n is the first group; the second has
+        ⌈ratio × n⌉ (:meth:`Design.n2`).
     design : str or Design
     alpha : array_like
     alternative : {"two-sided", "greater"}
@@ -314,7 +326,7 @@ def power_at(effect, n, design="two-group", alpha=0.05, alternative="two-sided",
     alpha = np.asarray(alpha, dtype=float)
     name = des.name
     if name in ("two-group", "ancova"):
-        n2 = des.ratio * n
+        n2 = des.n2(n)   # integer second group, n2 = ceil(ratio n1)
         scale = np.sqrt(n * n2 / (n + n2))
         if name == "ancova":
             return _t_power(e * scale / math.sqrt(1 - des.covariate_r ** 2), n + n2 - 3, alpha,
@@ -434,8 +446,10 @@ def n_for_power(effect, target=0.8, design="two-group", alpha=0.05,
     """Smallest integer n with power ≥ ``target`` (vectorised over broadcast inputs).
 
     ``effect`` is in the design's own metric. n is per group (per cell) or total, as in
-    :func:`power_at`; n2 = ratio × n1 is used in the search (as most software does) and
-    reported rounded up, which can only add power.
+    :func:`power_at`. With an allocation ratio the search runs over whole groups: n is the
+    smallest integer n1 whose design (n1, n2 = ⌈ratio × n1⌉) reaches the target, and the
+    power reported is that of those integer sizes. n2 never decreases as n1 grows, so power
+    is non-decreasing in n1 and the integer search is exact.
 
     Examples
     --------
