@@ -10,6 +10,7 @@ test_power.py); what is under test here is the integration and the n search.
 """
 from __future__ import annotations
 
+import json
 import math
 
 import numpy as np
@@ -189,3 +190,18 @@ def test_density_inputs_are_validated():
         EffectDensity.from_grid([0.0, 1.0], [-1.0, 1.0])
     with pytest.raises(OptionError):
         EffectDensity.from_pdf(lambda t: np.zeros_like(t), -1, 1)
+
+
+@pytest.mark.parametrize("args, n", [
+    (["--effect", "0.2", "--effect-sd", "0.2", "--design", "two-group", "--power", "0.8"], 7922),
+    (["--effect", "0.4", "--effect-sd", "0.25", "--power", "0.9"], 1339),
+    (["--effect", "0.3", "--effect-sd", "0.15", "--design", "paired", "--planned-r", "0.7",
+      "--power", "0.95"], 933),
+])
+def test_cli_assurance_n(run_cli, args, n):
+    # n from the quadrature and Monte Carlo checks above; the 64-point Gauss–Hermite rule
+    # gave 100,548, 1,398 and 947
+    res = run_cli("plan", *args, "--json")
+    assert res.exit_code == 0, res.stderr
+    row = json.loads(res.stdout)["assurance"]["rows"][0]
+    assert row["n_per_group"] == n and row["assurance"] >= row["target"]
