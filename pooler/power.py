@@ -597,11 +597,15 @@ class EffectDensity:
     def from_pdf(cls, pdf, lower: float, upper: float, metric: str = "d",
                  breaks=()) -> "EffectDensity":
         """Any vectorised density on [lower, upper] (normalised here by adaptive quadrature).
-        ``breaks`` marks points where it is not smooth."""
+
+        The support is cut into 128 equal pieces before refining, so a feature (a mode, a
+        kink) narrower than (upper - lower) / 128 should be marked in ``breaks``, as should
+        any point where the density is not smooth."""
         lower, upper = float(lower), float(upper)
         if not (math.isfinite(lower) and math.isfinite(upper) and lower < upper):
             raise OptionError("a density needs a finite support lower < upper")
-        br = tuple(sorted({lower, upper, *(float(b) for b in breaks if lower < b < upper)}))
+        br = tuple(sorted({*np.linspace(lower, upper, 129).tolist(),
+                           *(float(b) for b in breaks if lower < b < upper)}))
         total = _adaptive_integral(lambda t: np.asarray(pdf(t), float), br, 1e-12)
         if not (total > 0 and math.isfinite(total)):
             raise OptionError("the density does not integrate to a positive number")

@@ -205,3 +205,11 @@ def test_cli_assurance_n(run_cli, args, n):
     assert res.exit_code == 0, res.stderr
     row = json.loads(res.stdout)["assurance"]["rows"][0]
     assert row["n_per_group"] == n and row["assurance"] >= row["target"]
+
+
+def test_narrow_callable_density_is_not_missed():
+    # a predictive SD of 0.03 on a support 100 SDs wide, given only as a function
+    dens = EffectDensity.from_pdf(lambda t: stats.norm.pdf(t, 0.4, 0.03), -1.5, 1.5)
+    assert_allclose([dens.mean, dens.sd], [0.4, 0.03], atol=1e-9)
+    n = np.array([20, 100, 1000])
+    assert_allclose(assurance_over(dens, n), assurance(0.4, 0.03, n), atol=1e-8)
