@@ -16,8 +16,9 @@ import numpy as np
 
 from ._results import NotEstimable, to_jsonable
 from .errors import OptionError
-from .power import (AssuranceResult, Design, _design, detectable_effect, from_design_effect,
-                    n_for_assurance, n_for_power, power_at, to_design_effect)
+from .power import (AssuranceResult, Design, EffectDensity, _design, detectable_effect,
+                    from_design_effect, n_for_assurance, n_for_power, power_at,
+                    to_design_effect)
 
 
 @dataclass(frozen=True)
@@ -162,9 +163,11 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
         Target powers.
     attrition : float
         Expected fraction lost, in [0, 1): totals are inflated to n / (1 - attrition).
-    predictive : (mean, sd) or None
+    predictive : (mean, sd), EffectDensity or None
         Predictive distribution of the new study's true effect, on the literature's metric
-        (Fisher z for r), for assurance.
+        (Fisher z for r), for assurance: a Normal(mean, sd²), or any density (e.g. one
+        tabulated on a grid, :meth:`pooler.power.EffectDensity.from_grid`). Assurance is
+        integrated adaptively to 1e-9 (:func:`pooler.power.assurance_over`).
     assurance_targets : sequence of float or None
         Target assurances (default: the target powers).
     n_total : int or None
@@ -214,7 +217,11 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
                                     why, why, why, why))
 
     assurance = None
-    if predictive is not None:
+    if isinstance(predictive, EffectDensity):
+        assurance = n_for_assurance(predictive.mean, predictive.sd,
+                                    tuple(assurance_targets or powers), des, alpha, alternative,
+                                    density=predictive)
+    elif predictive is not None:
         mean, sd = predictive
         if not (math.isfinite(mean) and math.isfinite(sd) and sd > 0):
             assurance = NotEstimable("the predictive distribution needs a finite mean and a "

@@ -34,7 +34,8 @@ GRID_ALT = [("two-sided", "two-sided"), ("greater", "larger")]
 def test_two_group_power_matches_statsmodels(ratio):
     ref = sm_power.TTestIndPower()
     for d, a, (ours, theirs), n in itertools.product(GRID_D, GRID_ALPHA, GRID_ALT, [5, 20, 64]):
-        p = ref.power(effect_size=d, nobs1=n, alpha=a, ratio=ratio, alternative=theirs)
+        n2 = math.ceil(ratio * n)          # pooler's integer second group
+        p = ref.power(effect_size=d, nobs1=n, alpha=a, ratio=n2 / n, alternative=theirs)
         q = power_at(d, n, Design("two-group", ratio=ratio), a, ours)
         assert_allclose(q, p, atol=1e-6, err_msg=f"d={d} n={n} a={a} {ours} ratio={ratio}")
 
@@ -77,8 +78,10 @@ def test_correlation_fisher_z_matches_statsmodels_normal_power():
 
 # ---------------------------------------------------------------- statsmodels: sample size
 
-@pytest.mark.parametrize("ratio", [1.0, 2.0, 0.5])
+@pytest.mark.parametrize("ratio", [1.0, 2.0, 3.0])
 def test_two_group_n_identical_to_statsmodels(ratio):
+    # whole-number ratios: every integer n1 gives an integer n2, so statsmodels' continuous
+    # solution rounded up is the integer answer
     ref = sm_power.TTestIndPower()
     des = Design("two-group", ratio=ratio)
     for d, a, (ours, theirs), pw in itertools.product(GRID_D, [0.05, 0.01], GRID_ALT,
@@ -86,6 +89,35 @@ def test_two_group_n_identical_to_statsmodels(ratio):
         n_sm = ref.solve_power(effect_size=d, alpha=a, power=pw, ratio=ratio, alternative=theirs)
         res = n_for_power(d, pw, des, a, ours)
         assert int(res.n) == math.ceil(n_sm - 1e-6), (d, a, ours, pw, ratio)
+
+
+def test_non_integer_ratio_searches_whole_groups():
+    # the design is (n1, n2 = ceil(ratio n1)); n1 is the smallest whole group reaching the
+    # target, and power is that of the integer sizes (statsmodels TTestIndPower at
+    # nobs1 = n1, ratio = n2 / n1, i.e. at the same integer design)
+    ref = sm_power.TTestIndPower()
+    ratios = [0.3, 0.6, 0.75, 1.0 / 3.0, 0.9, 1.25, 1.5, 1.7, 2.5, 2 / 3]
+    effects = np.array([0.2, 0.35, 0.5, 0.8])
+    targets = np.array([0.8, 0.9])
+    for ratio in ratios:
+        des = Design("two-group", ratio=ratio)
+        for alt, theirs in GRID_ALT:
+            res = n_for_power(effects[:, None], targets[None, :], des, 0.05, alt)
+            for (i, j), n1 in np.ndenumerate(res.n):
+                d, t = effects[i], targets[j]
+                n2 = math.ceil(ratio * n1 - 1e-9)
+                assert int(res.n_total[i, j]) == n1 + n2
+                p = ref.power(effect_size=d, nobs1=n1, alpha=0.05, ratio=n2 / n1,
+                              alternative=theirs)
+                assert_allclose(res.power[i, j], p, atol=1e-9)
+                assert p >= t, (ratio, d, t, n1)
+                m2 = math.ceil(ratio * (n1 - 1) - 1e-9)
+                q = ref.power(effect_size=d, nobs1=n1 - 1, alpha=0.05, ratio=m2 / (n1 - 1),
+                              alternative=theirs)
+                assert q < t, (ratio, d, t, n1)
+    # the case in the issue: d = .35, ratio .6 needs 172 (+ 104), not 173
+    res = n_for_power(0.35, 0.8, Design("two-group", ratio=0.6))
+    assert (int(res.n), int(res.n_total)) == (172, 276)
 
 
 def test_paired_n_identical_to_statsmodels():
