@@ -94,20 +94,107 @@ def _bracket_root(f, start):
     raise ArithmeticError("no upper bracket for τ²")
 
 
+_GRID = 96          # grid points on the transformed τ² scale, after τ² = 0
+_MAX_POLISH = 8     # local maxima polished at most (the best by their grid values)
+_BLOCK = 1 << 18    # grid-by-study cells evaluated at once (bounds memory at large k)
+
+
+def _profile_on_grid(y, v, t2, restricted):
+    """(Restricted) log-likelihood and its score at every τ² in ``t2`` at once, μ profiled
+    out (Viechtbauer 2005, eqs. 6 and 8 and their derivatives in τ², constants dropped)."""
+    ll = np.empty(len(t2))
+    sc = np.empty(len(t2))
+    step = max(1, _BLOCK // len(y))
+    for a in range(0, len(t2), step):
+        s = v[None, :] + t2[a:a + step, None]
+        w = 1.0 / s
+        sw = w.sum(axis=1)
+        mu = (w @ y) / sw
+        wr2 = w * (y[None, :] - mu[:, None]) ** 2
+        ll[a:a + step] = -0.5 * (np.log(s).sum(axis=1) + wr2.sum(axis=1))
+        sc[a:a + step] = 0.5 * (np.einsum("ij,ij->i", w, wr2) - sw)
+        if restricted:
+            ll[a:a + step] -= 0.5 * np.log(sw)
+            sc[a:a + step] += 0.5 * np.einsum("ij,ij->i", w, w) / sw
+    return ll, sc
+
+
+def _likelihood_tau2(y, v, restricted) -> Tau2Fit:
+    """The global maximum of the (restricted) profile log-likelihood over τ² ≥ 0.
+
+    The score can have several roots (Viechtbauer 2005 discusses multiple ML roots), so the
+    likelihood is first evaluated on a grid uniform in log(τ² + c), c = min(v) / 10, from
+    τ² = 0 to 10 ((max y - min y)² + max v) (beyond (max y - min y)² the ML score is
+    negative). Every +/- sign change of the score between neighbouring grid points brackets a
+    local maximum, which ``scipy.optimize.brentq`` polishes; the best of these and the
+    boundary τ² = 0 is returned.
+    """
+    from scipy.optimize import brentq
+    c = 0.1 * float(v.min())
+    top = 10.0 * (float(np.ptp(y)) ** 2 + float(v.max()))
+    t2 = np.empty(_GRID + 1)
+    t2[0] = 0.0
+    t2[1:] = np.exp(np.linspace(math.log(c), math.log(top + c), _GRID)) - c
+    t2[1] = max(t2[1], 0.0)
+    ll, sc = _profile_on_grid(y, v, t2, restricted)
+    f = lambda t: _score(y, v, t, restricted)  # noqa: E731
+    brackets = [(t2[i], t2[i + 1], max(ll[i], ll[i + 1]))
+                for i in np.flatnonzero((sc[:-1] > 0) & (sc[1:] <= 0))]
+    if sc[-1] > 0:     # the score still rises at the top of the grid: extend it
+        try:
+            hi = _bracket_root(f, 2 * t2[-1])
+        except ArithmeticError:
+            return Tau2Fit(float("nan"), False, 0, "the likelihood still rises at very "
+                           "large tau^2: no maximum found")
+        brackets.append((t2[-1], hi, ll[-1]))
+    brackets.sort(key=lambda b: -b[2])
+    n_max = len(brackets)
+    best_t, best_ll, iters, ok = 0.0, float(ll[0]), 0, True
+    for lo, hi, _ in brackets[:_MAX_POLISH]:
+        root, res = brentq(f, lo, hi, xtol=1e-14, rtol=1e-12, maxiter=500, full_output=True,
+                           disp=False)
+        iters += int(res.iterations)
+        root = max(0.0, float(root))
+        val = loglik(y, v, root, restricted)
+        if val > best_ll:
+            best_t, best_ll, ok = root, val, bool(res.converged)
+    # honesty check: the polished maximum must be at least as high as every grid value
+    if best_ll < float(ll.max()) - 1e-9 * max(1.0, abs(best_ll)):
+        return Tau2Fit(best_t, False, iters, "a grid value of the likelihood exceeds the "
+                       "polished maximum")
+    where = ("likelihood maximal at tau^2 = 0" if best_t == 0.0
+             else "global maximum of the likelihood, interior")
+    extra = f" ({n_max} local maxima inside)" if n_max > 1 else ""
+    return Tau2Fit(best_t, ok, iters, where + extra)
+
+
 def estimate_tau2(y, v, estimator="reml") -> Tau2Fit:
     """Between-study variance τ², truncated at 0.
 
     ``dl``: DerSimonian & Laird (1986) moment estimator. ``pm``: Paule & Mandel (1982),
-    the root of Q(τ²) = k - 1. ``ml`` / ``reml``: the root of the (restricted) likelihood
-    score (Viechtbauer 2005), found with ``scipy.optimize.brentq``; 0 when the score is
-    not positive at τ² = 0.
+    the root of Q(τ²) = k - 1. ``ml`` / ``reml``: the global maximum over τ² ≥ 0 of the
+    (restricted) profile log-likelihood (Viechtbauer 2005, eqs. 6 and 8): a grid on a
+    log(τ² + c) scale brackets every local maximum, ``scipy.optimize.brentq`` polishes each
+    on the score, and the highest (or the boundary τ² = 0) wins. A score ≤ 0 at τ² = 0 does
+    not by itself make 0 the estimate: the likelihood can fall and rise again.
+
+    Examples
+    --------
+    Two studies, one very large (d = 1.0, 20,000 per group; d = -0.4, 35 and 52): the ML
+    score is negative at τ² = 0, but the likelihood is far higher at τ² ≈ 0.46.
+
+    >>> fit = estimate_tau2([1.0, -0.4], [1.0e-4, 0.0481], "ml")
+    >>> round(fit.tau2, 2), fit.converged
+    (0.46, True)
     """
-    from scipy.optimize import brentq
     y = np.asarray(y, float)
     v = np.asarray(v, float)
     k = len(y)
     if k < 2:
         return Tau2Fit(0.0, True, 0, "one study: no between-study variance")
+    if estimator in ("ml", "reml"):
+        return _likelihood_tau2(y, v, estimator == "reml")
+    from scipy.optimize import brentq
     w = 1.0 / v
     q0 = q_statistic(y, v)
     if estimator == "dl":
@@ -117,11 +204,6 @@ def estimate_tau2(y, v, estimator="reml") -> Tau2Fit:
         if q0 <= k - 1:
             return Tau2Fit(0.0, True, 0, "Q(0) <= k - 1: tau^2 = 0")
         f = lambda t: q_statistic(y, v, t) - (k - 1)  # noqa: E731
-    elif estimator in ("ml", "reml"):
-        restricted = estimator == "reml"
-        if _score(y, v, 0.0, restricted) <= 0:
-            return Tau2Fit(0.0, True, 0, "likelihood maximal at tau^2 = 0")
-        f = lambda t: _score(y, v, t, restricted)  # noqa: E731
     else:
         raise OptionError(f"`estimator` must be one of {', '.join(ESTIMATORS)}, not {estimator!r}")
     try:
@@ -452,7 +534,8 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
 
     Examples
     --------
-    >>> from pooler import read_sheet, convert, pool, demo_sheet_path
+    >>> from pooler import read_sheet, convert, demo_sheet_path
+    >>> from pooler.pooling import pool
     >>> res = pool(convert(read_sheet(demo_sheet_path())))
     >>> res.k
     24
