@@ -253,7 +253,7 @@ def random_effects(y, v, estimator="reml", interval="hksj", level=0.95) -> Fit:
     ``hksj``: SE² = Σ w (y - μ)² / ((k - 1) Σ w) with t(k - 1) (Hartung & Knapp 2001;
     Sidik & Jonkman 2002). ``wald``: SE² = 1 / Σ w with the normal distribution.
     """
-    from scipy import stats
+    from scipy import special
     if interval not in INTERVALS:
         raise OptionError(f"`interval` must be 'hksj' or 'wald', not {interval!r}")
     y = np.asarray(y, float)
@@ -266,13 +266,13 @@ def random_effects(y, v, estimator="reml", interval="hksj", level=0.95) -> Fit:
     if interval == "hksj" and k >= 2:
         se = math.sqrt(float(np.dot(w, (y - mu) ** 2)) / ((k - 1) * w.sum()))
         df = k - 1
-        crit = stats.t.ppf(0.5 + level / 2, df)
-        p = float(2 * stats.t.sf(abs(mu / se), df)) if se > 0 else (0.0 if mu else 1.0)
+        crit = special.stdtrit(df, 0.5 + level / 2)
+        p = float(2 * special.stdtr(df, -abs(mu / se))) if se > 0 else (0.0 if mu else 1.0)
     else:
         se = math.sqrt(1.0 / w.sum())
         df = None
-        crit = stats.norm.ppf(0.5 + level / 2)
-        p = float(2 * stats.norm.sf(abs(mu / se)))
+        crit = special.ndtri(0.5 + level / 2)
+        p = float(2 * special.ndtr(-abs(mu / se)))
     return Fit(k, mu, se, Interval(mu - crit * se, mu + crit * se, level), p, tau2, tf, w, df)
 
 
@@ -317,7 +317,7 @@ def typical_variance(v) -> float:
 def tau2_qprofile_ci(y, v, level=0.95) -> Interval:
     """Q-profile CI for τ² (Viechtbauer 2007): the τ² values where the generalised Q equals
     the χ²(k - 1) quantiles; a limit is 0 when Q(0) is already below its quantile."""
-    from scipy import stats
+    from scipy import special
     from scipy.optimize import brentq
     y = np.asarray(y, float)
     v = np.asarray(v, float)
@@ -325,7 +325,7 @@ def tau2_qprofile_ci(y, v, level=0.95) -> Interval:
     a = 1 - level
     q0 = q_statistic(y, v)
     limits = []
-    for target in (stats.chi2.ppf(1 - a / 2, k - 1), stats.chi2.ppf(a / 2, k - 1)):
+    for target in (special.chdtri(k - 1, a / 2), special.chdtri(k - 1, 1 - a / 2)):
         if q0 <= target:
             limits.append(0.0)
             continue
@@ -338,7 +338,7 @@ def tau2_qprofile_ci(y, v, level=0.95) -> Interval:
 def heterogeneity(y, v, tau2, level=0.95) -> Heterogeneity:
     """Heterogeneity summary at the estimated τ² (I² = τ² / (τ² + s²), H² = (τ² + s²) / s²,
     Higgins & Thompson 2002)."""
-    from scipy import stats
+    from scipy import special
     y = np.asarray(y, float)
     v = np.asarray(v, float)
     k = len(y)
@@ -348,16 +348,16 @@ def heterogeneity(y, v, tau2, level=0.95) -> Heterogeneity:
     i2ci = Interval(ci.low / (ci.low + s2), ci.high / (ci.high + s2), level)
     return Heterogeneity(tau2=tau2, tau2_ci=ci, i2=tau2 / (tau2 + s2), i2_ci=i2ci,
                          h2=(tau2 + s2) / s2, q=q, q_df=k - 1,
-                         q_p=float(stats.chi2.sf(q, k - 1)), typical_variance=s2)
+                         q_p=float(special.chdtrc(k - 1, q)), typical_variance=s2)
 
 
 def prediction_interval(fit: Fit, level=0.95) -> Interval | NotEstimable:
     """μ ± t(k - 2) √(τ² + SE²) (Higgins, Thompson & Spiegelhalter 2009, eq. 12), with the SE
     of the chosen interval method; needs k ≥ 3."""
-    from scipy import stats
+    from scipy import special
     if fit.k < 3:
         return NotEstimable(f"a prediction interval needs at least 3 studies (k = {fit.k})")
-    half = stats.t.ppf(0.5 + level / 2, fit.k - 2) * math.sqrt(fit.tau2 + fit.se ** 2)
+    half = special.stdtrit(fit.k - 2, 0.5 + level / 2) * math.sqrt(fit.tau2 + fit.se ** 2)
     return Interval(fit.mu - half, fit.mu + half, level)
 
 
@@ -540,7 +540,7 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
     >>> res.k
     24
     """
-    from scipy import stats
+    from scipy import special
     # validation
     if estimator not in ESTIMATORS:
         raise OptionError(f"`estimator` must be one of {', '.join(ESTIMATORS)}, not {estimator!r}")
@@ -562,9 +562,9 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
     w = 1.0 / v
     mu_f = _wmean(y, w)
     se_f = math.sqrt(1.0 / w.sum())
-    zc = stats.norm.ppf(0.5 + level / 2)
+    zc = special.ndtri(0.5 + level / 2)
     fixed = Estimate(mu_f, se_f, Interval(mu_f - zc * se_f, mu_f + zc * se_f, level),
-                     float(2 * stats.norm.sf(abs(mu_f / se_f))), "inverse-variance common effect")
+                     float(2 * special.ndtr(-abs(mu_f / se_f))), "inverse-variance common effect")
 
     if k == 1:
         notes.append("one study: no pooling and no heterogeneity are possible; "
@@ -630,7 +630,7 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
 def _subgroups(units, y, v, estimator, interval, level) -> Subgroups | NotEstimable:
     """Separate-τ² subgroup estimates and Q_between = Σ w_j (μ_j - μ̄)², w_j = 1/SE_j²
     (Borenstein et al. 2009, ch. 19), SE_j from the Wald fit."""
-    from scipy import stats
+    from scipy import special
     names = [u.subgroup or "(no subgroup)" for u in units]
     groups = list(dict.fromkeys(names))
     if len(groups) < 2:
@@ -646,4 +646,4 @@ def _subgroups(units, y, v, estimator, interval, level) -> Subgroups | NotEstima
     mbar = float(np.dot(wj, mus) / wj.sum())
     qb = float(np.dot(wj, (np.array(mus) - mbar) ** 2))
     df = len(groups) - 1
-    return Subgroups(tuple(rows), qb, df, float(stats.chi2.sf(qb, df)))
+    return Subgroups(tuple(rows), qb, df, float(special.chdtrc(df, qb)))
