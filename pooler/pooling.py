@@ -65,11 +65,12 @@ def q_statistic(y, v, tau2=0.0) -> float:
 def _score(y, v, tau2, restricted):
     """Derivative of the (restricted) profile log-likelihood in τ² (Viechtbauer 2005)."""
     w = 1.0 / (v + tau2)
-    mu = np.dot(w, y) / w.sum()
+    sw = w.sum()
+    r = y - w.dot(y) / sw
     w2 = w * w
-    s = np.dot(w2, (y - mu) ** 2) - w.sum()
+    s = w2.dot(r * r) - sw
     if restricted:
-        s += w2.sum() / w.sum()
+        s += w2.sum() / sw
     return 0.5 * s
 
 
@@ -99,24 +100,20 @@ _MAX_POLISH = 8     # local maxima polished at most (the best by their grid valu
 _BLOCK = 1 << 18    # grid-by-study cells evaluated at once (bounds memory at large k)
 
 
-def _profile_on_grid(y, v, t2, restricted):
-    """(Restricted) log-likelihood and its score at every τ² in ``t2`` at once, μ profiled
-    out (Viechtbauer 2005, eqs. 6 and 8 and their derivatives in τ², constants dropped)."""
-    ll = np.empty(len(t2))
+def _score_on_grid(y, v, t2, restricted):
+    """The score of the (restricted) profile log-likelihood (the derivative in τ² of
+    Viechtbauer 2005, eqs. 6 and 8, μ profiled out) at every τ² in ``t2`` at once."""
     sc = np.empty(len(t2))
     step = max(1, _BLOCK // len(y))
     for a in range(0, len(t2), step):
-        s = v[None, :] + t2[a:a + step, None]
-        w = 1.0 / s
+        w = 1.0 / (v[None, :] + t2[a:a + step, None])
         sw = w.sum(axis=1)
-        mu = (w @ y) / sw
-        wr2 = w * (y[None, :] - mu[:, None]) ** 2
-        ll[a:a + step] = -0.5 * (np.log(s).sum(axis=1) + wr2.sum(axis=1))
-        sc[a:a + step] = 0.5 * (np.einsum("ij,ij->i", w, wr2) - sw)
+        r = y[None, :] - (np.einsum("ij,j->i", w, y) / sw)[:, None]   # no BLAS call
+        w2 = w * w
+        sc[a:a + step] = 0.5 * (np.einsum("ij,ij->i", w2, r * r) - sw)
         if restricted:
-            ll[a:a + step] -= 0.5 * np.log(sw)
-            sc[a:a + step] += 0.5 * np.einsum("ij,ij->i", w, w) / sw
-    return ll, sc
+            sc[a:a + step] += 0.5 * w2.sum(axis=1) / sw
+    return sc
 
 
 def _likelihood_tau2(y, v, restricted) -> Tau2Fit:
@@ -136,9 +133,12 @@ def _likelihood_tau2(y, v, restricted) -> Tau2Fit:
     t2[0] = 0.0
     t2[1:] = np.exp(np.linspace(math.log(c), math.log(top + c), _GRID)) - c
     t2[1] = max(t2[1], 0.0)
-    ll, sc = _profile_on_grid(y, v, t2, restricted)
+    sc = _score_on_grid(y, v, t2, restricted)
     f = lambda t: _score(y, v, t, restricted)  # noqa: E731
-    brackets = [(t2[i], t2[i + 1], max(ll[i], ll[i + 1]))
+    ll = lambda t: loglik(y, v, t, restricted)  # noqa: E731
+    # the highest grid value of the likelihood lies at τ² = 0 or next to a +/- sign change
+    # of the score, so the likelihood is needed only there
+    brackets = [(t2[i], t2[i + 1], max(ll(t2[i]), ll(t2[i + 1])))
                 for i in np.flatnonzero((sc[:-1] > 0) & (sc[1:] <= 0))]
     if sc[-1] > 0:     # the score still rises at the top of the grid: extend it
         try:
@@ -146,20 +146,21 @@ def _likelihood_tau2(y, v, restricted) -> Tau2Fit:
         except ArithmeticError:
             return Tau2Fit(float("nan"), False, 0, "the likelihood still rises at very "
                            "large tau^2: no maximum found")
-        brackets.append((t2[-1], hi, ll[-1]))
+        brackets.append((t2[-1], hi, ll(t2[-1])))
     brackets.sort(key=lambda b: -b[2])
     n_max = len(brackets)
-    best_t, best_ll, iters, ok = 0.0, float(ll[0]), 0, True
+    best_t, best_ll, iters, ok = 0.0, ll(0.0), 0, True
+    grid_best = max([best_ll] + [b[2] for b in brackets])
     for lo, hi, _ in brackets[:_MAX_POLISH]:
         root, res = brentq(f, lo, hi, xtol=1e-14, rtol=1e-12, maxiter=500, full_output=True,
                            disp=False)
         iters += int(res.iterations)
         root = max(0.0, float(root))
-        val = loglik(y, v, root, restricted)
+        val = ll(root)
         if val > best_ll:
             best_t, best_ll, ok = root, val, bool(res.converged)
     # honesty check: the polished maximum must be at least as high as every grid value
-    if best_ll < float(ll.max()) - 1e-9 * max(1.0, abs(best_ll)):
+    if best_ll < grid_best - 1e-9 * max(1.0, abs(best_ll)):
         return Tau2Fit(best_t, False, iters, "a grid value of the likelihood exceeds the "
                        "polished maximum")
     where = ("likelihood maximal at tau^2 = 0" if best_t == 0.0
@@ -386,6 +387,17 @@ def _row(label, y, v, estimator, interval, level) -> InfluenceRow:
     return InfluenceRow(label, f.k, f.mu, f.ci.low, f.ci.high, f.tau2, i2)
 
 
+def _table(labels, y, v, sums, sizes, members, estimator, interval, level):
+    """Influence rows for many subsets at once (:func:`_many_fits`); the few subsets it
+    leaves are fitted one at a time. ``members(i)`` indexes subset i's studies."""
+    tau2, mu, lo, hi, i2, undone = _many_fits(y, v, sums, sizes, estimator, interval, level)
+    return tuple(_row(lab, y[members(i)], v[members(i)], estimator, interval, level)
+                 if undone[i] else
+                 InfluenceRow(lab, int(sizes[i]), float(mu[i]), float(lo[i]), float(hi[i]),
+                              float(tau2[i]), float(i2[i]))
+                 for i, lab in enumerate(labels))
+
+
 @dataclass(frozen=True)
 class Subgroups:
     """Random-effects estimate per subgroup (separate τ²) and the Q-between test."""
@@ -398,6 +410,228 @@ class Subgroups:
     def to_dict(self) -> dict:
         return to_jsonable({"rows": [r.to_dict() for r in self.rows], "q_between": self.q_between,
                             "df": self.df, "p": self.p})
+
+
+# ------------------------------------------------------------------ many fits at once
+
+_SERIES_TOL = 1e-17   # truncation bound of the power series of _series
+
+
+def _leave_one_out_sums(x):
+    """Sums over every leave-one-out subset: row i of the result excludes study i.
+
+    Built from the sums before and after i, never as total - own: subtracting a dominant
+    term (one very large study) would cancel most digits of what remains."""
+    out = np.zeros_like(x)
+    np.cumsum(x[:-1], axis=0, out=out[1:])
+    out[:-1] += np.cumsum(x[:0:-1], axis=0)[::-1]
+    return out
+
+
+def _prefix_sums(order):
+    """Sums over the first 1, 2, ..., k studies in ``order`` (the cumulative table)."""
+    return lambda x: np.cumsum(x[order], axis=0)
+
+
+def _moments(sums, y, v, t, logs=True):
+    """Per-subset Σw, Σwy, Σwy², Σw², Σw²y, Σw²y² and Σlog(v + t) (None unless ``logs``),
+    w = 1/(v + t), at each τ² in ``t`` (one row per subset, one column per τ²)."""
+    s = v[:, None] + t[None, :]
+    w = 1.0 / s
+    w2 = w * w
+    yy = y[:, None]
+    return [sums(a) for a in (w, w * yy, w * yy * yy, w2, w2 * yy, w2 * yy * yy)] + \
+        [sums(np.log(s)) if logs else None]
+
+
+def _profile(mo, restricted):
+    """Log-likelihood and score in τ² (Viechtbauer 2005, eqs. 6 and 8, μ profiled out,
+    constants dropped) from the sums of :func:`_moments`; also μ̂ and Σw(y - μ̂)²."""
+    sw, swy, swyy, sw2, sw2y, sw2yy, slog = mo
+    mu = swy / sw
+    q = swyy - swy * mu
+    r = sw2yy - 2 * mu * sw2y + mu * mu * sw2
+    ll = -0.5 * (slog + q) if slog is not None else None
+    sc = 0.5 * (r - sw)
+    if restricted:
+        ll = ll - 0.5 * np.log(sw) if ll is not None else None
+        sc = sc + 0.5 * sw2 / sw
+    return ll, sc, mu, q
+
+
+def _series(sums, y, v, t0, sel, radius):
+    """The sums of :func:`_moments` at τ² = t0 + δ, |δ| ≤ radius, for the subsets ``sel``, as
+    functions of δ (one δ per subset).
+
+    Σ (v + t0 + δ)^-m y^p and Σ log(v + t0 + δ) are power series in δ whose coefficients are
+    power sums of w = 1/(v + t0) (geometric, binomial and logarithmic series); with
+    x = radius · max w < 1/2, terms are kept until x^n is below ``_SERIES_TOL``. Returns the
+    evaluator, or None when the radius is too large for the series.
+    """
+    a = 1.0 / (float(v.min()) + t0)               # max w
+    x = radius * a
+    if x >= 0.5:
+        return None
+    n = max(2, int(math.ceil(math.log(_SERIES_TOL) / math.log(max(x, 1e-300)))))
+    u = (1.0 / (v + t0)) / a                      # scaled so that u <= 1
+    pw = u[:, None] ** np.arange(0, n + 3)[None, :]          # u^0 .. u^(n+2)
+    yy = y[:, None]
+    ps = [sums(pw * yy ** p)[sel] for p in (0, 1, 2)]
+    slog0 = sums(np.log(v + t0)[:, None])[sel, 0]
+    j = np.arange(n + 1)
+    sign = (-1.0) ** j
+    # coefficients of x^j, x = aδ, in Σ (v + t)^-1 y^p / a, Σ (v + t)^-2 y^p / a² and
+    # Σ log(v + t) - Σ log(v + t0)
+    cl = np.zeros(n + 1)
+    cl[1:] = -sign[1:] / j[1:]
+    coef = ([ps[p][:, 1:n + 2] * sign for p in (0, 1, 2)]
+            + [ps[p][:, 2:n + 3] * (sign * (j + 1)) for p in (0, 1, 2)]
+            + [ps[0][:, :n + 1] * cl])
+    scale = (a, a, a, a * a, a * a, a * a, 1.0)
+
+    def at(d):
+        xd = d * a
+        out = []
+        for cf, sc in zip(coef, scale):
+            acc = cf[:, n].copy()
+            for i in range(n - 1, -1, -1):
+                acc *= xd
+                acc += cf[:, i]
+            out.append(acc * sc)
+        out[6] += slog0
+        return out
+    return at
+
+
+def _illinois(f, lo, hi, xtol):
+    """Roots of f (vectorised) inside [lo, hi] with f(lo) > 0 >= f(hi): the Illinois variant
+    of regula falsi (Dowell & Jarratt 1971), bisecting when a step leaves the bracket.
+    Returns the roots and whether every one met ``xtol``."""
+    a, b = lo.copy(), hi.copy()
+    fa, fb = f(a), f(b)
+    x = b.copy()
+    for _ in range(100):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            x = b - fb * (b - a) / (fb - fa)
+        out = ~((x > np.minimum(a, b)) & (x < np.maximum(a, b)))
+        x[out] = 0.5 * (a + b)[out]
+        fx = f(x)
+        keep = np.sign(fx) == np.sign(fb)          # the root stays between a and x
+        fa = np.where(keep, 0.5 * fa, fb)
+        a = np.where(keep, a, b)
+        b, fb = x, fx
+        if np.all((np.abs(b - a) <= xtol) | (fx == 0)):
+            return x, True
+    return x, False
+
+
+def _many_fits(y, v, sums, sizes, estimator, interval, level):
+    """Random-effects fits of many subsets of the studies in one vectorised pass.
+
+    ``sums`` maps an array with one row per study to one row per subset (leave-one-out or
+    cumulative sums) and ``sizes`` gives each subset's number of studies. Each subset gets
+    what :func:`random_effects` gives on its studies: ML / REML the global maximum of the
+    likelihood (grid, then every bracketed local maximum polished and the best kept), PM
+    the root of the generalised Q equation, DL the closed form; the mean, its interval and
+    I² at that τ². Returns (τ², μ, CI low, CI high, I²) and a mask of the subsets this pass
+    leaves to the caller (fewer than 2 studies, a likelihood still rising at the top of the
+    grid, a root not polished).
+    """
+    from scipy import special
+    y = np.asarray(y, float)
+    v = np.asarray(v, float)
+    shift = float(np.dot(1 / v, y) / np.sum(1 / v))     # τ² is shift-free; μ is moved back
+    y = y - shift
+    sizes = np.asarray(sizes)
+    m = len(sizes)
+    undone = sizes < 2
+    restricted = estimator == "reml"
+    likelihood = estimator in ("ml", "reml")
+    c = 0.1 * float(v.min())
+    top = 10.0 * (float(np.ptp(y)) ** 2 + float(v.max()))
+    grid = np.empty(_GRID + 1)
+    grid[0] = 0.0
+    grid[1:] = np.maximum(np.exp(np.linspace(math.log(c), math.log(top + c), _GRID)) - c, 0.0)
+
+    # the grid: log-likelihood and score (ML/REML) or Q(τ²) - (k - 1) (PM), all subsets
+    fn = np.empty((m, len(grid)))
+    if estimator != "dl":
+        step = max(1, _BLOCK // len(y))
+        for b in range(0, len(grid), step):
+            _, sb, _, qb = _profile(_moments(sums, y, v, grid[b:b + step], False), restricted)
+            fn[:, b:b + step] = sb if likelihood else qb - (sizes[:, None] - 1)
+    mo0 = _moments(sums, y, v, np.zeros(1))
+    ll0, _, mu0, q0 = (a[:, 0] for a in _profile(mo0, restricted))
+    sw0 = mo0[0][:, 0]
+    tau2, best, mu, sw, q = np.zeros(m), ll0.copy(), mu0.copy(), sw0.copy(), q0.copy()
+
+    # points to evaluate: (subset, grid interval, δ or None for "polish a root there")
+    if estimator == "dl":
+        with np.errstate(divide="ignore", invalid="ignore"):
+            t_dl = (q0 - (sizes - 1)) / (sw0 - mo0[3][:, 0] / sw0)
+        sub = np.flatnonzero((t_dl > 0) & ~undone)
+        g = np.clip(np.searchsorted(grid, t_dl[sub]) - 1, 0, _GRID - 1)
+        undone[sub[t_dl[sub] > grid[-1]]] = True
+        keep = t_dl[sub] <= grid[-1]
+        sub, g = sub[keep], g[keep]
+    else:
+        brk = (fn[:, :-1] > 0) & (fn[:, 1:] <= 0)
+        brk[undone] = False
+        undone |= (fn[:, -1] > 0) & (sizes >= 2)
+        sub, g = np.nonzero(brk)
+    for gi in np.unique(g):
+        sel = sub[g == gi]
+        t0 = 0.5 * (grid[gi] + grid[gi + 1])
+        half = 0.5 * (grid[gi + 1] - grid[gi])
+        at = _series(sums, y, v, t0, sel, half * (1 + 1e-12))
+        if at is None:
+            undone[sel] = True
+            continue
+        if estimator == "dl":
+            d = t_dl[sel] - t0
+        else:
+            if likelihood:
+                f = lambda d: _profile(at(d), restricted)[1]  # noqa: E731
+            else:
+                f = lambda d: _profile(at(d), False)[3] - (sizes[sel] - 1)  # noqa: E731
+            lo = np.full(len(sel), grid[gi] - t0)
+            hi = np.full(len(sel), grid[gi + 1] - t0)
+            d, ok = _illinois(f, lo, hi, 1e-14 + 1e-13 * t0)
+            if not ok:
+                undone[sel] = True
+                continue
+        lls, _, mus, qs = _profile(at(d), restricted)
+        t_new = np.maximum(0.0, t0 + d)
+        # ML/REML: a polished maximum replaces the current best only when higher
+        better = lls > best[sel] if likelihood else np.ones(len(sel), bool)
+        for arr, new in ((tau2, t_new), (best, lls), (mu, mus), (q, qs), (sw, at(d)[0])):
+            arr[sel[better]] = new[better]
+    if likelihood and len(sub):
+        # the polished maximum must not lie below any grid value; the highest grid value
+        # lies at τ² = 0 or next to a sign change of the score, so only those are checked
+        ends = np.unique(np.concatenate([g, g + 1]))
+        lle = _profile(_moments(sums, y, v, grid[ends]), restricted)[0]
+        col = {e: i for i, e in enumerate(ends)}
+        top_ll = np.maximum(lle[sub, [col[e] for e in g]], lle[sub, [col[e] for e in g + 1]])
+        low = top_ll > best[sub] + 1e-9 * np.maximum(1.0, np.abs(best[sub]))
+        undone[sub[low]] = True
+
+    # the mean and its interval at each subset's τ² (as in random_effects)
+    df = np.maximum(sizes - 1, 1)
+    if interval == "hksj":
+        se = np.sqrt(np.maximum(q, 0.0) / (df * sw))
+        crit = special.stdtrit(df, 0.5 + level / 2)
+    else:
+        se = np.sqrt(1.0 / sw)
+        crit = special.ndtri(0.5 + level / 2)
+    mu = mu + shift
+    iv = sums((1.0 / v)[:, None])[:, 0]
+    iv2 = sums((1.0 / v ** 2)[:, None])[:, 0]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s2 = (sizes - 1) * iv / (iv * iv - iv2)
+        i2 = tau2 / (tau2 + s2)
+    undone |= ~np.isfinite(tau2 + mu + se + i2)
+    return tau2, mu, mu - crit * se, mu + crit * se, i2, undone
 
 
 # ------------------------------------------------------------------ the stage
@@ -600,8 +834,8 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
                             tuple(float(x) for x in v), weights, skip, skip, None, tuple(notes))
     if k >= 3:
         idx = np.arange(k)
-        loo = tuple(_row(f"without {labels[i]}", y[idx != i], v[idx != i], estimator, interval,
-                         level) for i in range(k))
+        loo = _table([f"without {lab}" for lab in labels], y, v, _leave_one_out_sums,
+                     np.full(k, k - 1), lambda i: idx != i, estimator, interval, level)
     else:
         loo = NotEstimable("leave-one-out needs at least 3 studies")
 
@@ -615,9 +849,9 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
                            + (" and others" if len(missing) > 3 else ""))
     else:
         order = np.argsort(np.array(years, float), kind="stable")
-        cum = tuple(_row(f"up to {labels[order[j - 1]]} ({years[order[j - 1]]:g})",
-                         y[order[:j]], v[order[:j]], estimator, interval, level)
-                    for j in range(1, k + 1))
+        cum = _table([f"up to {labels[order[j]]} ({years[order[j]]:g})" for j in range(k)],
+                     y, v, _prefix_sums(order), np.arange(1, k + 1), lambda j: order[:j + 1],
+                     estimator, interval, level)
 
     subs = None
     if any(u.subgroup for u in units):
