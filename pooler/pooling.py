@@ -119,12 +119,13 @@ def _score_on_grid(y, v, t2, restricted):
 def _likelihood_tau2(y, v, restricted) -> Tau2Fit:
     """The global maximum of the (restricted) profile log-likelihood over τ² ≥ 0.
 
-    The score can have several roots (Viechtbauer 2005 discusses multiple ML roots), so the
-    likelihood is first evaluated on a grid uniform in log(τ² + c), c = min(v) / 10, from
-    τ² = 0 to 10 ((max y - min y)² + max v) (beyond (max y - min y)² the ML score is
-    negative). Every +/- sign change of the score between neighbouring grid points brackets a
-    local maximum, which ``scipy.optimize.brentq`` polishes; the best of these and the
-    boundary τ² = 0 is returned.
+    The score can have several roots, and a score ≤ 0 at τ² = 0 does not make 0 the maximum
+    (the likelihood can fall and rise again). So the score is first evaluated on a grid
+    uniform in log(τ² + c), c = min(v) / 10, from τ² = 0 to 10 ((max y - min y)² + max v)
+    (beyond (max y - min y)² the ML score is negative, since Σ w² (y - μ̂)² ≤ (max y -
+    min y)² Σ w max w). Every +/- sign change of the score between neighbouring grid points
+    brackets a local maximum, which ``scipy.optimize.brentq`` polishes; the best of these and
+    the boundary τ² = 0 is returned. A score still positive at the top extends the search.
     """
     from scipy.optimize import brentq
     c = 0.1 * float(v.min())
@@ -484,22 +485,16 @@ def _series(sums, y, v, t0, sel, radius):
     # Σ log(v + t) - Σ log(v + t0)
     cl = np.zeros(n + 1)
     cl[1:] = -sign[1:] / j[1:]
-    coef = ([ps[p][:, 1:n + 2] * sign for p in (0, 1, 2)]
-            + [ps[p][:, 2:n + 3] * (sign * (j + 1)) for p in (0, 1, 2)]
-            + [ps[0][:, :n + 1] * cl])
-    scale = (a, a, a, a * a, a * a, a * a, 1.0)
+    coef = np.stack([ps[p][:, 1:n + 2] * sign for p in (0, 1, 2)]
+                    + [ps[p][:, 2:n + 3] * (sign * (j + 1)) for p in (0, 1, 2)]
+                    + [ps[0][:, :n + 1] * cl])                     # (7, subsets, n + 1)
+    scale = np.array([a, a, a, a * a, a * a, a * a, 1.0])[:, None]
+    shift = np.zeros((7, len(sel)))
+    shift[6] = slog0
 
     def at(d):
-        xd = d * a
-        out = []
-        for cf, sc in zip(coef, scale):
-            acc = cf[:, n].copy()
-            for i in range(n - 1, -1, -1):
-                acc *= xd
-                acc += cf[:, i]
-            out.append(acc * sc)
-        out[6] += slog0
-        return out
+        powers = np.vander(d * a, n + 1, increasing=True)
+        return list(np.einsum("qsj,sj->qs", coef, powers) * scale + shift)
     return at
 
 
@@ -553,7 +548,7 @@ def _many_fits(y, v, sums, sizes, estimator, interval, level):
     grid[0] = 0.0
     grid[1:] = np.maximum(np.exp(np.linspace(math.log(c), math.log(top + c), _GRID)) - c, 0.0)
 
-    # the grid: log-likelihood and score (ML/REML) or Q(τ²) - (k - 1) (PM), all subsets
+    # the grid: the score (ML/REML) or Q(τ²) - (k - 1) (PM), every subset at once
     fn = np.empty((m, len(grid)))
     if estimator != "dl":
         step = max(1, _BLOCK // len(y))
@@ -565,7 +560,7 @@ def _many_fits(y, v, sums, sizes, estimator, interval, level):
     sw0 = mo0[0][:, 0]
     tau2, best, mu, sw, q = np.zeros(m), ll0.copy(), mu0.copy(), sw0.copy(), q0.copy()
 
-    # points to evaluate: (subset, grid interval, δ or None for "polish a root there")
+    # (subset, grid interval) pairs: DL's τ², or a bracketed root to polish there
     if estimator == "dl":
         with np.errstate(divide="ignore", invalid="ignore"):
             t_dl = (q0 - (sizes - 1)) / (sw0 - mo0[3][:, 0] / sw0)
