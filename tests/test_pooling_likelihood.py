@@ -116,13 +116,16 @@ def test_tau2_is_the_global_maximum_of_the_likelihood(estimator):
         assert ours_nll <= ref_nll + 1e-9 * max(1.0, abs(ref_nll)), (y, v, fit, ref_t2)
         # and the maximiser itself agrees (the maxima found here are unique)
         assert_allclose(fit.tau2, ref_t2, rtol=1e-5, atol=1e-9, err_msg=str((y, v)))
-        if ref_t2 > 0:
-            eps = 1e-9 * float(v.min())
-            slope0 = (_neg_loglik(0.0, y, v, restricted)
-                      - _neg_loglik(math.sqrt(eps), y, v, restricted))
+        if ref_nll < _neg_loglik_one(0.0, y, v, restricted) - 1e-8:    # interior maximum
+            # derivative of eq. 6 / eq. 8 in τ² at τ² = 0, w = 1/v
+            w = 1 / v
+            r = y - np.dot(w, y) / w.sum()
+            slope0 = np.dot(w * w, r * r) - w.sum() + (np.dot(w, w) / w.sum() if restricted
+                                                       else 0.0)
             interior_with_negative_score += bool(slope0 <= 0)
-    # the generated inputs do contain the case that was wrong (ML: about 10 % here)
-    assert interior_with_negative_score >= (20 if estimator == "ml" else 3)
+    # the generated inputs do contain the case that was wrong (a score <= 0 at τ² = 0 with
+    # an interior global maximum): ML 87 of these 1,200 data sets, REML 1
+    assert interior_with_negative_score >= (50 if estimator == "ml" else 1)
 
 
 def test_issue_inputs_through_the_cli(write_sheet, run_cli):
