@@ -122,7 +122,8 @@ class ReportedP:
         return False
 
     def text(self) -> str:
-        return f"p {self.relation} {self.number.value:.{self.number.decimals}f}"
+        v = f"{self.number.value:.{self.number.decimals}f}"
+        return f"p {self.relation} {v[1:] if v.startswith('0.') else v}"
 
 
 @dataclass(frozen=True)
@@ -188,7 +189,7 @@ _MSD_RE = re.compile(
     r"\)?(?:\s?[,;]?\s?n\s?=\s?(?P<n>" + _INTK + r"))?(?![\d])")
 #: Words that may stand between the parts of a result without carrying a number.
 _FILLER = re.compile(r"(?i)\b(?:and|vs|versus|respectively|two-tailed|two-sided|group\s?[12]|"
-                     r"control|treatment|experimental|time\s?[12]|pre|post|ns)\b\.?")
+                     r"control|treatment|experimental|time\s?[12]|pre|post)\b\.?")
 
 
 def _num(text: str) -> Number:
@@ -214,6 +215,8 @@ def _intish(text: str, err, what: str, *, fractional_ok: bool = False) -> float:
     s = text.strip().replace(" ", "")
     if re.fullmatch(r"\d{1,3}(?:,\d{3})+", s):
         return float(s.replace(",", ""))
+    if not re.fullmatch(r"\d+(?:[.,]\d+)?", s):
+        raise err(f"{what} '{text.strip()}' is not a number")
     v = float(s.replace(",", "."))
     if not fractional_ok and not v.is_integer():
         raise err(f"{what} = {s} is not a whole number")
@@ -620,3 +623,92 @@ def expected_df(stat: str, design: str, n1, n2, n) -> tuple[float, str] | None:
             n = n1 + n2
         return (n - 2, "n - 2") if n is not None else None
     return None
+
+
+def _design_of(rec) -> str:
+    from .sheet import _WITHIN_WORDS
+    d = (rec.get("design") or "between").strip().lower()
+    return "within" if d in _WITHIN_WORDS else "between"
+
+
+def check_record(rec, column_of) -> tuple[list[Inconsistency], object, list[str]]:
+    """Run the reporting consistency check on one sheet record.
+
+    Parameters
+    ----------
+    rec : pooler.sheet.Record
+    column_of : callable
+        Maps a column key to the sheet's own spelling (for messages).
+
+    Returns
+    -------
+    (inconsistencies, record to convert, notes)
+        The record is ``rec`` itself unless ``trust`` is ``p`` and the printed p
+        disagrees with the statistic: then the statistic is recomputed from the
+        exact p and its df (magnitude from p, sign from the printed statistic).
+
+    Raises
+    ------
+    InputError
+        ``trust = p`` on a row whose p is an inequality (there is no exact p to use).
+    """
+    from dataclasses import replace
+    out: list[Inconsistency] = []
+    notes: list[str] = []
+    stat = rec.stat
+    design = _design_of(rec)
+    df, df1, n = rec.get("df"), rec.get("df1"), rec.get("n")
+    n1, n2 = rec.get("n1"), rec.get("n2")
+    trust = rec.get("trust") or "statistic"
+    parsed = rec.parsed
+    new_rec = rec
+    # p against the statistic
+    if parsed is not None and parsed.p is not None and stat in ("t", "F", "r", "chi2"):
+        n_r = n if n is not None else (n1 + n2 if n1 is not None and n2 is not None else None)
+        if stat == "r" and df is None and n_r is not None:
+            df_use = n_r - 2
+        else:
+            df_use = df
+        found = check_p(parsed, df_use, df1, n_r, tails=rec.get("tails") or 2.0)
+        if found is not None:
+            msg, flips, _ = found
+            col = column_of(COLUMN)
+            if trust == "p":
+                if not parsed.p.exact:
+                    raise InputError(
+                        f"'trust' is 'p' but the printed p ({parsed.p.text()}) is an inequality; "
+                        "there is no exact p to convert, so trust the statistic or give the "
+                        "exact p", file=None, row=rec.row, column=column_of(TRUST_COLUMN))
+                mag = statistic_from_p(stat, parsed.p.number.value, df_use, n_r)
+                sign = -1.0 if (rec.get("value") or 0) < 0 else 1.0
+                new_rec = replace(rec, values={**rec.values, "value": sign * mag})
+                notes.append(f"statistic recomputed from the printed p ({parsed.p.text()}) "
+                             f"as {mag:.3f}, as 'trust' asks")
+                msg += "; the effect uses the p, as column 'trust' asks"
+            else:
+                msg += ("; the effect uses the statistic (put 'p' in column 'trust' to use "
+                        "the p instead)")
+            out.append(Inconsistency(rec.row, rec.study, col, "p", msg, flips, trust))
+    elif rec.get("trust") == "p" and parsed is None:
+        raise InputError("'trust' is 'p' but the row has no 'reported' string with a p to use",
+                         row=rec.row, column=column_of(TRUST_COLUMN))
+    # df against the sample sizes
+    if stat in ("t", "F", "r") and df is not None:
+        exp = expected_df(stat, design, n1, n2, n)
+        if exp is not None:
+            want, rule = exp
+            welch = stat in ("t", "F") and design == "between" and not float(df).is_integer()
+            bad = (df > want + 1e-9) if welch else abs(df - want) > 1e-9
+            if bad:
+                where = COLUMN if parsed is not None and "df" in parsed.values else "df"
+                msg = (f"df = {df:g} but the sample sizes give {rule} = {want:g}"
+                       + ("; a Welch df cannot exceed it" if welch else
+                          "; check the sample sizes and the df (the effect uses the sample "
+                          "sizes)"))
+                out.append(Inconsistency(rec.row, rec.study, column_of(where), "df", msg))
+    # a CI around its estimate
+    if parsed is not None:
+        msg = check_ci(parsed)
+        if msg is not None:
+            out.append(Inconsistency(rec.row, rec.study, column_of(COLUMN), "ci", msg))
+    return out, new_rec, notes

@@ -534,9 +534,6 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma) -> Record:
             if key in ("n1", "n2") and abs(v * 2 - round(v * 2)) < 1e-9:
                 hint = ("; if only the total N was reported, put it in 'n' and leave n1 and n2 "
                         "empty (it is split equally, halves included)")
-            if abs(v * 1000 - round(v * 1000)) < 1e-6 and 1 <= v < 1000:
-                hint = (f"; if it means {v * 1000:.0f}, the dot is a thousands separator: type "
-                        f"{v * 1000:.0f} without one")
             raise err(key, f"{key} = {v:g} is not a whole number; it counts "
                            f"{'degrees of freedom' if key == 'df1' else 'people'}" + hint)
     return Record(row=rownum, values=values, extra=extra, parsed=parsed)
