@@ -64,6 +64,7 @@ def normalise(text: str) -> str:
     for ch in _SPACES:
         s = s.replace(ch, " ")
     s = (s.replace("\u03c7", "chi").replace("\u03a7", "chi").replace("\u00b2", "2")
+         .replace("\u03b7", "eta").replace("\u03c9", "omega")
          .replace("\u2264", "<=").replace("\u2265", ">=").replace("\uff1d", "=")
          .replace("\u201c", "").replace("\u201d", "").replace("\u2019", "'"))
     s = re.sub(r"\s+", " ", s).strip()
@@ -143,6 +144,9 @@ class Parsed:
         The printed p, if any.
     ci_level : float or None
         The level of a printed confidence interval (0.95).
+    also_printed : str or None
+        A d or g printed beside a test statistic ("d = 0.63"); the test statistic is
+        what gets converted.
     """
 
     text: str
@@ -150,6 +154,7 @@ class Parsed:
     numbers: dict = field(default_factory=dict)
     p: ReportedP | None = None
     ci_level: float | None = None
+    also_printed: str | None = None  # a d or g printed beside the test statistic
 
     @property
     def stat(self) -> str:
@@ -187,6 +192,10 @@ _BARE_CI_RE = re.compile(r"[\[]\s?(?P<lo>" + _SREAL + r")\s?[,;]\s?(?P<hi>" + _S
 _MSD_RE = re.compile(
     r"(?<![A-Za-z])M\s?=\s?(?P<m>" + _SREAL + r")\s?[,;(]?\s?SD\s?=\s?(?P<sd>" + _REAL + r")"
     r"\)?(?:\s?[,;]?\s?n\s?=\s?(?P<n>" + _INTK + r"))?(?![\d])")
+#: Printed extras that do not enter the conversion: eta/omega squared, MSE.
+_ANNOTATION_RE = re.compile(
+    r"(?i)(?<![A-Za-z])(?:partial\s)?(?:eta|omega)\s?(?:_?p)?\s?\^?2?\s?(?:_?p)?\s?=\s?"
+    + _REAL + r"|(?<![A-Za-z])MSE\s?=\s?" + _REAL)
 #: Words that may stand between the parts of a result without carrying a number.
 _FILLER = re.compile(r"(?i)\b(?:and|vs|versus|respectively|two-tailed|two-sided|group\s?[12]|"
                      r"control|treatment|experimental|time\s?[12]|pre|post)\b\.?")
@@ -271,8 +280,19 @@ def parse_reported(text: str, *, file: str | None = None, row: int | None = None
     numbers: dict = {}
     ci_level = None
     # test statistics
+    for m in _ANNOTATION_RE.finditer(s):  # eta squared, MSE...: printed, not needed
+        take(m)
     stats = [m for m in _STAT_RE.finditer(s) if not _inside_used(m, used)]
     msd = list(_MSD_RE.finditer(s))
+    also = None
+    tests = [m for m in stats if _canon(m) in ("t", "F", "r", "chi2")]
+    if len(tests) == 1 and len(stats) == 2 and _canon(next(m for m in stats if m is not tests[0]
+                                                            )) in ("d", "g"):
+        # "t(58) = 2.41, p = .019, d = 0.63": the test statistic is converted; the printed
+        # d is kept for the record (with its CI, if any)
+        also = next(m for m in stats if m is not tests[0])
+        take(also)
+        stats = tests
     if len(stats) > 1:
         names = ", ".join(m.group(0) for m in stats)
         raise err(f"it holds more than one statistic ({names}); paste one result per row")
@@ -282,7 +302,7 @@ def parse_reported(text: str, *, file: str | None = None, row: int | None = None
     if stats:
         m = stats[0]
         take(m)
-        canon = next(k[2:] for k, v in m.groupdict().items() if k.startswith("s_") and v)
+        canon = _canon(m)
         val = _num(m.group("val"))
         values["stat"], values["value"] = canon, val.value
         numbers["value"] = val
@@ -341,7 +361,8 @@ def parse_reported(text: str, *, file: str | None = None, row: int | None = None
         if lo.value > hi.value:
             raise err(f"the interval [{lo.value:g}, {hi.value:g}] has its limits in the wrong "
                       "order")
-        values["ci_low"], values["ci_high"] = lo.value, hi.value
+        if values.get("stat") in ("d", "g", "odds_ratio", None):
+            values["ci_low"], values["ci_high"] = lo.value, hi.value
         numbers["ci_low"], numbers["ci_high"] = lo, hi
     # nothing may be left over that carries a number or a word we did not read
     rest = "".join(" " if used[i] else ch for i, ch in enumerate(s))
@@ -382,7 +403,13 @@ def parse_reported(text: str, *, file: str | None = None, row: int | None = None
     if values["stat"] == "odds_ratio" and "ci_low" not in values:
         raise err("an odds ratio needs its 95% CI to know its precision, e.g. "
                   "OR = 2.30, 95% CI [1.10, 4.80]")
-    return Parsed(text=text, values=values, numbers=numbers, p=p, ci_level=ci_level)
+    also_text = None if also is None else f"{_canon(also)} = {also.group('val').strip()}"
+    return Parsed(text=text, values=values, numbers=numbers, p=p, ci_level=ci_level,
+                  also_printed=also_text)
+
+
+def _canon(m: re.Match) -> str:
+    return next(k[2:] for k, v in m.groupdict().items() if k.startswith("s_") and v)
 
 
 _NS_HINT = ("'n.s.' (not significant) without a statistic cannot be converted: it says only "
@@ -662,6 +689,9 @@ def check_record(rec, column_of) -> tuple[list[Inconsistency], object, list[str]
     trust = rec.get("trust") or "statistic"
     parsed = rec.parsed
     new_rec = rec
+    if parsed is not None and parsed.also_printed:
+        notes.append(f"the string also prints {parsed.also_printed}; the effect is computed "
+                     f"from the {stat} statistic")
     # p against the statistic
     if parsed is not None and parsed.p is not None and stat in ("t", "F", "r", "chi2"):
         n_r = n if n is not None else (n1 + n2 if n1 is not None and n2 is not None else None)

@@ -365,7 +365,7 @@ def parse_number(text: str, *, file: str, row: int, column: str, decimal_comma: 
 _MISSPELLED = {"excluded": "exclude", "exclusion": "exclude", "within r": "within_r",
                "within-r": "within_r", "withinr": "within_r", "samples": "sample",
                "statistic": "stat", "stats": "stat", "directions": "direction",
-               "result": "reported", "results": "reported", "as reported": "reported"}
+               "as reported": "reported", "result string": "reported"}
 
 
 def _did_you_mean(key: str) -> str | None:
@@ -432,9 +432,28 @@ def _validate(name, digest, head, body, notes) -> Sheet:
         except InputError as exc:
             problems.append(exc)
     if problems:
+        if records:  # the rows that could be read may hold conversion problems too
+            readable = Sheet(path=name, sha256=digest, columns=tuple(header),
+                             records=tuple(records), notes=tuple(notes))
+            problems.extend(_conversion_problems(readable))
+            problems.sort(key=lambda e: e.row or 0)
         raise InputErrors(problems[:MAX_PROBLEMS])
     return Sheet(path=name, sha256=digest, columns=tuple(header), records=tuple(records),
                  notes=tuple(notes))
+
+
+def _conversion_problems(sheet: Sheet) -> list[InputError]:
+    """What converting the readable rows would refuse, so that one run lists every
+    problem of the sheet (conversion uses its default options here)."""
+    from .effects import convert
+    from .errors import InputErrors
+    try:
+        convert(sheet)
+    except InputErrors as exc:
+        return list(exc.errors)
+    except InputError as exc:
+        return [exc]
+    return []
 
 
 def _record(name, rownum, cells, header, keys, seen, decimal_comma) -> Record:

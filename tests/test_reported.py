@@ -137,7 +137,7 @@ def test_rounding_edges_decide_consistency():
 
 def test_hand_computed_inconsistencies():
     # Invented: t(28) = 2.05, p = .03. By hand, the two-sided p of t = 2.045..2.055 on 28 df
-    # lies between .0494 and .0504 (table value near .05 for t(28) = 2.048, Student t table),
+    # lies between .0493 and .0504 (table value .05 for t(28) = 2.048, Student t table),
     # so p = .03 ([.0295, .0305]) is inconsistent, but both sides are below/around .05:
     # recomputed .0499 is significant, so significance does not change.
     found = check_p(parse_reported("t(28) = 2.05, p = .03"), 28, None, None)

@@ -171,3 +171,10 @@ def test_report_lists_inconsistencies(tmp_path, run_cli):
     assert "Reported numbers that disagree" in report
     assert "row 7, Bad (changes significance at .05)" in report
     assert "t(40) = 1.70, p = .04" in report
+
+
+def test_effect_size_beside_the_test_is_noted(tmp_path):
+    row = _effects(tmp_path, 'A,,"t(58) = 2.41, p = .019, d = 0.63",,30,30,,,,,,,,,,').rows[0]
+    typed = _effects(tmp_path, "A,t,,2.41,30,30,,,,,,,,,,").rows[0]
+    assert row.effect == pytest.approx(typed.effect, rel=1e-12)
+    assert any("also prints d = 0.63" in n for n in row.notes)

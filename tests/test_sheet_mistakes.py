@@ -153,3 +153,11 @@ def test_conversion_problems_reported_together(tmp_path):
         convert(read_sheet(_write(tmp_path, text)))
     assert [(e.row, e.column) for e in exc.value.errors] == [
         (2, "direction"), (3, "value"), (5, "direction")]
+
+
+def test_reading_and_conversion_problems_together(tmp_path):
+    # row 2 cannot be read, row 3 cannot be converted, row 4 is fine: both problems at once
+    text = "study,stat,value,n1,n2,direction\nA,t,2.1*,20,20,\nB,F,4.1,20,20,\nC,t,2.0,20,20,\n"
+    with pytest.raises(InputErrors) as exc:
+        read_sheet(_write(tmp_path, text))
+    assert [(e.row, e.column) for e in exc.value.errors] == [(2, "value"), (3, "direction")]

@@ -132,6 +132,14 @@ CASES = [
     bad("p = .000", "p < .0005"),
     bad("p > .05", "is an inequality"),
     bad("p = 1.3", "p = 1.3 is impossible"),
+    # a test statistic printed with an effect size or other extras: the test is read
+    ok("t(58) = 2.41, p = .019, d = 0.63", "t", 2.41, "= 0.019", df=58),
+    ok("t(58) = 2.41, p = .019, d = 0.63, 95% CI [0.11, 1.15]", "t", 2.41, "= 0.019", df=58),
+    ok("F(1, 212) = 4.12, p = .043, \u03b7p\u00b2 = .02", "F", 4.12, "= 0.043", df=212, df1=1),
+    ok("F(1, 212) = 4.12, MSE = 3.21, p = .043, partial \u03b7\u00b2 = .019", "F", 4.12,
+       "= 0.043", df=212, df1=1),
+    ok("F(1, 212) = 4.12, \u03c92 = .01", "F", 4.12, df=212, df1=1),
+    bad("d = 0.50, g = 0.48", "more than one statistic"),
     # things that cannot be read without guessing
     bad("n.s.", "without a statistic cannot be converted"),
     bad("ns", "without a statistic cannot be converted"),
