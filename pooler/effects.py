@@ -284,6 +284,8 @@ class _Ctx:
         self.warnings: list[str] = []
 
     def err(self, rec: Record, key: str | None, msg: str) -> InputError:
+        if key in rec.from_reported:  # the value came from the pasted result string
+            key = "reported"
         return InputError(msg, file=self.sheet.path, row=rec.row,
                           column=column_label(self.sheet, key) if key else None)
 

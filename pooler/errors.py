@@ -61,7 +61,7 @@ class InputErrors(InputError):
     lists every one (up to ``MAX_SHOWN``) on its own line.
     """
 
-    MAX_SHOWN = 25
+    MAX_SHOWN = 50
 
     def __init__(self, errors):
         self.errors = tuple(errors)

@@ -730,7 +730,7 @@ def check_record(rec, column_of) -> tuple[list[Inconsistency], object, list[str]
             welch = stat in ("t", "F") and design == "between" and not float(df).is_integer()
             bad = (df > want + 1e-9) if welch else abs(df - want) > 1e-9
             if bad:
-                where = COLUMN if parsed is not None and "df" in parsed.values else "df"
+                where = COLUMN if "df" in rec.from_reported else "df"
                 msg = (f"df = {df:g} but the sample sizes give {rule} = {want:g}"
                        + ("; a Welch df cannot exceed it" if welch else
                           "; check the sample sizes and the df (the effect uses the sample "

@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
-from .errors import InputError
+from .errors import InputError, InputErrors
 
 #: Reported statistics the converters understand.
 STATS = ("t", "F", "r", "d", "g", "means", "chi2", "counts", "odds_ratio", "p")
@@ -87,6 +87,7 @@ class Record:
     values: Mapping[str, Any]
     extra: Mapping[str, str] = field(default_factory=dict)
     parsed: Any = None  # pooler.reported.Parsed of the 'reported' column, if filled
+    from_reported: tuple = ()  # columns whose value came from the 'reported' string
 
     def get(self, key: str, default: Any = None) -> Any:
         v = self.values.get(key)
@@ -382,12 +383,11 @@ def _did_you_mean(key: str) -> str | None:
 
 #: Columns that hold whole numbers (people, events, degrees of freedom of F's numerator).
 WHOLE = ("n1", "n2", "n", "events1", "events2", "df1")
-#: Most problems reported in one run.
-MAX_PROBLEMS = 50
+#: Most problems a message lists (all are kept in ``InputErrors.errors``).
+MAX_PROBLEMS = InputErrors.MAX_SHOWN
 
 
 def _validate(name, digest, head, body, notes) -> Sheet:
-    from .errors import InputErrors
     hrow, header, decimal_comma = head
     keys: list[str] = []
     seen: dict[str, str] = {}
@@ -423,10 +423,9 @@ def _validate(name, digest, head, body, notes) -> Sheet:
         raise InputError("the sheet has a header but no data rows", file=name)
     records = []
     for rownum, cells in body:
-        if len(problems) >= MAX_PROBLEMS:
-            break
         try:
-            records.append(_record(name, rownum, cells, header, keys, seen, decimal_comma))
+            records.append(_record(name, rownum, cells, header, keys, seen, decimal_comma,
+                                   notes))
         except InputErrors as exc:
             problems.extend(exc.errors)
         except InputError as exc:
@@ -437,7 +436,7 @@ def _validate(name, digest, head, body, notes) -> Sheet:
                              records=tuple(records), notes=tuple(notes))
             problems.extend(_conversion_problems(readable))
             problems.sort(key=lambda e: e.row or 0)
-        raise InputErrors(problems[:MAX_PROBLEMS])
+        raise InputErrors(problems)
     return Sheet(path=name, sha256=digest, columns=tuple(header), records=tuple(records),
                  notes=tuple(notes))
 
@@ -446,7 +445,6 @@ def _conversion_problems(sheet: Sheet) -> list[InputError]:
     """What converting the readable rows would refuse, so that one run lists every
     problem of the sheet (conversion uses its default options here)."""
     from .effects import convert
-    from .errors import InputErrors
     try:
         convert(sheet)
     except InputErrors as exc:
@@ -456,9 +454,12 @@ def _conversion_problems(sheet: Sheet) -> list[InputError]:
     return []
 
 
-def _record(name, rownum, cells, header, keys, seen, decimal_comma) -> Record:
-    """One data row checked and parsed; every cell problem of the row is reported."""
-    from .errors import InputErrors
+def _record(name, rownum, cells, header, keys, seen, decimal_comma, notes) -> Record:
+    """One data row checked and parsed; every cell problem of the row is reported.
+
+    A row with a reason in ``exclude`` is only listed, never pooled: cells of it that
+    cannot be read are left empty (and said in ``notes``) instead of stopping the run.
+    """
     from .reported import parse_reported
     if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
         raise InputError(f"this row has {len(cells)} cells but the header has {len(header)} "
@@ -485,6 +486,12 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma) -> Record:
             values[key] = text or None
         else:
             extra[col] = cell
+    if errs and values.get("exclude"):
+        for e in errs:
+            values[next(k for k, c in zip(keys, header) if c == e.column)] = None
+        notes.append(f"row {rownum} is excluded; its unreadable cell(s) "
+                     + ", ".join(f"'{e.column}'" for e in errs) + " left empty")
+        errs = []
     if errs:
         raise InputErrors(errs)
     for key in KNOWN:
@@ -511,10 +518,18 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma) -> Record:
             raise err("stat", f"unknown statistic '{stat}'; use one of: " + ", ".join(STATS))
         values["stat"] = canon or stat
     parsed = None
+    filled: tuple = ()
     if values["reported"]:
-        parsed = parse_reported(values["reported"], file=name, row=rownum,
-                                column=seen["reported"])
-        _merge(parsed, values, err, seen)
+        try:
+            parsed = parse_reported(values["reported"], file=name, row=rownum,
+                                    column=seen["reported"])
+        except InputError:
+            if not values["exclude"]:
+                raise
+            notes.append(f"row {rownum} is excluded; its 'reported' string is kept as text "
+                         "but not read")
+        if parsed is not None:
+            filled = _merge(parsed, values, err, seen)
     if not values["stat"]:
         if values["exclude"]:
             values["stat"] = None
@@ -555,7 +570,8 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma) -> Record:
                         "empty (it is split equally, halves included)")
             raise err(key, f"{key} = {v:g} is not a whole number; it counts "
                            f"{'degrees of freedom' if key == 'df1' else 'people'}" + hint)
-    return Record(row=rownum, values=values, extra=extra, parsed=parsed)
+    return Record(row=rownum, values=values, extra=extra, parsed=parsed,
+                  from_reported=filled)
 
 
 _WITHIN_WORDS = ("within", "w", "paired", "repeated", "within-subject", "within-subjects")
@@ -564,16 +580,19 @@ _WITHIN_ALIASES = {"d_z": "d", "dz": "d", "d z": "d", "paired t": "t", "paired-t
                    "paired_t": "t", "t paired": "t", "dependent t": "t"}
 
 
-def _merge(parsed, values: dict, err, seen) -> None:
+def _merge(parsed, values: dict, err, seen) -> tuple:
     """Complete the row's columns from a parsed result string; a column the user filled
-    that disagrees with the string is an error (never silently overridden)."""
+    that disagrees with the string is an error (never silently overridden). Returns the
+    columns filled from the string."""
     col = seen.get("reported", "reported")
+    filled = []
     for key, v in parsed.values.items():
         if key.startswith("_"):
             continue
         have = values.get(key)
         if have is None:
             values[key] = v
+            filled.append(key)
             continue
         if key == "stat":
             if have != v:
@@ -583,6 +602,7 @@ def _merge(parsed, values: dict, err, seen) -> None:
         if abs(have - v) > 1e-9 * max(1.0, abs(v)):
             raise err(key, f"'{key}' holds {have:g} but the '{col}' string says {key} = {v:g}; "
                            "fix one of them or leave the column empty")
+    return tuple(filled)
 
 
 class _SpecialCell(str):

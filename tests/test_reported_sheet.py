@@ -178,3 +178,13 @@ def test_effect_size_beside_the_test_is_noted(tmp_path):
     typed = _effects(tmp_path, "A,t,,2.41,30,30,,,,,,,,,,").rows[0]
     assert row.effect == pytest.approx(typed.effect, rel=1e-12)
     assert any("also prints d = 0.63" in n for n in row.notes)
+
+
+def test_problem_in_a_value_from_the_string_names_the_string(tmp_path):
+    # df 58 from the string cannot fit 12 + 12 people: the message points at 'reported'
+    with pytest.raises(InputError) as exc:
+        _effects(tmp_path, 'A,,"t(58) = 2.41",,12,12,,,,,,,,,,')
+    assert exc.value.column == "reported" and "df = 58 is larger" in str(exc.value)
+    with pytest.raises(InputError) as exc:
+        _effects(tmp_path, "A,t,,2.41,12,12,,58,,,,,,,,")
+    assert exc.value.column == "df"

@@ -136,8 +136,10 @@ def test_problems_are_capped(tmp_path):
     rows = "".join(f"S{i},t,{i}x,20,20\n" for i in range(MAX_PROBLEMS + 30))
     with pytest.raises(InputErrors) as exc:
         read_sheet(_write(tmp_path, "study,stat,value,n1,n2\n" + rows))
-    assert len(exc.value.errors) == MAX_PROBLEMS
-    assert "more; fix these and run again" in str(exc.value)
+    assert len(exc.value.errors) == MAX_PROBLEMS + 30
+    text = str(exc.value)
+    assert text.count("\n  - ") == MAX_PROBLEMS - 1
+    assert "... and 30 more; fix these and run again" in text
 
 
 def test_several_cells_of_one_row(tmp_path):
@@ -161,3 +163,19 @@ def test_reading_and_conversion_problems_together(tmp_path):
     with pytest.raises(InputErrors) as exc:
         read_sheet(_write(tmp_path, text))
     assert [(e.row, e.column) for e in exc.value.errors] == [(2, "value"), (3, "direction")]
+
+
+def test_excluded_rows_may_hold_what_cannot_be_read(tmp_path):
+    # the messages suggest excluding a row with a reason: doing so must work
+    text = ('study,stat,reported,value,n1,n2,exclude\n'
+            'A,t,,2.1,20,20,\n'
+            'B,,"p < .001",,20,20,only an inequality reported\n'
+            'C,t,,n.s.,20,20,only n.s. reported\n')
+    sheet = read_sheet(_write(tmp_path, text))
+    eff = convert(sheet)
+    assert eff.k == 1 and eff.n_excluded == 2
+    assert [r.reason for r in eff.rows[1:]] == ["only an inequality reported",
+                                                 "only n.s. reported"]
+    assert eff.rows[1].reported == "p < .001"
+    assert any("row 3 is excluded" in n for n in sheet.notes)
+    assert any("row 4 is excluded" in n and "'value'" in n for n in sheet.notes)
