@@ -171,6 +171,8 @@ def test_report_lists_inconsistencies(tmp_path, run_cli):
     assert "Reported numbers that disagree" in report
     assert "row 7, Bad (changes significance at .05)" in report
     assert "t(40) = 1.70, p = .04" in report
+    doc = json.loads((out / "results.json").read_text(encoding="utf-8"))
+    assert [c["row"] for c in doc["pool"]["inconsistent_reports"]] == [7]
 
 
 def test_effect_size_beside_the_test_is_noted(tmp_path):
