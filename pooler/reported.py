@@ -64,7 +64,8 @@ def normalise(text: str) -> str:
     for ch in _SPACES:
         s = s.replace(ch, " ")
     s = (s.replace("\u03c7", "chi").replace("\u03a7", "chi").replace("\u00b2", "2")
-         .replace("\u03b7", "eta").replace("\u03c9", "omega")
+         .replace("\u03b7", "eta").replace("\u03c9", "omega").replace("\u03c6", "phi")
+         .replace("\u03d5", "phi").replace("\u00e9", "e")
          .replace("\u2264", "<=").replace("\u2265", ">=").replace("\uff1d", "=")
          .replace("\u201c", "").replace("\u201d", "").replace("\u2019", "'"))
     s = re.sub(r"\s+", " ", s).strip()
@@ -183,6 +184,8 @@ _P_RE = re.compile(r"(?<![A-Za-z])p(?:\s?-?\s?value)?\s?(?P<rel><=|>=|=|<|>)\s?(
                    + _REAL + r")(?![\d])", re.IGNORECASE)
 _N_RE = re.compile(r"(?<![A-Za-z])n\s?_?(?P<g>[12])?\s?=\s?(?P<val>" + _INTK + r")(?![\d])",
                    re.IGNORECASE)
+_PER_GROUP_RE = re.compile(r"(?<![A-Za-z])n\s?=\s?(?P<val>" + _INTK + r")\s?(?:per|in each|each)"
+                           r"\s?(?:group|condition|arm)", re.IGNORECASE)
 _DF_RE = re.compile(r"(?<![A-Za-z])df\s?=\s?(?P<val>" + _INTK + r")", re.IGNORECASE)
 _CI_RE = re.compile(
     r"(?:(?P<lvl>\d{2}(?:[.,]\d+)?)\s?%\s?)?(?:CI|confidence interval)\s?(?:(?P<lvl2>\d{2})\s?%?)?"
@@ -195,7 +198,7 @@ _MSD_RE = re.compile(
 #: Printed extras that do not enter the conversion: eta/omega squared, MSE.
 _ANNOTATION_RE = re.compile(
     r"(?i)(?<![A-Za-z])(?:partial\s)?(?:eta|omega)\s?(?:_?p)?\s?\^?2?\s?(?:_?p)?\s?=\s?"
-    + _REAL + r"|(?<![A-Za-z])MSE\s?=\s?" + _REAL)
+    + _REAL + r"|(?<![A-Za-z])(?:MSE|phi|Cramer'?s\sV)\s?=\s?" + _REAL)
 #: Words that may stand between the parts of a result without carrying a number.
 _FILLER = re.compile(r"(?i)\b(?:and|vs|versus|respectively|two-tailed|two-sided|group\s?[12]|"
                      r"control|treatment|experimental|time\s?[12]|pre|post)\b\.?")
@@ -331,6 +334,13 @@ def parse_reported(text: str, *, file: str | None = None, row: int | None = None
         if p.number.value > 1:
             raise err(f"p = {p.number.value:g} is impossible; a p-value lies between 0 and 1")
     # sample sizes and df written out
+    for m in _PER_GROUP_RE.finditer(s):
+        take(m)
+        v = _count(m.group("val"), err, "n per group")
+        for key in ("n1", "n2"):
+            if key in values and values[key] != v:
+                raise err(f"{key} is given twice with different values")
+            values[key] = v
     for m in _N_RE.finditer(s):
         if used[m.start()]:
             continue
