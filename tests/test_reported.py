@@ -175,3 +175,33 @@ def test_ci_checks():
     # one decimal on each limit: [0.1, 0.9] allows midpoints 0.45..0.55
     assert check_ci(parse_reported("d = 0.55, 95% CI [0.1, 0.9]")) is None
     assert check_ci(parse_reported("d = 0.57, 95% CI [0.1, 0.9]")) is not None
+
+
+# ---------------------------------------------------------------- robustness
+
+_PIECES = ["t(", "F(1, ", "r(", "chi2(1, N = ", "d = ", "OR = ", "p = ", "p < ", "95% CI [",
+           "M = ", ", SD = ", "n = ", ", ", "; ", ") = ", "]", "\u2212", "\u2013", ".", ",",
+           "0", "1", "2", "5", "9", " ", "\n", "n.s.", "--", "=="]
+
+
+def test_any_string_gives_a_parse_or_an_input_error():
+    # 5,000 random strings assembled from the pieces results are made of (seeded): the
+    # parser and the checks either succeed or raise InputError, never anything else
+    import random
+    rng = random.Random(14)
+    for _ in range(5000):
+        s = "".join(rng.choice(_PIECES) for _ in range(rng.randint(1, 12)))
+        try:
+            r = parse_reported(s)
+        except InputError:
+            continue
+        check_ci(r)
+        check_p(r, r.values.get("df") or 30, r.values.get("df1"), r.values.get("n") or 40)
+
+
+def test_one_tailed_p_is_halved(tmp_path):
+    # t(58) = 2.41 gives two-sided p = .0191, one-sided .0096: a printed one-tailed
+    # p = .010 ([.0095, .0105]) is consistent only when tails = 1
+    parsed = parse_reported("t(58) = 2.41, p = .010")
+    assert check_p(parsed, 58, None, None, tails=1) is None
+    assert check_p(parsed, 58, None, None, tails=2) is not None
