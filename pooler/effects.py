@@ -28,7 +28,7 @@ from typing import Callable
 
 from ._results import Interval, to_jsonable
 from .errors import InputError, InputErrors, OptionError
-from .reported import check_record
+from .consistency import check_record
 from .sheet import Record, Sheet, column_label
 
 METRICS = {"d": "g", "g": "g", "r": "z", "z": "z"}
@@ -213,7 +213,7 @@ class Effects:
     sha256: str
     within_r: float
     sample_r: float
-    inconsistencies: tuple = ()  # pooler.reported.Inconsistency, significance changes first
+    inconsistencies: tuple = ()  # pooler.consistency.Inconsistency, significance changes first
 
     @property
     def k(self) -> int:
