@@ -107,6 +107,20 @@ def build_blocks(run) -> list[Block]:
         b.append(Block("p", "Warnings:"))
         b.append(Block("list", items=tuple(md_escape(w) for w in eff.warnings)))
 
+    if eff.inconsistencies:
+        b.append(Block("h2", "Reported numbers that disagree"))
+        b.append(Block("p", (
+            "A printed result is several numbers that must agree: the statistic and its "
+            "degrees of freedom fix the p-value, the degrees of freedom follow from the sample "
+            "sizes, and a confidence interval sits around its estimate. Allowing for the "
+            "rounding of every printed number, these rows still disagree (disagreements that "
+            "move p across .05 first). Check them against the paper; column 'trust' chooses "
+            "whether the statistic (default) or the p is used.")))
+        b.append(Block("list", items=tuple(
+            f"row {c.row}, {md_escape(c.study)}"
+            + (" (changes significance at .05)" if c.changes_significance else "")
+            + f": {md_escape(c.message)}" for c in eff.inconsistencies)))
+
     b.append(Block("h2", "Conversions"))
     from .report import _reported
     recs = {rec.row: rec for rec in a.sheet.records}

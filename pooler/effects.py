@@ -27,7 +27,8 @@ from dataclasses import dataclass, field, replace
 from typing import Callable
 
 from ._results import Interval, to_jsonable
-from .errors import InputError, OptionError
+from .errors import InputError, InputErrors, OptionError
+from .consistency import check_record
 from .sheet import Record, Sheet, column_label
 
 METRICS = {"d": "g", "g": "g", "r": "z", "z": "z"}
@@ -158,6 +159,7 @@ class EffectRow:
     notes: tuple[str, ...] = ()
     sample: str | None = None
     extra: dict = field(default_factory=dict)
+    reported: str | None = None  # the result string as pasted, if the row had one
 
     @property
     def se(self) -> float | None:
@@ -177,7 +179,8 @@ class EffectRow:
                 "ci_low": ci.low if ci else None, "ci_high": ci.high if ci else None,
                 "n_total": self.n_total, "n1": self.n1, "n2": self.n2,
                 "design": self.design, "sample": self.sample, "status": self.status,
-                "reason": self.reason, "notes": list(self.notes), "extra": dict(self.extra)}
+                "reason": self.reason, "notes": list(self.notes), "extra": dict(self.extra),
+                "reported": self.reported}
 
 
 @dataclass(frozen=True)
@@ -240,6 +243,7 @@ class Effects:
     sha256: str
     within_r: float
     sample_r: float
+    inconsistencies: tuple = ()  # pooler.consistency.Inconsistency, significance changes first
 
     @property
     def k(self) -> int:
@@ -276,6 +280,7 @@ class Effects:
             "units": [u.to_dict() for u in self.units],
             "assumptions": list(self.assumptions), "warnings": list(self.warnings),
             "rows_used": self.n_used, "rows_excluded": self.n_excluded,
+            "inconsistent_reports": [i.to_dict() for i in self.inconsistencies],
         })
 
     def __repr__(self) -> str:
@@ -316,6 +321,8 @@ class _Ctx:
         self.warnings: list[str] = []
 
     def err(self, rec: Record, key: str | None, msg: str) -> InputError:
+        if key in rec.from_reported:  # the value came from the pasted result string
+            key = "reported"
         return InputError(msg, file=self.sheet.path, row=rec.row,
                           column=column_label(self.sheet, key) if key else None)
 
@@ -695,7 +702,8 @@ def convert(sheet: Sheet, metric: str = "d", *, within_r: float = 0.5,
     Raises
     ------
     InputError
-        For the first row that cannot be converted, with file, row and column.
+        For rows that cannot be converted, with file, row and column: an
+        :class:`~pooler.errors.InputErrors` listing every such row.
 
     Examples
     --------
@@ -715,25 +723,37 @@ def convert(sheet: Sheet, metric: str = "d", *, within_r: float = 0.5,
     ctx = _Ctx(sheet, within_r)
     out_rows: list[EffectRow] = []
     pending: list[tuple[Record, _Raw, float, float]] = []
+    problems: list[InputError] = []
+    found: list = []
+    _warn_duplicates(ctx, sheet)
     for rec in sheet.records:
         reason_ex = rec.get("exclude")
         try:
-            raw = CONVERTERS[rec.stat](ctx, rec) if rec.stat in CONVERTERS else None
+            checks, rec_used, check_notes = check_record(
+                rec, lambda key: column_label(sheet, key))
+            raw = CONVERTERS[rec.stat](ctx, rec_used) if rec.stat in CONVERTERS else None
             if raw is None:
                 raise ctx.err(rec, "stat", f"unknown statistic '{rec.stat}'")
             y, v = _to_metric(raw, metric)
             if not (math.isfinite(y) and math.isfinite(v) and v > 0):
                 raise ctx.err(rec, "value", "the reported numbers give no finite effect with a "
                                             "positive variance; check them")
-        except InputError:
+        except InputError as exc:
             if reason_ex:
                 out_rows.append(EffectRow(rec.row, rec.study, rec.stat,
                                           (rec.get("design") or "between"), None, None, None,
                                           None, None, "excluded", reason_ex,
                                           ("not converted: the row's numbers are incomplete",),
-                                          rec.get("sample"), dict(rec.extra)))
+                                          rec.get("sample"), dict(rec.extra),
+                                          rec.get("reported")))
                 continue
-            raise
+            problems.append(exc.located(file=sheet.path))
+            continue
+        raw.notes.extend(check_notes)
+        if not reason_ex:
+            for c in checks:
+                ctx.warn(rec, f"column '{c.column}': reported numbers disagree: {c.message}")
+            found.extend(checks)
         if raw.kind == "d" and abs(raw.est) > LARGE_D:
             ctx.warn(rec, f"|d| = {abs(raw.est):.2f} is unusually large; check the numbers")
         if reason_ex:
@@ -743,7 +763,9 @@ def convert(sheet: Sheet, metric: str = "d", *, within_r: float = 0.5,
             pending.append((rec, raw, y, v))
         out_rows.append(EffectRow(rec.row, rec.study, rec.stat, raw.design, y, v, raw.n_total,
                                   raw.n1, raw.n2, status, reason, tuple(raw.notes),
-                                  rec.get("sample"), dict(rec.extra)))
+                                  rec.get("sample"), dict(rec.extra), rec.get("reported")))
+    if problems:
+        raise InputErrors(problems)
 
     units, combined = _units(ctx, pending, sample_r)
     if combined:
@@ -751,9 +773,28 @@ def convert(sheet: Sheet, metric: str = "d", *, within_r: float = 0.5,
                     replace(r, reason=combined[r.row]) for r in out_rows]
 
     assumptions = _assumptions(out_rows, within_r, sample_r, combined)
+    found.sort(key=lambda c: (not c.changes_significance, c.row))
     return Effects(metric=metric, rows=tuple(out_rows), units=tuple(units),
                    assumptions=tuple(assumptions), warnings=tuple(ctx.warnings),
-                   file=sheet.path, sha256=sheet.sha256, within_r=within_r, sample_r=sample_r)
+                   file=sheet.path, sha256=sheet.sha256, within_r=within_r, sample_r=sample_r,
+                   inconsistencies=tuple(found))
+
+
+def _warn_duplicates(ctx: _Ctx, sheet: Sheet) -> None:
+    """Warn about rows that repeat an earlier row cell for cell (they would be pooled
+    twice); the copy is excluded only when the user says so in 'exclude'."""
+    first: dict = {}
+    for rec in sheet.records:
+        if rec.get("exclude"):
+            continue
+        key = (tuple(sorted((k, v) for k, v in rec.values.items() if v is not None)),
+               tuple(sorted(rec.extra.items())))
+        if key in first:
+            ctx.warn(rec, f"row {rec.row} repeats row {first[key]} exactly, so the same result "
+                          "would be pooled twice; if it is a copy, put e.g. 'duplicate of row "
+                          f"{first[key]}' in 'exclude'")
+        else:
+            first[key] = rec.row
 
 
 def _units(ctx: _Ctx, pending, sample_r: float):

@@ -51,3 +51,31 @@ class InputError(PoolerError):
 
 class OptionError(PoolerError):
     """An option value that cannot be used (named in the message)."""
+
+
+class InputErrors(InputError):
+    """Several located input problems found in one pass over a sheet.
+
+    Behaves as its first error (``file``, ``row``, ``column``, ``message``) so code that
+    handles one :class:`InputError` keeps working; ``errors`` holds them all, and the text
+    lists every one (up to ``MAX_SHOWN``) on its own line.
+    """
+
+    MAX_SHOWN = 50
+
+    def __init__(self, errors):
+        self.errors = tuple(errors)
+        first = self.errors[0]
+        super().__init__(first.message, file=first.file, row=first.row, column=first.column)
+
+    def __str__(self) -> str:
+        first = InputError.__str__(self)
+        n = len(self.errors)
+        if n == 1:
+            return first
+        shown = self.errors[1:self.MAX_SHOWN]
+        lines = [f"{first}  [problem 1 of {n}; the others follow]"]
+        lines += [f"  - {e}" for e in shown]
+        if n > self.MAX_SHOWN:
+            lines.append(f"  ... and {n - self.MAX_SHOWN} more; fix these and run again")
+        return "\n".join(lines)

@@ -23,7 +23,8 @@ def effects_csv(effects) -> str:
     w = csv.writer(buf, lineterminator="\n")
     extra = list(dict.fromkeys(k for r in effects.rows for k in r.extra))
     w.writerow(["row", "study", "stat", "design", "effect", "variance", "se", "ci_low",
-                "ci_high", "n_total", "n1", "n2", "sample", "status", "reason", "notes"] + extra)
+                "ci_high", "n_total", "n1", "n2", "sample", "status", "reason", "notes",
+                "reported"] + extra)
     for r in effects.rows:
         ci = r.ci()
         w.writerow([r.row, csv_safe(r.study), r.stat, r.design,
@@ -31,7 +32,7 @@ def effects_csv(effects) -> str:
                       (r.effect, r.variance, r.se, ci.low if ci else None,
                        ci.high if ci else None, r.n_total, r.n1, r.n2)],
                     csv_safe(r.sample or ""), r.status, csv_safe(r.reason),
-                    csv_safe("; ".join(r.notes))] + [csv_safe(r.extra.get(k, "")) for k in extra])
+                    csv_safe("; ".join(r.notes)), csv_safe(r.reported or "")] + [csv_safe(r.extra.get(k, "")) for k in extra])
     return buf.getvalue()
 
 

@@ -32,10 +32,12 @@ class Analysis:
         for u, w in zip(self.effects.units, self.pooled.weights):
             for r in u.rows:
                 weight[r] = w
-        rows = self.effects.to_dict()["rows"]
+        eff = self.effects.to_dict()
+        rows = eff["rows"]
         for r in rows:
             r["weight"] = weight.get(r["row"])
         doc["rows"] = rows
+        doc["inconsistent_reports"] = eff["inconsistent_reports"]
         return doc
 
     def to_dict(self) -> dict:

@@ -12,6 +12,8 @@ from ._results import NotEstimable, csv_safe, text_table
 def _reported(row, sheet_rec) -> str:
     """A short description of what the sheet row reported, e.g. 't = 2.10'."""
     v = sheet_rec.values
+    if v.get("reported"):
+        return " ".join(v["reported"].split())
     stat = row.stat or "?"
     if stat == "means":
         return f"means {v['mean1']:g} vs {v['mean2']:g}" if v.get("mean1") is not None else "means"

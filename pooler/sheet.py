@@ -8,6 +8,7 @@ message and output can point back at the line the user typed.
 from __future__ import annotations
 
 import csv
+import datetime
 import hashlib
 import io
 import math
@@ -16,7 +17,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
-from .errors import InputError
+from .errors import InputError, InputErrors
 
 #: Reported statistics the converters understand.
 STATS = ("t", "F", "r", "d", "g", "means", "chi2", "counts", "odds_ratio", "p")
@@ -29,8 +30,8 @@ _STAT_ALIASES = {s.lower(): s for s in STATS} | {
 NUMERIC = ("value", "n1", "n2", "n", "df", "df1", "mean1", "sd1", "mean2", "sd2",
            "events1", "events2", "ci_low", "ci_high", "within_r", "tails", "year")
 #: Columns read as text.
-TEXT = ("study", "sample", "stat", "direction", "design", "published", "subgroup",
-        "note", "exclude")
+TEXT = ("study", "sample", "stat", "reported", "trust", "direction", "design", "published",
+        "subgroup", "note", "exclude")
 KNOWN = TEXT + NUMERIC
 REQUIRED = ("study", "stat")
 
@@ -38,7 +39,14 @@ REQUIRED = ("study", "stat")
 COLUMN_GUIDE: dict[str, str] = {
     "study": "label of the report (required)",
     "sample": "independent-sample id; rows sharing it are combined into one effect",
-    "stat": "what was reported: " + ", ".join(STATS) + " (required)",
+    "stat": "what was reported: " + ", ".join(STATS) + " (required unless 'reported' is filled;"
+            " 'paired t' and 'd_z' mean t and d with design 'within')",
+    "reported": "the result pasted as the paper prints it, e.g. 't(58) = 2.41, p = .019', "
+                "'r = -.24, n = 97', 'OR = 2.30, 95% CI [1.10, 4.80]'; it fills stat, value, "
+                "df, n and CI (typed columns may complete it; a disagreement is an error), and "
+                "its numbers are checked against each other",
+    "trust": "which number the effect uses when a reported result disagrees with itself: "
+             "'statistic' (default) or 'p'",
     "value": "the reported number for t, F, r, d, g, chi2, odds_ratio or p",
     "n1": "size of group 1 (the group expected to score higher)",
     "n2": "size of group 2",
@@ -78,6 +86,8 @@ class Record:
     row: int
     values: Mapping[str, Any]
     extra: Mapping[str, str] = field(default_factory=dict)
+    parsed: Any = None  # pooler.reported.Parsed of the 'reported' column, if filled
+    from_reported: tuple = ()  # columns whose value came from the 'reported' string
 
     def get(self, key: str, default: Any = None) -> Any:
         v = self.values.get(key)
@@ -254,9 +264,31 @@ def _read_xlsx(data: bytes, name: str, notes: list[str]):
         first = sorted(str(r) for r in ws.merged_cells.ranges)[0]
         raise InputError(f"merged cells ({first}) cannot be read as data; unmerge them and "
                          "repeat the value in each row", file=name)
+    formulas = None
     rows = []
     for i, row in enumerate(ws.iter_rows(values_only=True), start=1):
-        rows.append((i, ["" if v is None else _cell_text(v) for v in row]))
+        cells = []
+        for j, v in enumerate(row, start=1):
+            if v is None:
+                if formulas is None:
+                    formulas = openpyxl.load_workbook(io.BytesIO(data), data_only=False
+                                                      ).worksheets[0]
+                f = formulas.cell(i, j).value
+                if isinstance(f, str) and f.startswith("="):
+                    cells.append(_SpecialCell(f, "formula", (
+                        f"the cell holds a formula ({f}) without a saved result, so it has no "
+                        "value to read; open the file in your spreadsheet program and save it "
+                        "again (that stores the result), or type the number")))
+                else:
+                    cells.append("")
+            elif isinstance(v, (datetime.datetime, datetime.date, datetime.time)):
+                cells.append(_SpecialCell(str(v), "date", (
+                    f"the cell is an Excel date ({v}), not a number: the spreadsheet turned "
+                    "what was typed into a date; format the column as Number (or Text) and "
+                    "type the value again")))
+            else:
+                cells.append(_cell_text(v))
+        rows.append((i, cells))
     return _split_header(rows, name, notes, decimal_comma=False)
 
 
@@ -285,16 +317,36 @@ def _split_header(rows, name, notes, decimal_comma):
 _NUM = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
 
 
-def parse_number(text: str, *, file: str, row: int, column: str, decimal_comma: bool) -> float:
-    """Parse one numeric cell, or raise an :class:`InputError` saying how to fix it."""
+def parse_number(text: str, *, file: str, row: int, column: str, decimal_comma: bool,
+                 whole: bool = False) -> float:
+    """Parse one numeric cell, or raise an :class:`InputError` saying how to fix it.
+
+    ``whole``: the column counts people or events, so a separator followed by three
+    digits ("1,024", or "1.024" in a sheet that uses decimal commas) is read as a
+    thousands separator and refused with that explanation.
+    """
     s = text.strip().replace("\u2212", "-")  # typographic minus from PDFs
+    thousands = re.fullmatch(r"\d{1,3}(?:([,.])\d{3})+", s)
+    if thousands and (whole or (thousands.group(1) == "," and not decimal_comma)):
+        plain = re.sub(r"[,.]", "", s)
+        if whole:
+            msg = (f"'{text}' looks like {plain} written with a thousands separator; type "
+                   f"{plain} without one")
+        else:
+            msg = (f"'{text}' is ambiguous: type {plain} if the separator groups thousands, or "
+                   f"{s.replace(',', '.')} if it is a decimal comma")
+        raise InputError(msg, file=file, row=row, column=column)
     if decimal_comma and re.fullmatch(r"[+-]?\d*,\d+", s):
         s = s.replace(",", ".")
     if _NUM.match(s):
         return float(s)
     low = s.lower()
     hint = "give a plain number such as 2.31"
-    if re.fullmatch(r"[+-]?\d*,\d+", s):
+    if re.fullmatch(r"\(?n\.?\s?s\.?\)?|not significant|non-?significant", low):
+        hint = ("'n.s.' (not significant) is not a statistic; a non-significant result without "
+                "its statistic cannot be converted. Enter the exact statistic or the exact p "
+                "(stat 'p'), or put the reason in 'exclude' (e.g. 'only n.s. reported')")
+    elif re.fullmatch(r"[+-]?\d*,\d+", s):
         hint = "use a dot as decimal separator (2.31, not 2,31)"
     elif low.startswith(("<", ">", "≤", "≥", "p<", "p>", "p =", "p=")) or "<" in low or ">" in low:
         hint = ("an inequality is not an exact value; give the exact number, or mark the row "
@@ -310,10 +362,36 @@ def parse_number(text: str, *, file: str, row: int, column: str, decimal_comma: 
     raise InputError(f"'{text}' is not a number; {hint}", file=file, row=row, column=column)
 
 
+#: Misspellings seen in practice, with the column meant (others are found by similarity).
+_MISSPELLED = {"excluded": "exclude", "exclusion": "exclude", "within r": "within_r",
+               "within-r": "within_r", "withinr": "within_r", "samples": "sample",
+               "statistic": "stat", "stats": "stat", "directions": "direction",
+               "as reported": "reported", "result string": "reported"}
+
+
+def _did_you_mean(key: str) -> str | None:
+    """The known column a header cell was probably meant to be, or None."""
+    import difflib
+    if key in _MISSPELLED:
+        return _MISSPELLED[key]
+    squashed = re.sub(r"[\s\-.]+", "_", key)
+    if squashed in KNOWN:
+        return squashed
+    close = difflib.get_close_matches(key, KNOWN, n=1, cutoff=0.8)
+    return close[0] if close else None
+
+
+#: Columns that hold whole numbers (people, events, degrees of freedom of F's numerator).
+WHOLE = ("n1", "n2", "n", "events1", "events2", "df1")
+#: Most problems a message lists (all are kept in ``InputErrors.errors``).
+MAX_PROBLEMS = InputErrors.MAX_SHOWN
+
+
 def _validate(name, digest, head, body, notes) -> Sheet:
     hrow, header, decimal_comma = head
     keys: list[str] = []
     seen: dict[str, str] = {}
+    problems: list[InputError] = []
     for col in header:
         key = col.strip().lower()
         if not key:
@@ -324,63 +402,217 @@ def _validate(name, digest, head, body, notes) -> Sheet:
                              "rename or delete one", file=name, row=hrow, column=col)
         seen[key] = col
         keys.append(key)
+        if key not in KNOWN:
+            meant = _did_you_mean(key)
+            if meant is not None and meant not in [k.strip().lower() for k in header]:
+                problems.append(InputError(
+                    f"unknown column '{col}': did you mean '{meant}'? A misspelt column would "
+                    "be carried along unread; rename it (or rename it to something clearly "
+                    "different to keep it as an extra column)", file=name, row=hrow, column=col))
     for req in REQUIRED:
-        if req not in seen:
-            raise InputError(f"the required column '{req}' is missing; the header has: "
-                             + ", ".join(header), file=name, row=hrow)
+        if req not in seen and not (req == "stat" and "reported" in seen):
+            near = [p for p in problems if f"did you mean '{req}'?" in p.message]
+            problems = [p for p in problems if p not in near]
+            hint = f" (did you mean '{near[0].column}'?)" if near else ""
+            problems.insert(0, InputError(f"the required column '{req}' is missing{hint}; the "
+                                          "header has: " + ", ".join(header),
+                                          file=name, row=hrow))
+    if problems:
+        raise InputErrors(problems)
     if not body:
         raise InputError("the sheet has a header but no data rows", file=name)
     records = []
     for rownum, cells in body:
-        if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
-            raise InputError(f"this row has {len(cells)} cells but the header has {len(header)} "
-                             "columns; check for a stray separator or a decimal comma",
-                             file=name, row=rownum)
-        cells = list(cells) + [""] * (len(header) - len(cells))
-        values: dict[str, Any] = {}
-        extra: dict[str, str] = {}
-        for key, col, cell in zip(keys, header, cells):
-            text = cell.strip()
-            if key in NUMERIC:
-                values[key] = (parse_number(text, file=name, row=rownum, column=col,
-                                            decimal_comma=decimal_comma) if text else None)
-            elif key in TEXT:
-                values[key] = text or None
-            else:
-                extra[col] = cell
-        for key in KNOWN:
-            values.setdefault(key, None)
-        if not values["study"]:
-            raise InputError("the study label is empty; every row needs one",
-                             file=name, row=rownum, column=seen["study"])
-        stat = values["stat"]
-        if not stat:
-            if values["exclude"]:
-                values["stat"] = None
-            else:
-                raise InputError("'stat' is empty; say what was reported: " + ", ".join(STATS),
-                                 file=name, row=rownum, column=seen["stat"])
-        else:
-            canon = _STAT_ALIASES.get(stat.strip().lower())
-            if canon is None and not values["exclude"]:
-                raise InputError(f"unknown statistic '{stat}'; use one of: " + ", ".join(STATS),
-                                 file=name, row=rownum, column=seen["stat"])
-            values["stat"] = canon or stat
-        for key in ("value", "n1", "n2", "n", "df", "df1", "sd1", "sd2", "tails", "within_r",
-                    "events1", "events2", "ci_low", "ci_high", "mean1", "mean2", "year"):
-            v = values[key]
-            if v is not None and not math.isfinite(v):
-                raise InputError(f"'{v}' is not a finite number", file=name, row=rownum,
-                                 column=seen.get(key, key))
-        for key in ("n1", "n2", "n", "df", "df1", "sd1", "sd2", "events1", "events2"):
-            v = values[key]
-            if v is not None and (v < 0 or (v == 0 and key in ("n1", "n2", "n", "df", "df1"))):
-                raise InputError(f"{key} = {v:g} is impossible; it must be "
-                                 f"{'positive' if key in ('n1', 'n2', 'n', 'df', 'df1') else 'zero or more'}",
-                                 file=name, row=rownum, column=seen.get(key, key))
-        records.append(Record(row=rownum, values=values, extra=extra))
+        try:
+            records.append(_record(name, rownum, cells, header, keys, seen, decimal_comma,
+                                   notes))
+        except InputErrors as exc:
+            problems.extend(exc.errors)
+        except InputError as exc:
+            problems.append(exc)
+    if problems:
+        if records:  # the rows that could be read may hold conversion problems too
+            readable = Sheet(path=name, sha256=digest, columns=tuple(header),
+                             records=tuple(records), notes=tuple(notes))
+            problems.extend(_conversion_problems(readable))
+            problems.sort(key=lambda e: e.row or 0)
+        raise InputErrors(problems)
     return Sheet(path=name, sha256=digest, columns=tuple(header), records=tuple(records),
                  notes=tuple(notes))
+
+
+def _conversion_problems(sheet: Sheet) -> list[InputError]:
+    """What converting the readable rows would refuse, so that one run lists every
+    problem of the sheet (conversion uses its default options here)."""
+    from .effects import convert
+    try:
+        convert(sheet)
+    except InputErrors as exc:
+        return list(exc.errors)
+    except InputError as exc:
+        return [exc]
+    return []
+
+
+def _record(name, rownum, cells, header, keys, seen, decimal_comma, notes) -> Record:
+    """One data row checked and parsed; every cell problem of the row is reported.
+
+    A row with a reason in ``exclude`` is only listed, never pooled: cells of it that
+    cannot be read are left empty (and said in ``notes``) instead of stopping the run.
+    """
+    from .reported import parse_reported
+    if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
+        raise InputError(f"this row has {len(cells)} cells but the header has {len(header)} "
+                         "columns; check for a stray separator or a decimal comma",
+                         file=name, row=rownum)
+    cells = list(cells) + [""] * (len(header) - len(cells))
+    values: dict[str, Any] = {}
+    extra: dict[str, str] = {}
+    errs: list[InputError] = []
+    for key, col, cell in zip(keys, header, cells):
+        if isinstance(cell, _SpecialCell) and (key in NUMERIC or (
+                cell.kind == "formula" and key in KNOWN)):
+            errs.append(InputError(cell.message, file=name, row=rownum, column=col))
+            continue
+        text = cell.strip()
+        if key in NUMERIC:
+            try:
+                values[key] = (parse_number(text, file=name, row=rownum, column=col,
+                                            decimal_comma=decimal_comma, whole=key in WHOLE)
+                               if text else None)
+            except InputError as exc:
+                errs.append(exc)
+        elif key in TEXT:
+            values[key] = text or None
+        else:
+            extra[col] = cell
+    if errs and values.get("exclude"):
+        for e in errs:
+            values[next(k for k, c in zip(keys, header) if c == e.column)] = None
+        notes.append(f"row {rownum} is excluded; its unreadable cell(s) "
+                     + ", ".join(f"'{e.column}'" for e in errs) + " left empty")
+        errs = []
+    if errs:
+        raise InputErrors(errs)
+    for key in KNOWN:
+        values.setdefault(key, None)
+
+    def err(key, msg):
+        return InputError(msg, file=name, row=rownum, column=seen.get(key, key))
+
+    if not values["study"]:
+        raise err("study", "the study label is empty; every row needs one")
+    stat = values["stat"]
+    if stat:
+        low = re.sub(r"\s+", " ", stat.strip().lower())
+        canon = _STAT_ALIASES.get(low)
+        if canon is None and low in _WITHIN_ALIASES:
+            canon = _WITHIN_ALIASES[low]
+            design = (values["design"] or "within").strip().lower()
+            if design not in _WITHIN_WORDS:
+                raise err("stat", f"'{stat}' is a within-subject statistic but design is "
+                                  f"'{values['design']}'; use stat '{canon}' with the design "
+                                  "that matches the study")
+            values["design"] = values["design"] or "within"
+        if canon is None and not values["exclude"]:
+            raise err("stat", f"unknown statistic '{stat}'; use one of: " + ", ".join(STATS))
+        values["stat"] = canon or stat
+    parsed = None
+    filled: tuple = ()
+    if values["reported"]:
+        try:
+            parsed = parse_reported(values["reported"], file=name, row=rownum,
+                                    column=seen["reported"])
+        except InputError:
+            if not values["exclude"]:
+                raise
+            notes.append(f"row {rownum} is excluded; its 'reported' string is kept as text "
+                         "but not read")
+        if parsed is not None:
+            filled = _merge(parsed, values, err, seen)
+    if not values["stat"]:
+        if values["exclude"]:
+            values["stat"] = None
+        else:
+            col = "stat" if "stat" in seen else "reported"
+            raise err(col, f"'{col}' is empty; say what was reported: " + ", ".join(STATS)
+                      + (" (or paste the result in 'reported')" if col == "stat" else ""))
+    if values["trust"] is not None:
+        t = values["trust"].strip().lower()
+        from .reported import TRUST_VALUES
+        if t not in TRUST_VALUES:
+            raise err("trust", f"trust '{values['trust']}' is not understood; use 'statistic' "
+                               "(the default) or 'p'")
+        values["trust"] = t
+    for key in ("value", "n1", "n2", "n", "df", "df1", "sd1", "sd2", "tails", "within_r",
+                "events1", "events2", "ci_low", "ci_high", "mean1", "mean2", "year"):
+        v = values[key]
+        if v is not None and not math.isfinite(v):
+            raise err(key, f"'{v}' is not a finite number")
+    for key in ("n1", "n2", "n", "df", "df1", "sd1", "sd2", "events1", "events2"):
+        v = values[key]
+        if v is not None and (v < 0 or (v == 0 and key in ("n1", "n2", "n", "df", "df1"))):
+            raise err(key, f"{key} = {v:g} is impossible; it must be "
+                           f"{'positive' if key in ('n1', 'n2', 'n', 'df', 'df1') else 'zero or more'}")
+    for ev, nk in (("events1", "n1"), ("events2", "n2")):
+        e, n = values[ev], values[nk]
+        if e is not None and 0 < e < 1 and (n is None or n > 1):
+            raise err(ev, f"{ev} = {e:g} looks like a proportion, but this column takes a count "
+                          f"of people" + (f" (with {nk} = {n:g}, {e:g} of the group is "
+                                          f"{e * n:g} people)" if n is not None else "")
+                          + "; type the number of events")
+    for key in WHOLE:
+        v = values[key]
+        if v is not None and not float(v).is_integer():
+            hint = ""
+            if key in ("n1", "n2") and abs(v * 2 - round(v * 2)) < 1e-9:
+                hint = ("; if only the total N was reported, put it in 'n' and leave n1 and n2 "
+                        "empty (it is split equally, halves included)")
+            raise err(key, f"{key} = {v:g} is not a whole number; it counts "
+                           f"{'degrees of freedom' if key == 'df1' else 'people'}" + hint)
+    return Record(row=rownum, values=values, extra=extra, parsed=parsed,
+                  from_reported=filled)
+
+
+_WITHIN_WORDS = ("within", "w", "paired", "repeated", "within-subject", "within-subjects")
+#: Within-subject spellings of a statistic: the statistic, with design 'within'.
+_WITHIN_ALIASES = {"d_z": "d", "dz": "d", "d z": "d", "paired t": "t", "paired-t": "t",
+                   "paired_t": "t", "t paired": "t", "dependent t": "t"}
+
+
+def _merge(parsed, values: dict, err, seen) -> tuple:
+    """Complete the row's columns from a parsed result string; a column the user filled
+    that disagrees with the string is an error (never silently overridden). Returns the
+    columns filled from the string."""
+    col = seen.get("reported", "reported")
+    filled = []
+    for key, v in parsed.values.items():
+        if key.startswith("_"):
+            continue
+        have = values.get(key)
+        if have is None:
+            values[key] = v
+            filled.append(key)
+            continue
+        if key == "stat":
+            if have != v:
+                raise err("stat", f"'stat' says {have} but the '{col}' string is a {v}; "
+                                  "empty one of them or make them agree")
+            continue
+        if abs(have - v) > 1e-9 * max(1.0, abs(v)):
+            raise err(key, f"'{key}' holds {have:g} but the '{col}' string says {key} = {v:g}; "
+                           "fix one of them or leave the column empty")
+    return tuple(filled)
+
+
+class _SpecialCell(str):
+    """A spreadsheet cell that holds no usable value, with the reason why."""
+
+    def __new__(cls, text: str, kind: str, message: str):
+        obj = super().__new__(cls, text)
+        obj.kind = kind
+        obj.message = message
+        return obj
 
 
 def column_label(sheet: Sheet, key: str) -> str:

@@ -8,7 +8,7 @@ from .errors import OptionError
 from .sheet import COLUMN_GUIDE
 
 #: Column order of the template.
-TEMPLATE_COLUMNS = ("study", "sample", "stat", "value", "n1", "n2", "n", "df", "df1",
+TEMPLATE_COLUMNS = ("study", "sample", "stat", "reported", "trust", "value", "n1", "n2", "n", "df", "df1",
                     "mean1", "sd1", "mean2", "sd2", "events1", "events2", "ci_low", "ci_high",
                     "direction", "design", "within_r", "tails", "year", "published",
                     "subgroup", "exclude", "note")
@@ -42,6 +42,9 @@ EXAMPLE_ROWS = (
      "n2": "50", "year": "2021", "note": "invented: first of two outcomes in one sample"},
     {"study": "Example L", "sample": "L-sample", "stat": "d", "value": "0.22", "n1": "50",
      "n2": "50", "year": "2021", "note": "invented: second outcome, same people"},
+    {"study": "Example N", "reported": "t(46) = 2.38, p = .022", "n1": "24", "n2": "24",
+     "year": "2022", "note": "invented: result pasted as printed; stat, value and df are read "
+     "from it and its p is checked against t"},
     {"study": "Example M", "stat": "t", "value": "3.9", "n1": "12", "n2": "12", "year": "2014",
      "exclude": "retracted", "note": "invented: excluded rows stay listed with their reason"},
 )

@@ -13,7 +13,7 @@ CASES = list(csv.DictReader(open(HERE / "expected.csv", encoding="utf-8")))
 
 
 def test_corpus_is_large_enough():
-    assert len(CASES) >= 40
+    assert len(CASES) >= 75
     assert all((HERE / c["file"]).exists() for c in CASES)
 
 
@@ -21,15 +21,27 @@ def test_corpus_is_large_enough():
 def test_bad_sheet(case, run_cli, tmp_path):
     out = tmp_path / "out"
     res = run_cli("run", HERE / case["file"], "--out", out)
-    assert res.exit_code == 2, res.output
-    err = res.stderr.strip()
     assert "Traceback" not in res.output
-    lines = [ln for ln in err.splitlines() if not ln.startswith("pooler: warning:")]
-    assert len(lines) == 1 and lines[0].startswith("pooler: error: ")
-    assert case["fragment"] in lines[0]
-    assert case["file"] in lines[0]
+    err = res.stderr.strip()
+    where = [case["file"]]
     if case["row"]:
-        assert f"row {case['row']}" in lines[0]
+        where.append(f"row {case['row']}")
     if case["column"]:
-        assert f"column '{case['column']}'" in lines[0]
+        where.append(f"column '{case['column']}'")
+    if case["exit"] == "0":
+        # read, with a warning that names the row and column
+        assert res.exit_code == 0, res.output
+        warns = [ln for ln in err.splitlines() if ln.startswith("pooler: warning:")
+                 and case["fragment"] in ln]
+        assert warns and all(w in warns[0] for w in where[1:])
+        return
+    assert res.exit_code == 2, res.output
+    lines = [ln for ln in err.splitlines() if not ln.startswith("pooler: warning:")]
+    n = int(case["problems"])
+    assert lines[0].startswith("pooler: error: ")
+    assert case["fragment"] in lines[0]
+    assert all(w in lines[0] for w in where)
+    # one line per problem: the first, then the others indented, each located
+    assert len(lines) == n
+    assert all(ln.startswith("  - ") and "row " in ln for ln in lines[1:])
     assert not out.exists()

@@ -1,8 +1,9 @@
 """Regenerate the bad-sheet corpus: ``python tests/bad_sheets/make_corpus.py``.
 
 Each file is a sheet a user could plausibly produce by hand; ``expected.csv`` lists, per
-file, a fragment of the message pooler must give, and the row and column it must name
-(empty when the problem is not in one cell). All content is invented.
+file, a fragment of the message pooler must give, the row and column it must name
+(empty when the problem is not in one cell), the exit code (2: refused; 0: read with a
+warning) and how many problems the message lists. All content is invented.
 """
 from __future__ import annotations
 
@@ -96,6 +97,61 @@ TEXT = {
                                     "n"),
 }
 
+# Mistakes that used to pass silently, and result strings that cannot be read.
+TEXT.update({
+    "fractional_n.csv": (H + "Ash 2001,t,2.1,24.5,30,,,,,,,,\n", "n1 = 24.5 is not a whole number",
+                         "2", "n1"),
+    "proportion_as_events.csv": ("study,stat,events1,n1,events2,n2\nAsh 2001,counts,0.45,40,12,40\n",
+                                 "looks like a proportion", "2", "events1"),
+    "misspelt_excluded.csv": ("study,stat,value,n1,n2,excluded\nAsh 2001,t,2.1,20,20,retracted\n",
+                              "did you mean 'exclude'?", "1", "excluded"),
+    "misspelt_within_r.csv": ("study,stat,value,n,design,within r\nAsh 2001,t,2.1,30,within,0.7\n",
+                              "did you mean 'within_r'?", "1", "within r"),
+    "misspelt_samples.csv": ("study,samples,stat,value,n1,n2\nAsh 2001,s1,d,0.3,20,20\n"
+                             "Ash 2001,s1,d,0.2,20,20\n", "did you mean 'sample'?", "1", "samples"),
+    "thousands_comma.csv": ('study,stat,value,n\nAsh 2001,r,0.12,"1,024"\n',
+                            "looks like 1024 written with a thousands separator", "2", "n"),
+    "thousands_dot_semicolon.csv": ("study;stat;value;n\nAsh 2001;r;0,12;1.024\n",
+                                    "thousands separator", "2", "n"),
+    "ns_value.csv": (H + "Ash 2001,t,n.s.,20,20,,,,,,,,\n",
+                     "non-significant result without its statistic cannot be converted", "2",
+                     "value"),
+    "paired_t_between.csv": (H + "Ash 2001,paired t,2.1,,,30,,,,between,,,\n",
+                             "within-subject statistic", "2", "stat"),
+    "reported_inequality.csv": ('study,reported,n1,n2\nAsh 2001,"p < .001",20,20\n',
+                                "is an inequality", "2", "reported"),
+    "reported_p_000.csv": ('study,reported,n1,n2\nAsh 2001,"p = .000",20,20\n',
+                           "p < .0005", "2", "reported"),
+    "reported_omnibus.csv": ('study,reported\nAsh 2001,"F(2, 87) = 3.9, p = .024"\n',
+                             "omnibus", "2", "reported"),
+    "reported_ns.csv": ('study,reported,n\nAsh 2001,n.s.,40\n',
+                        "without a statistic cannot be converted", "2", "reported"),
+    "reported_unreadable.csv": ('study,reported\nAsh 2001,"beta = .31, p = .02"\n',
+                                "cannot be read", "2", "reported"),
+    "reported_conflicts_df.csv": ('study,reported,n1,n2,df\nAsh 2001,"t(58) = 2.41",30,30,56\n',
+                                  "'df' holds 56", "2", "df"),
+    "reported_missing_n.csv": ('study,reported\nAsh 2001,"d = 0.52, 95% CI [0.10, 0.94]"\n',
+                               "group sizes are missing", "2", "n1"),
+    "many_problems.csv": (H + "Ash 2001,t,2.1*,20,20,,,,,,,,\nBay 2002,t,2.0,twenty,20,,,,,,,,\n"
+                          "Cole 2003,t,1.9,20.5,20,,,,,,,,\nDorn 2004,r,0.3,,,n.s.,,,,,,,\n",
+                          "[problem 1 of 4; the others follow]", "2", "value"),
+    "many_conversion_problems.csv": (H + "Ash 2001,F,4.1,20,20,,,1,,,,,\n"
+                                     "Bay 2002,r,1.3,,,80,,,,,,,\nCole 2003,t,2.0,20,20,,,,,,,,\n",
+                                     "[problem 1 of 2; the others follow]", "2", "direction"),
+})
+#: Sheets that are read, with a warning that must name the row and column (exit 0).
+WARN = {
+    "duplicate_row.csv": (H + OK + "Bay 2002,t,1.2,30,30,,,,,,,,\n" + OK,
+                          "repeats row 2 exactly", "4", ""),
+    "reported_inconsistent_p.csv": ('study,reported,n1,n2\nAsh 2001,"t(40) = 1.70, p = .04",21,21\n'
+                                    'Bay 2002,"t(58) = 2.41, p = .019",30,30\n'
+                                    'Cole 2003,"t(38) = 2.10",20,20\n',
+                                    "moves the result across .05", "2", "reported"),
+}
+#: How many problems the message must list (default 1).
+PROBLEMS = {"many_problems.csv": 4, "many_conversion_problems.csv": 2,
+            "formula_without_value.xlsx": 2}
+
 BYTES = {
     "latin1_accents.csv": ("study,stat,value,n1,n2\nMüller 2003,t,2.1,20,20\n".encode("latin-1"),
                            "not UTF-8", "2", ""),
@@ -130,6 +186,17 @@ def xlsx_cases():
     ws.append(["Ash 2001", "t", "2.1*", 20, 20])
     wb.create_sheet("other").append(["ignored"])
     out["several_sheets_bad_value.xlsx"] = (wb, "significance stars", "2", "value")
+    import datetime
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["study", "stat", "value", "n1", "n2"])
+    ws.append(["Ash 2001", "t", datetime.datetime(2024, 3, 2), 20, 20])  # "2.3" became a date
+    out["excel_date.xlsx"] = (wb, "is an Excel date", "2", "value")
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["study", "stat", "value", "n", "n1", "n2"])
+    ws.append(["Ash 2001", "t", 2.1, 40, "=D2/2", "=D2/2"])  # openpyxl saves no result
+    out["formula_without_value.xlsx"] = (wb, "formula (=D2/2) without a saved result", "2", "n1")
     return out
 
 
@@ -137,16 +204,19 @@ def main():
     rows = []
     for name, (text, frag, row, col) in TEXT.items():
         (HERE / name).write_text(text, encoding="utf-8")
-        rows.append((name, frag, row, col))
+        rows.append((name, frag, row, col, 2, PROBLEMS.get(name, 1)))
+    for name, (text, frag, row, col) in WARN.items():
+        (HERE / name).write_text(text, encoding="utf-8")
+        rows.append((name, frag, row, col, 0, 0))
     for name, (data, frag, row, col) in BYTES.items():
         (HERE / name).write_bytes(data)
-        rows.append((name, frag, row, col))
+        rows.append((name, frag, row, col, 2, 1))
     for name, (wb, frag, row, col) in xlsx_cases().items():
         wb.save(HERE / name)
-        rows.append((name, frag, row, col))
+        rows.append((name, frag, row, col, 2, PROBLEMS.get(name, 1)))
     with open(HERE / "expected.csv", "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh)
-        w.writerow(["file", "fragment", "row", "column"])
+        w.writerow(["file", "fragment", "row", "column", "exit", "problems"])
         w.writerows(sorted(rows))
     print(f"{len(rows)} bad sheets written")
 
