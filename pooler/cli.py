@@ -553,5 +553,177 @@ def template(path, force):
         click.echo(f"wrote {p}")
 
 
+# ---- pooler paths: simulated power for mediation and moderation (pooler.simdesign) ----------
+
+@main.command("paths")
+@click.option("--design", "design_name", required=True,
+              type=click.Choice(["simple-mediation", "parallel-mediation", "serial-mediation",
+                                 "moderation"]),
+              help="The path model to plan for.")
+@click.option("--a", "a_paths", type=float, multiple=True,
+              help="Standardized path from X to a mediator; repeat once per mediator "
+                   "(serial: X-M1, then optionally X-M2).")
+@click.option("--b", "b_paths", type=float, multiple=True,
+              help="Standardized path from a mediator to Y; repeat once per mediator "
+                   "(serial: M1-Y, then M2-Y).")
+@click.option("--direct", type=float, default=0.0, show_default=True,
+              help="Direct path X-Y (mediation), controlling for the mediators.")
+@click.option("--m1-m2", type=float, default=None,
+              help="Serial mediation: the path from M1 to M2.")
+@click.option("--mediator-r", type=float, default=0.0, show_default=True,
+              help="Parallel mediation: correlation of the mediators' residuals.")
+@click.option("--x-effect", type=float, default=None,
+              help="Moderation: effect of X on Y at the mean of Z.")
+@click.option("--z-effect", type=float, default=0.0, show_default=True,
+              help="Moderation: effect of the moderator Z on Y.")
+@click.option("--interaction", type=float, default=None,
+              help="Moderation: coefficient of the product of standardized X and Z.")
+@click.option("--slope-high", type=float, default=None,
+              help="Moderation, instead of --x-effect/--interaction: effect of X at +1 SD "
+                   "of Z (binary: in the group coded +1).")
+@click.option("--slope-low", type=float, default=None,
+              help="Moderation: effect of X at -1 SD of Z (with --slope-high).")
+@click.option("--xz-r", type=float, default=0.0, show_default=True,
+              help="Moderation: correlation of X and Z.")
+@click.option("--x-reliability", type=float, default=1.0, show_default=True,
+              help="Moderation: reliability of the measure of X.")
+@click.option("--z-reliability", type=float, default=1.0, show_default=True,
+              help="Moderation: reliability of the measure of Z.")
+@click.option("--binary-moderator", is_flag=True,
+              help="Moderation: Z is two equal groups instead of a continuous score.")
+@click.option("--test", "test_name", default=None,
+              type=click.Choice(["joint", "monte-carlo", "bootstrap", "sobel"]),
+              help="Test of the indirect effects [default: monte-carlo]; sobel only for "
+                   "comparison (low-powered).")
+@click.option("--n", "fixed_n", type=click.IntRange(min=5), default=None,
+              help="Simulate power at this total n instead of searching for n.")
+@click.option("--power", "powers", type=float, multiple=True,
+              help="Target power; repeatable [default: 0.8 0.9 0.95].")
+@click.option("--alpha", type=float, default=0.05, show_default=True,
+              help="Two-sided significance level.")
+@click.option("--reps", type=click.IntRange(min=1), default=None,
+              help="Replications per simulated n [default: 1,000 for the search, 2,000 "
+                   "at --n; a fifth of that for the bootstrap].")
+@click.option("--draws", type=click.IntRange(min=100), default=1000, show_default=True,
+              help="Monte Carlo draws per replication (monte-carlo test).")
+@click.option("--resamples", type=click.IntRange(min=100), default=1000, show_default=True,
+              help="Bootstrap resamples per replication (bootstrap test).")
+@click.option("--seed", type=int, default=2026, show_default=True, help="Random seed.")
+@click.option("--workers", type=click.IntRange(min=1), default=2, show_default=True,
+              help="Local processes (results do not depend on it).")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) "
+                   "instead of local processes; same results. Needs pooler[cluster].")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
+              help="Folder for results.json, report.md and the power-curve figure.")
+@click.option("--format", "fmt", type=click.Choice(["png", "svg", "pdf"]), default="png",
+              show_default=True, help="File format of the figure.")
+@click.option("--force", is_flag=True, help="Write into --out even if it is not empty and "
+              "pooler did not write it (a folder pooler wrote is replaced by a rerun).")
+@_json_option
+def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
+              interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
+              binary_moderator, test_name, fixed_n, powers, alpha, reps, draws, resamples,
+              seed, workers, scheduler, out_dir, fmt, force, as_json):
+    """Sample size (or power) for mediation and moderation, by simulation.
+
+    Give the standardized paths. The table shows, for each indirect effect (and for the
+    total and for "all indirect effects significant" with several mediators), the n that
+    reaches each target power, a 95 % Monte Carlo interval for that n, and the power
+    confirmed at n with its Monte Carlo SE. Moderation plans for the interaction.
+
+    \b
+    Example:
+      pooler paths --design simple-mediation --a 0.3 --b 0.3 --test joint
+      pooler paths --design parallel-mediation --a 0.3 --a 0.25 --b 0.3 --b 0.2 \\
+          --direct 0.1 --out two_mediators
+      pooler paths --design serial-mediation --a 0.4 --m1-m2 0.3 --b 0.1 --b 0.3
+      pooler paths --design moderation --slope-high 0.375 --slope-low 0.225 \\
+          --z-effect 0.3 --x-reliability 0.8 --z-reliability 0.8
+    """
+    from .errors import OptionError
+    from .pathsreport import methods_paragraph, plan_text, power_text, render_files
+    from . import simdesign as sd
+    mediation_opts = {"--a": a_paths, "--b": b_paths, "--m1-m2": m1_m2}
+    moderation_opts = {"--x-effect": x_effect, "--interaction": interaction,
+                       "--slope-high": slope_high, "--slope-low": slope_low}
+    if design_name == "moderation":
+        used = [k for k, v in mediation_opts.items() if v]
+        if used or test_name:
+            raise OptionError(f"{', '.join(used) or '--test'} does not apply to moderation")
+        if (slope_high is None) != (slope_low is None):
+            raise OptionError("give both --slope-high and --slope-low")
+        if slope_high is not None:
+            if x_effect is not None or interaction is not None:
+                raise OptionError("give either --slope-high/--slope-low or "
+                                  "--x-effect/--interaction, not both")
+            design = sd.Moderation.from_slopes(
+                slope_high, slope_low, z_effect, xz_r=xz_r, x_reliability=x_reliability,
+                z_reliability=z_reliability, binary_moderator=binary_moderator)
+        else:
+            if x_effect is None or interaction is None:
+                raise OptionError("moderation needs --x-effect and --interaction "
+                                  "(or --slope-high and --slope-low)")
+            design = sd.Moderation(x_effect, z_effect, interaction, xz_r=xz_r,
+                                   x_reliability=x_reliability, z_reliability=z_reliability,
+                                   binary_moderator=binary_moderator)
+    else:
+        used = [k for k, v in moderation_opts.items() if v is not None]
+        if used:
+            raise OptionError(f"{', '.join(used)} applies to moderation only")
+        if design_name == "simple-mediation":
+            if len(a_paths) != 1 or len(b_paths) != 1:
+                raise OptionError("simple mediation needs one --a and one --b")
+            design = sd.SimpleMediation(a_paths[0], b_paths[0], direct)
+        elif design_name == "parallel-mediation":
+            design = sd.ParallelMediation(a_paths, b_paths, direct, mediator_r=mediator_r)
+        else:
+            if m1_m2 is None or len(a_paths) not in (1, 2) or len(b_paths) != 2:
+                raise OptionError("serial mediation needs --m1-m2, --a once (X-M1) or twice "
+                                  "(X-M1, X-M2), and --b twice (M1-Y, then M2-Y; 0 if absent)")
+            design = sd.SerialMediation(a_paths[0], m1_m2, b_paths[1],
+                                        a2=a_paths[1] if len(a_paths) == 2 else 0.0,
+                                        b1=b_paths[0], direct=direct)
+    if out_dir:
+        from .outputs import check_out
+        check_out(out_dir, force)
+    bar = None
+    if sys.stderr.isatty():
+        def bar(done, total):
+            filled = int(30 * done / total)
+            click.echo(f"\rsimulating [{'#' * filled}{'.' * (30 - filled)}] {done}/{total}",
+                       err=True, nl=done == total)
+    common = dict(test=test_name, alpha=alpha, seed=seed, draws=draws, resamples=resamples,
+                  workers=workers, scheduler=scheduler, progress=bar)
+    note = ""
+    if test_name == "sobel":
+        note = ("Sobel's test is shown for comparison only: it is low-powered "
+                "(MacKinnon et al. 2002); plan with joint, monte-carlo or bootstrap.")
+    if fixed_n is not None:
+        res = sd.simulate_power(design, fixed_n, reps=reps, **common)
+        if as_json:
+            _print_json(res.to_dict())
+        else:
+            click.echo(power_text(res) + (note + "\n" if note else ""), nl=False)
+        return
+    search_reps = reps or (200 if test_name == "bootstrap" else 1000)
+    res = sd.find_n(design, powers=powers or (0.8, 0.9, 0.95), reps=search_reps, **common)
+    test_used = res.test
+    methods = methods_paragraph([res], search_reps, draws, resamples)
+    options = {"design": design_name, "test": test_used, "alpha": alpha, "reps": search_reps,
+               "draws": draws, "resamples": resamples, "seed": seed}
+    if out_dir:
+        from .outputs import write
+        paths = write(render_files([res], options, methods, fmt), out_dir, force=force)
+    if as_json:
+        from .pathsreport import SCHEMA
+        _print_json({"schema": SCHEMA, "scenarios": [res.to_dict()], "options": options,
+                     "methods": methods})
+    else:
+        click.echo(plan_text([res], note))
+        if out_dir:
+            click.echo(f"Written to {out_dir}/: " + ", ".join(p.name for p in paths))
+
+
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())
