@@ -84,10 +84,13 @@ def methods_paragraph(results, reps: int, draws: int, resamples: int) -> str:
                   "simulated from the stated reliabilities)")
     else:
         tested = f"indirect effects were tested with {tests[r.test]}"
+    model = r.design.describe() if len(results) == 1 else (
+        f"{r.design.name}, with the paths of each of the {len(results)} scenarios "
+        f"{', '.join(x.label for x in results)} as listed in the table")
     goals = ", ".join(f"{s.goal:.0%}" for s in r.solutions if s.target == r.solutions[0].target)
     return (
         f"Sample sizes were found by simulation with pooler. Data were generated from the "
-        f"standardized path model ({r.design.describe()}), each variable with variance 1 and "
+        f"standardized path model ({model}), each variable with variance 1 and "
         f"residual variances set accordingly; each simulated sample was analysed by ordinary "
         f"least squares, and {tested} at alpha = "
         f"{r.alpha:g} (two-sided). Power was simulated over a grid of sample sizes "
@@ -157,7 +160,8 @@ def render_files(results, options: dict, methods: str, fmt_: str = "png") -> dic
         fig = curve_figure(r)
         buf = io.BytesIO()
         save(fig, buf, fmt_)
-        stem = "power_curve" if len(results) == 1 else f"power_curve_{i + 1}"
+        slug = "".join(ch if ch.isalnum() else "_" for ch in r.label.lower()).strip("_")
+        stem = "power_curve" if len(results) == 1 else f"power_curve_{slug or i + 1}"
         files[f"{stem}.{fmt_}"] = buf.getvalue()
         names.append(f"{stem}.{fmt_}")
     md = ["# Sample size by simulation", "", "```", plan_text(results).rstrip(), "```", "",

@@ -1174,3 +1174,112 @@ def plan_paths(scenarios: dict, **options) -> tuple:
     with _Runner(workers, scheduler) as runner:
         return tuple(find_n(d, label=lab, stream=i, _runner=runner, **options)
                      for i, (lab, d) in enumerate(scenarios.items()))
+
+
+# --------------------------------------------------------------------------------------------
+# Designs from named paths (a paths file, or pooled literatures of each path)
+# --------------------------------------------------------------------------------------------
+
+#: For each design, the path names it takes and the design field each sets. Path names are
+#: the ones the results use ("X-M1" is the path from X to M1). Parallel mediation takes
+#: X-Mi / Mi-Y for i = 1..4.
+PATH_FIELDS = {
+    "simple-mediation": {"X-M": "a", "M-Y": "b", "X-Y": "direct"},
+    "serial-mediation": {"X-M1": "a1", "M1-M2": "m1_m2", "M2-Y": "b2", "X-M2": "a2",
+                         "M1-Y": "b1", "X-Y": "direct"},
+    "moderation": {"X-Y": "x_effect", "Z-Y": "z_effect", "XZ-Y": "interaction"},
+}
+_OPTIONAL = {"X-Y", "X-M2", "M1-Y", "Z-Y"}  # default 0 when not given
+
+
+def design_from_paths(name: str, paths: dict, *, hints: dict | None = None, **settings):
+    """Build the design ``name`` from path values keyed by path name.
+
+    ``settings`` are the design's other fields (``mediator_r``, ``xz_r``, reliabilities,
+    ``binary_moderator``). The direct path and the secondary paths of a serial model default
+    to 0; any other missing path is an error that names it (and, from ``hints``, how to give
+    it).
+
+    Examples
+    --------
+    >>> design_from_paths("parallel-mediation",
+    ...                   {"X-M1": 0.3, "X-M2": 0.2, "M1-Y": 0.3, "M2-Y": 0.2}).describe()
+    'parallel mediation: a = (0.3, 0.2), b = (0.3, 0.2), direct = 0, mediator residual r = 0'
+    >>> design_from_paths("simple-mediation", {"X-M": 0.3})
+    Traceback (most recent call last):
+    ...
+    pooler.errors.OptionError: simple-mediation needs the path M-Y; give it
+    """
+    # validation
+    if name not in DESIGNS:
+        raise OptionError(f"unknown design {name!r}; choose from {', '.join(DESIGNS)}")
+    if name == "parallel-mediation":
+        k = sum(1 for p in paths if p.startswith("X-M"))
+        fields = {f"X-M{i}": None for i in range(1, k + 1)}
+        fields.update({f"M{i}-Y": None for i in range(1, k + 1)})
+        fields["X-Y"] = "direct"
+    else:
+        fields = PATH_FIELDS[name]
+    unknown = sorted(set(paths) - set(fields))
+    if unknown:
+        raise OptionError(f"{name} has no path {', '.join(unknown)}; its paths are "
+                          f"{', '.join(fields)}")
+    missing = [p for p in fields if p not in paths and p not in _OPTIONAL]
+    if missing:
+        how = [hints[p] for p in missing if hints and p in hints]
+        raise OptionError(f"{name} needs the path {', '.join(missing)}; give it"
+                          + (f" ({', '.join(how)})" if how else ""))
+    if name == "parallel-mediation":
+        k = sum(1 for p in fields if p.startswith("X-M"))
+        return ParallelMediation(tuple(paths[f"X-M{i}"] for i in range(1, k + 1)),
+                                 tuple(paths[f"M{i}-Y"] for i in range(1, k + 1)),
+                                 paths.get("X-Y", 0.0), **settings)
+    kw = {f: float(paths.get(p, 0.0)) for p, f in fields.items()}
+    return DESIGNS[name](**kw, **settings)
+
+
+def read_paths_file(path) -> dict:
+    """Scenarios of path values from a CSV file with the columns ``scenario``, ``path`` and
+    ``value`` (one row per path and scenario; header names case-insensitive).
+
+    Returns ``{scenario: {path: value}}`` in the file's order. Mistakes raise
+    :class:`~pooler.errors.InputError` with the file, row (header = 1) and column.
+    """
+    import csv
+    from .errors import InputError
+    try:
+        with open(path, newline="", encoding="utf-8-sig") as fh:
+            rows = list(csv.reader(fh))
+    except OSError as exc:
+        raise InputError(f"cannot read the paths file: {exc.strerror}", file=str(path))
+    if not rows:
+        raise InputError("the paths file is empty", file=str(path))
+    head = [h.strip().lower() for h in rows[0]]
+    need = ("scenario", "path", "value")
+    for col in need:
+        if col not in head:
+            raise InputError(f"the paths file needs the columns scenario, path and value; "
+                             f"'{col}' is missing", file=str(path), row=1)
+    at = {c: head.index(c) for c in need}
+    out: dict = {}
+    for i, row in enumerate(rows[1:], start=2):
+        if not any(c.strip() for c in row):
+            continue
+        cells = {c: (row[j].strip() if j < len(row) else "") for c, j in at.items()}
+        for c in need:
+            if not cells[c]:
+                raise InputError(f"'{c}' is empty", file=str(path), row=i, column=rows[0][at[c]])
+        try:
+            value = float(cells["value"])
+        except ValueError:
+            raise InputError(f"'{cells['value']}' is not a number", file=str(path), row=i,
+                             column=rows[0][at["value"]]) from None
+        scen = out.setdefault(cells["scenario"], {})
+        if cells["path"] in scen:
+            raise InputError(f"path {cells['path']} is given twice for scenario "
+                             f"{cells['scenario']}", file=str(path), row=i,
+                             column=rows[0][at["path"]])
+        scen[cells["path"]] = value
+    if not out:
+        raise InputError("the paths file has no rows", file=str(path))
+    return out

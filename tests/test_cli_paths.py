@@ -57,7 +57,11 @@ def test_moderation_table(run_cli):
      "--a does not apply to moderation"),
     (["--design", "moderation", "--slope-high", "0.3"], "both --slope-high and --slope-low"),
     (["--design", "serial-mediation", "--a", "0.3", "--b", "0.3", "--b", "0.3"], "--m1-m2"),
-    (["--design", "simple-mediation", "--a", "0.3"], "one --a and one --b"),
+    (["--design", "simple-mediation", "--a", "0.3"], "needs the path M-Y"),
+    (["--design", "simple-mediation", "--a", "0.3", "--a", "0.2", "--b", "0.3"],
+     "one --a and one --b"),
+    (["--design", "parallel-mediation", "--a", "0.3", "--a", "0.2", "--b", "0.3"],
+     "as many --a as --b"),
     (["--design", "simple-mediation", "--a", "0.3", "--b", "0.3", "--interaction", "0.1"],
      "moderation only"),
     (["--design", "simple-mediation", "--a", "0.9", "--b", "0.9", "--direct", "0.5"],
@@ -65,5 +69,38 @@ def test_moderation_table(run_cli):
 ])
 def test_mistakes_are_one_line_errors(run_cli, args, fragment):
     res = run_cli("paths", *args)
+    assert res.exit_code == 2
+    assert fragment in res.stderr
+
+
+def test_paths_file_gives_one_plan_per_scenario(run_cli, tmp_path):
+    # invented scenario values for a simple mediation; the direct path comes from the option
+    f = tmp_path / "paths.csv"
+    f.write_text("Scenario,Path,Value\nhigh,X-M,0.5\nhigh,M-Y,0.5\n"
+                 "low,X-M,0.4\nlow,M-Y,0.4\n", encoding="utf-8")
+    res = run_cli("paths", "--design", "simple-mediation", "--paths-file", f, "--direct", 0.1,
+                  "--test", "joint", "--power", 0.8, "--reps", 200, "--workers", 1, "--json")
+    assert res.exit_code == 0, res.output
+    doc = json.loads(res.output)
+    labels = [s["scenario"] for s in doc["scenarios"]]
+    assert labels == ["high", "low"]
+    n_high, n_low = (s["solutions"][0]["n"] for s in doc["scenarios"])
+    assert n_high < n_low
+    assert "direct = 0.1" in doc["scenarios"][0]["description"]
+
+
+@pytest.mark.parametrize("text, fragment", [
+    ("scenario,path\nhigh,X-M\n", "'value' is missing"),
+    ("scenario,path,value\nhigh,X-M,abc\n", "row 2, column 'value': 'abc' is not a number"),
+    ("scenario,path,value\nhigh,X-M,0.3\nhigh,X-M,0.2\n", "row 3, column 'path'"),
+    ("scenario,path,value\nhigh,X-M,0.3\nhigh,M-Y,0.3\nhigh,X-Q,0.1\n", "has no path X-Q"),
+    ("scenario,path,value\nhigh,X-M,0.3\nhigh,M-Y,0.3\nhigh,X-Y,0.1\n",
+     "X-Y is given both"),
+])
+def test_bad_paths_files(run_cli, tmp_path, text, fragment):
+    f = tmp_path / "paths.csv"
+    f.write_text(text, encoding="utf-8")
+    res = run_cli("paths", "--design", "simple-mediation", "--paths-file", f, "--direct", 0.1,
+                  "--n", 50)
     assert res.exit_code == 2
     assert fragment in res.stderr
