@@ -1004,13 +1004,21 @@ class SampleSizeResult:
 
 
 def _default_targets(design, test):
+    """What the search plans for: the interaction (moderation); otherwise every indirect
+    effect whose true value is not 0, with two or more of them their total (interval tests),
+    and "all indirect" when every specific indirect effect is nonzero."""
     if not design.has_indirect:
         return ["XZ-Y"]
-    out = list(design.indirect)
-    if len(design.indirect) > 1:
-        if test != "joint":
-            out.append("total indirect")
+    truth = design.true_values()
+    out = [name for name in design.indirect if truth[name] != 0]
+    every = len(out) == len(design.indirect)
+    if len(out) > 1 and test != "joint":
+        out.append("total indirect")
+    if len(design.indirect) > 1 and every:
         out.append("all indirect")
+    if not out:
+        raise OptionError("every indirect effect of these paths is 0: there is no indirect "
+                          "effect to plan for")
     return out
 
 
@@ -1084,7 +1092,7 @@ def find_n(design, *, test: str | None = None, powers=(0.8, 0.9, 0.95), targets=
 
     def body(runner):
         top = max(powers)
-        n, pilot = max(nmin, 16), max(100, reps // 4)
+        n, pilot = nmin, max(100, reps // 4)
         ns = []
         while True:
             run(runner, [n], pilot, 0)

@@ -296,3 +296,13 @@ def test_progress_is_reported():
     simulate_power(SimpleMediation(0.3, 0.3), 60, test="joint", reps=600, seed=26,
                    progress=lambda done, total: seen.append((done, total)))
     assert seen[-1] == (3, 3) and len(seen) == 3
+
+
+def test_search_skips_indirect_effects_that_are_zero():
+    # X-M1-Y and X-M2-Y are 0 here (b1 = a2 = 0): only the serial effect is planned for
+    res = find_n(SerialMediation(0.4, 0.4, 0.4), test="joint", powers=(0.8,), reps=300,
+                 seed=27)
+    assert [s.target for s in res.solutions] == ["X-M1-M2-Y"]
+    assert 40 < res.solutions[0].n < 120
+    with pytest.raises(OptionError, match="every indirect effect"):
+        find_n(SimpleMediation(0.0, 0.3), test="joint")
