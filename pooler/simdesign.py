@@ -865,13 +865,13 @@ def simulate_power(design, n: int, *, test: str | None = None, reps: int | None 
     (True, True)
     """
     # validation
-    if not isinstance(n, (int, np.integer)):
-        raise OptionError(f"`n` must be an integer, not {n!r}")
-    nmin = max(len(p) for _, p in getattr(design, "regressions", ((), ((),),))) + 3
-    if n < nmin:
-        raise OptionError(f"`n` must be at least {nmin} for this design, not {n}")
     test = _validate(design, test, alpha, reps if reps is not None else 1, draws, resamples,
                      workers)
+    if not isinstance(n, (int, np.integer)):
+        raise OptionError(f"`n` must be an integer, not {n!r}")
+    nmin = max(len(p) for _, p in design.regressions) + 3
+    if n < nmin:
+        raise OptionError(f"`n` must be at least {nmin} for this design, not {n}")
     if reps is None:
         reps = TESTS[test].default_reps if test else 2000
     plan = _Plan(design, test, float(alpha), int(draws), int(resamples))
