@@ -627,8 +627,8 @@ def template(path, force):
 @_json_option
 def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
               interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
-              binary_moderator, paths_file, test_name, fixed_n, powers, alpha, reps, draws, resamples,
-              seed, workers, scheduler, out_dir, fmt, force, as_json):
+              binary_moderator, paths_file, test_name, fixed_n, powers, alpha, reps, draws,
+              resamples, seed, workers, scheduler, out_dir, fmt, force, as_json):
     """Sample size (or power) for mediation and moderation, by simulation.
 
     Give the standardized paths as options, or several scenarios of them in

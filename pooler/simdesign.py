@@ -167,10 +167,10 @@ class SimpleMediation(_Linear):
     >>> d = SimpleMediation(a=0.39, b=0.39)
     >>> d.true_values()["X-M-Y"]
     0.1521
-    >>> SimpleMediation(a=0.8, b=0.7, direct=0.5)
+    >>> SimpleMediation(a=0.8, b=0.7, direct=0.5)  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    pooler.errors.OptionError: impossible paths: the paths into Y explain 1.300 of its variance (standardized paths must leave a positive residual variance); make the paths into Y smaller
+    pooler.errors.OptionError: impossible paths: the paths into Y explain 1.300 of its variance...
     """
 
     a: float
@@ -207,10 +207,10 @@ class ParallelMediation(_Linear):
     >>> d = ParallelMediation(a=(0.3, 0.25), b=(0.3, 0.2), direct=0.1)
     >>> sorted(d.indirect)
     ['X-M1-Y', 'X-M2-Y']
-    >>> ParallelMediation(a=(0.3, 0.3, 0.3), b=(0.2, 0.2, 0.2), mediator_r=-0.6)
+    >>> ParallelMediation((0.3, 0.3, 0.3), (0.2, 0.2, 0.2), mediator_r=-0.6)  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    pooler.errors.OptionError: `mediator_r` = -0.6 with 3 mediators is not a valid correlation matrix: it must lie above -1/(k-1) = -0.5 and below 1
+    pooler.errors.OptionError: `mediator_r` = -0.6 with 3 mediators is not a valid correlation...
     """
 
     a: tuple
@@ -336,10 +336,10 @@ class Moderation:
     >>> m = Moderation.from_slopes(0.3, 0.15)
     >>> round(m.x_effect, 6), round(m.interaction, 6)
     (0.225, 0.075)
-    >>> Moderation(0.6, 0.5, 0.4, xz_r=0.5)
+    >>> Moderation(0.6, 0.5, 0.4, xz_r=0.5)  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    pooler.errors.OptionError: impossible paths: X, Z and their product explain 1.110 of the variance of Y (standardized paths must leave a positive residual variance); make the effects smaller
+    pooler.errors.OptionError: impossible paths: X, Z and their product explain 1.110 of...
     """
 
     x_effect: float
@@ -1291,3 +1291,74 @@ def read_paths_file(path) -> dict:
     if not out:
         raise InputError("the paths file has no rows", file=str(path))
     return out
+
+
+def design_from_correlations(name: str, r: dict):
+    """A mediation design from the correlations among its variables.
+
+    Literatures usually report correlations, not the standardized paths of one model; as in
+    meta-analytic path analysis (Viswesvaran & Ones 1995), the paths are the standardized
+    regression coefficients implied by the (pooled) correlation matrix: a_i = r(X, Mi) for
+    parallel mediators, and each later equation's coefficients are R_PP^-1 r_PY over its
+    predictors P. The residual correlation of parallel mediators is their partial correlation
+    given X. ``r`` maps variable pairs written ``"X-M1"`` (either order) to correlations; all
+    pairs are needed.
+
+    Examples
+    --------
+    >>> d = design_from_correlations("simple-mediation", {"X-M": 0.4, "M-Y": 0.3, "X-Y": 0.2})
+    >>> round(d.a, 4), round(d.b, 4), round(d.direct, 4)
+    (0.4, 0.2619, 0.0952)
+    """
+    # validation
+    if name not in ("simple-mediation", "parallel-mediation", "serial-mediation"):
+        raise OptionError(f"paths from correlations are defined for the mediation designs, "
+                          f"not {name!r}")
+    names = sorted({v for key in r for v in key.split("-")},
+                   key=lambda v: (v != "X", v == "Y", v))
+    if name == "simple-mediation":
+        names = ["X", "M", "Y"]
+    elif name == "serial-mediation":
+        names = ["X", "M1", "M2", "Y"]
+    k = len(names)
+    idx = {v: i for i, v in enumerate(names)}
+    mat = np.eye(k)
+    for key, val in r.items():
+        parts = key.split("-")
+        if len(parts) != 2 or any(p not in idx for p in parts) or parts[0] == parts[1]:
+            raise OptionError(f"{key!r} is not a pair of this design's variables "
+                              f"({', '.join(names)})")
+        if not -1 < val < 1:
+            raise OptionError(f"the correlation {key} = {val!r} must lie between -1 and 1")
+        i, j = idx[parts[0]], idx[parts[1]]
+        mat[i, j] = mat[j, i] = val
+    missing = [f"{names[i]}-{names[j]}" for i in range(k) for j in range(i + 1, k)
+               if not any(set(key.split("-")) == {names[i], names[j]} for key in r)]
+    if missing:
+        raise OptionError(f"the correlation of {', '.join(missing)} is needed")
+    if np.linalg.eigvalsh(mat).min() <= 0:
+        raise OptionError("these correlations cannot occur together (the matrix is not "
+                          "positive definite)")
+
+    def reg(outcome, preds):
+        p = [idx[v] for v in preds]
+        return np.linalg.solve(mat[np.ix_(p, p)], mat[p, idx[outcome]])
+    if name == "simple-mediation":
+        c, b = reg("Y", ["X", "M"])
+        return SimpleMediation(float(mat[0, 1]), float(b), float(c))
+    if name == "serial-mediation":
+        a2, d21 = reg("M2", ["X", "M1"])
+        c, b1, b2 = reg("Y", ["X", "M1", "M2"])
+        return SerialMediation(float(mat[0, 1]), float(d21), float(b2), a2=float(a2),
+                               b1=float(b1), direct=float(c))
+    ms = names[1:-1]
+    a = [float(mat[0, idx[m]]) for m in ms]
+    coef = reg("Y", ["X"] + ms)
+    partial = [(mat[idx[m1], idx[m2]] - a[i] * a[j]) / math.sqrt((1 - a[i] ** 2) * (1 - a[j] ** 2))
+               for i, m1 in enumerate(ms) for j, m2 in enumerate(ms) if i < j]
+    if max(partial) - min(partial) > 1e-9:
+        raise OptionError("the mediators' partial correlations given X differ "
+                          f"({', '.join(f'{p:.3f}' for p in partial)}); pooler simulates one "
+                          "common residual correlation: make them equal")
+    return ParallelMediation(tuple(a), tuple(float(x) for x in coef[1:]), float(coef[0]),
+                             mediator_r=float(partial[0]))

@@ -306,3 +306,29 @@ def test_search_skips_indirect_effects_that_are_zero():
     assert 40 < res.solutions[0].n < 120
     with pytest.raises(OptionError, match="every indirect effect"):
         find_n(SimpleMediation(0.0, 0.3), test="joint")
+
+
+@pytest.mark.parametrize("name, design", [
+    ("simple-mediation", SimpleMediation(0.4, 0.3, 0.15)),
+    ("serial-mediation", SerialMediation(0.4, 0.35, 0.3, a2=0.1, b1=0.2, direct=-0.1)),
+    ("parallel-mediation", ParallelMediation((0.4, 0.3, 0.2), (0.3, 0.2, 0.1), 0.1,
+                                             mediator_r=0.25)),
+])
+def test_paths_from_correlations_round_trip(name, design):
+    # The correlations the model implies, read back as standardized regression coefficients
+    # (the path-analysis identities, e.g. Viswesvaran & Ones 1995), give the same paths.
+    sigma = design._chol @ design._chol.T
+    v = design.variables
+    r = {f"{v[i]}-{v[j]}": float(sigma[i, j]) for i in range(len(v))
+         for j in range(i + 1, len(v))}
+    back = sd.design_from_correlations(name, r)
+    for f in dataclasses.fields(design):
+        if f.init:
+            assert np.allclose(getattr(back, f.name), getattr(design, f.name), atol=1e-10)
+
+
+def test_paths_from_correlations_refuses_impossible_matrices():
+    with pytest.raises(OptionError, match="not positive definite"):
+        sd.design_from_correlations("simple-mediation", {"X-M": 0.9, "M-Y": 0.9, "X-Y": -0.5})
+    with pytest.raises(OptionError, match="X-Y is needed"):
+        sd.design_from_correlations("simple-mediation", {"X-M": 0.3, "M-Y": 0.3})
