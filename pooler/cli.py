@@ -595,6 +595,10 @@ def template(path, force):
               help="CSV with columns scenario, path, value (paths named like X-M1, M1-Y, "
                    "X-Y, M1-M2, XZ-Y): one plan per scenario; paths the file lacks are "
                    "taken from the options.")
+@click.option("--correlations", "as_correlations", is_flag=True,
+              help="The values in --paths-file are correlations between the named variables "
+                   "(X-M1, M1-Y, X-Y, M1-M2, ...; every pair), e.g. pooled from literatures; "
+                   "the paths are the standardized coefficients they imply. Mediation only.")
 @click.option("--test", "test_name", default=None,
               type=click.Choice(["joint", "monte-carlo", "bootstrap", "sobel"]),
               help="Test of the indirect effects [default: monte-carlo]; sobel only for "
@@ -627,7 +631,7 @@ def template(path, force):
 @_json_option
 def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
               interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
-              binary_moderator, paths_file, test_name, fixed_n, powers, alpha, reps, draws,
+              binary_moderator, paths_file, as_correlations, test_name, fixed_n, powers, alpha, reps, draws,
               resamples, seed, workers, scheduler, out_dir, fmt, force, as_json):
     """Sample size (or power) for mediation and moderation, by simulation.
 
@@ -696,7 +700,19 @@ def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect
              "M2-Y": "--b twice: M1-Y, then M2-Y",
              "X-Y": "--x-effect, or --slope-high and --slope-low",
              "XZ-Y": "--interaction, or --slope-high and --slope-low"}
-    if paths_file:
+    if as_correlations:
+        if not paths_file:
+            raise OptionError("--correlations reads the correlations from --paths-file")
+        if design_name == "moderation":
+            raise OptionError("--correlations applies to the mediation designs only")
+        extra = [k for k, v in {**mediation_opts, "--direct": direct,
+                                "--mediator-r": mediator_r or None}.items() if v]
+        if extra:
+            raise OptionError(f"with --correlations every path comes from the correlations; "
+                              f"drop {', '.join(extra)}")
+        scenarios = {label: sd.design_from_correlations(design_name, values)
+                     for label, values in sd.read_paths_file(paths_file).items()}
+    elif paths_file:
         scenarios = {}
         for label, values in sd.read_paths_file(paths_file).items():
             both = sorted(set(values) & set(given))

@@ -194,7 +194,7 @@ class SimpleMediation(_Linear):
                 "X-M-Y": round(self.a * self.b, 12)}
 
     def describe(self) -> str:
-        return f"simple mediation: a = {self.a:g}, b = {self.b:g}, direct = {self.direct:g}"
+        return f"simple mediation: a = {self.a:.3g}, b = {self.b:.3g}, direct = {self.direct:.3g}"
 
 
 @dataclass(frozen=True)
@@ -233,9 +233,9 @@ class ParallelMediation(_Linear):
         _check_path("direct", self.direct)
         r = self.mediator_r
         if not (-1 / (k - 1) < r < 1):
-            raise OptionError(f"`mediator_r` = {r:g} with {k} mediators is not a valid "
+            raise OptionError(f"`mediator_r` = {r:.3g} with {k} mediators is not a valid "
                               f"correlation matrix: it must lie above -1/(k-1) = "
-                              f"{-1 / (k - 1):g} and below 1")
+                              f"{-1 / (k - 1):.3g} and below 1")
         names = ("X",) + tuple(f"M{i + 1}" for i in range(k)) + ("Y",)
         coef = np.zeros((k + 2, k + 2))
         coef[1:k + 1, 0] = a
@@ -267,9 +267,9 @@ class ParallelMediation(_Linear):
 
     def describe(self) -> str:
         f = ", ".join
-        return (f"parallel mediation: a = ({f(f'{x:g}' for x in self.a)}), "
-                f"b = ({f(f'{x:g}' for x in self.b)}), direct = {self.direct:g}, "
-                f"mediator residual r = {self.mediator_r:g}")
+        return (f"parallel mediation: a = ({f(f'{x:.3g}' for x in self.a)}), "
+                f"b = ({f(f'{x:.3g}' for x in self.b)}), direct = {self.direct:.3g}, "
+                f"mediator residual r = {self.mediator_r:.3g}")
 
 
 @dataclass(frozen=True)
@@ -315,9 +315,9 @@ class SerialMediation(_Linear):
                 "X-M1-M2-Y": round(self.a1 * self.m1_m2 * self.b2, 12)}
 
     def describe(self) -> str:
-        return (f"serial mediation: a1 = {self.a1:g}, M1-M2 = {self.m1_m2:g}, "
-                f"b2 = {self.b2:g}, a2 = {self.a2:g}, b1 = {self.b1:g}, "
-                f"direct = {self.direct:g}")
+        return (f"serial mediation: a1 = {self.a1:.3g}, M1-M2 = {self.m1_m2:.3g}, "
+                f"b2 = {self.b2:.3g}, a2 = {self.a2:.3g}, b1 = {self.b1:.3g}, "
+                f"direct = {self.direct:.3g}")
 
 
 @dataclass(frozen=True)
@@ -424,11 +424,11 @@ class Moderation:
 
     def describe(self) -> str:
         kind = "binary" if self.binary_moderator else "continuous"
-        return (f"moderation ({kind} moderator): X = {self.x_effect:g}, Z = {self.z_effect:g}, "
-                f"XZ = {self.interaction:g} (slope of X {self.x_effect + self.interaction:g} "
-                f"at +1 SD of Z, {self.x_effect - self.interaction:g} at -1 SD), "
-                f"corr(X, Z) = {self.xz_r:g}, reliabilities {self.x_reliability:g} and "
-                f"{self.z_reliability:g}")
+        return (f"moderation ({kind} moderator): X = {self.x_effect:.3g}, Z = {self.z_effect:.3g}, "
+                f"XZ = {self.interaction:.3g} (slope of X {self.x_effect + self.interaction:.3g} "
+                f"at +1 SD of Z, {self.x_effect - self.interaction:.3g} at -1 SD), "
+                f"corr(X, Z) = {self.xz_r:.3g}, reliabilities {self.x_reliability:.3g} and "
+                f"{self.z_reliability:.3g}")
 
 
 #: The simulated designs, by the name the command line uses.

@@ -104,3 +104,18 @@ def test_bad_paths_files(run_cli, tmp_path, text, fragment):
                   "--n", 50)
     assert res.exit_code == 2
     assert fragment in res.stderr
+
+
+def test_paths_from_correlations_file(run_cli, tmp_path):
+    # invented pooled correlations; b = (r_MY - r_XM r_XY) / (1 - r_XM^2) (path analysis)
+    f = tmp_path / "r.csv"
+    f.write_text("scenario,path,value\nonly,X-M,0.3\nonly,M-Y,0.3\nonly,X-Y,0.15\n",
+                 encoding="utf-8")
+    res = run_cli("paths", "--design", "simple-mediation", "--paths-file", f,
+                  "--correlations", "--test", "joint", "--n", 100, "--reps", 250,
+                  "--workers", 1)
+    assert res.exit_code == 0, res.output
+    assert f"b = {(0.3 - 0.3 * 0.15) / (1 - 0.09):.3g}" in res.output
+    bad = run_cli("paths", "--design", "simple-mediation", "--paths-file", f,
+                  "--correlations", "--a", 0.3, "--n", 100)
+    assert bad.exit_code == 2 and "drop --a" in bad.stderr
