@@ -576,6 +576,105 @@ def _run_chunk(args):
         return _chunk(plan, n, reps, key)
 
 
+@dataclass
+class _Batch:
+    """One batch of fitted replications, as the tests of an indirect effect see it."""
+
+    design: object
+    plan: _Plan
+    rng: object
+    data: np.ndarray   # (b, n, variables), centred
+    theta: np.ndarray  # (b, q) path estimates
+    cov: np.ndarray    # (b, q, q) their covariance
+    sig: np.ndarray    # (b, q) path t test significant
+    truth: dict
+
+    @property
+    def col(self):
+        return {name: i for i, name in enumerate(self.design.paths)}
+
+    def true(self, name):
+        return self.truth.get(name, _total(self.truth, self.design))
+
+
+def _test_joint(bt):
+    """Every component path significant (the joint significance test)."""
+    col = bt.col
+    return {name: np.all(bt.sig[:, [col[c] for c in comp]], axis=1)
+            for name, comp in bt.design.indirect.items()}, {}
+
+
+def _test_sobel(bt):
+    """First-order delta-method z test (Sobel 1982): Var(effect) = g' V g, g the gradient of
+    the product (or of the sum of products, for the total) with respect to the paths."""
+    col, theta = bt.col, bt.theta
+    grads = {}
+    for name, comp in bt.design.indirect.items():
+        g = np.zeros_like(theta)
+        for c in comp:
+            part = np.ones(theta.shape[0])
+            for o in comp:
+                if o != c:
+                    part = part * theta[:, col[o]]
+            g[:, col[c]] += part
+        grads[name] = g
+    if len(grads) > 1:
+        grads["total indirect"] = sum(grads.values())
+    z = sp.ndtri(1 - bt.plan.alpha / 2)
+    est = _effects(theta, bt.design)
+    rej = {}
+    for name, g in grads.items():
+        var = np.einsum("bi,bij,bj->b", g, bt.cov, g)
+        rej[name] = np.abs(est[name]) > z * np.sqrt(var)
+    return rej, {}
+
+
+def _test_monte_carlo(bt):
+    """Monte Carlo confidence interval (Preacher & Selig 2012): per replication, ``draws``
+    path vectors from Normal(estimates, their covariance), percentile interval of the
+    effect."""
+    col, design = bt.col, bt.design
+    # draw only the paths that enter an indirect effect
+    used = sorted({col[c] for comp in design.indirect.values() for c in comp})
+    chol = np.linalg.cholesky(bt.cov[:, used][:, :, used]).astype(np.float32)
+    # theta + L z in single precision, one contiguous array per path (the draws only place
+    # percentiles; float32 halves the memory traffic that dominates here)
+    zdraw = bt.rng.standard_normal((len(used), bt.theta.shape[0], bt.plan.draws),
+                                   dtype=np.float32)
+    sims = []
+    for r in range(len(used)):
+        acc = bt.theta[:, used[r], None].astype(np.float32) + chol[:, r, 0, None] * zdraw[0]
+        for j in range(1, r + 1):
+            acc += chol[:, r, j, None] * zdraw[j]
+        sims.append(acc)
+    rej, cover = {}, {}
+    for name, eff in _effects(sims, _SubDesign(design, used)).items():
+        rej[name], cover[name] = _percentile_rejects(eff, bt.plan.alpha, bt.true(name))
+    return rej, cover
+
+
+def _test_bootstrap(bt):
+    """Percentile bootstrap: ``resamples`` resamples of each replication's rows, the
+    regressions refitted on each."""
+    b, n = bt.data.shape[:2]
+    names = list(_effects(bt.theta, bt.design))
+    rej = {name: np.zeros(b, bool) for name in names}
+    cover = {name: np.zeros(b, bool) for name in names}
+    for i in range(b):
+        rows = bt.rng.integers(0, n, (bt.plan.resamples, n))
+        boot = bt.data[i][rows]
+        boot = boot - boot.mean(axis=1, keepdims=True)
+        for name, eff in _effects(_fit(boot, bt.design, with_cov=False), bt.design).items():
+            rej[name][i], cover[name][i] = _percentile_rejects(eff, bt.plan.alpha,
+                                                               bt.true(name))
+    return rej, cover
+
+
+#: The computation behind each test of :data:`TESTS`.
+_TEST_RUNS = {"joint": _test_joint, "sobel": _test_sobel, "monte-carlo": _test_monte_carlo,
+              "bootstrap": _test_bootstrap}
+
+
 def _chunk(plan, n, reps, key):
     design, test, alpha = plan.design, plan.test, plan.alpha
     rng = np.random.default_rng(np.random.SeedSequence(key[0], spawn_key=key[1:]))
@@ -604,58 +703,11 @@ def _chunk(plan, n, reps, key):
             add(name, "reject", sig[:, i])
         if not design.has_indirect or test is None:
             continue
-        col = {name: i for i, name in enumerate(design.paths)}
-        rej = {}
-        if test == "joint":
-            for name, comp in design.indirect.items():
-                rej[name] = np.all(sig[:, [col[c] for c in comp]], axis=1)
-        elif test == "sobel":
-            z = sp.ndtri(1 - alpha / 2)
-            for name, comp in design.indirect.items():
-                grad = np.zeros_like(theta)
-                for c in comp:
-                    g = np.ones(b)
-                    for o in comp:
-                        if o != c:
-                            g = g * theta[:, col[o]]
-                    grad[:, col[c]] = g
-                est = _effects(theta, design)[name]
-                var = np.einsum("bi,bij,bj->b", grad, cov, grad)
-                rej[name] = np.abs(est) > z * np.sqrt(var)
-        elif test == "monte-carlo":
-            # draw only the paths that enter an indirect effect
-            used = sorted({col[c] for comp in design.indirect.values() for c in comp})
-            sub = _SubDesign(design, used)
-            chol = np.linalg.cholesky(cov[:, used][:, :, used])
-            # theta + L z in single precision, one contiguous array per path (the draws only
-            # place percentiles; float32 halves the memory traffic that dominates here)
-            zdraw = rng.standard_normal((len(used), b, plan.draws), dtype=np.float32)
-            chol = chol.astype(np.float32)
-            sims = []
-            for r in range(len(used)):
-                acc = theta[:, used[r], None].astype(np.float32) + chol[:, r, 0, None] * zdraw[0]
-                for j in range(1, r + 1):
-                    acc += chol[:, r, j, None] * zdraw[j]
-                sims.append(acc)
-            for name, eff in _effects(sims, sub).items():
-                r, c = _percentile_rejects(eff, alpha, truth.get(name, _total(truth, design)))
-                rej[name] = r
-                add(name, "cover", c)
-        elif test == "bootstrap":
-            eff_rej = {name: np.zeros(b, bool) for name in _effects(theta, design)}
-            for i in range(b):
-                rows = rng.integers(0, n, (plan.resamples, n))
-                boot = data[i][rows]
-                boot = boot - boot.mean(axis=1, keepdims=True)
-                bt = _fit(boot, design, with_cov=False)
-                for name, eff in _effects(bt, design).items():
-                    r, c = _percentile_rejects(eff, alpha,
-                                               truth.get(name, _total(truth, design)))
-                    eff_rej[name][i] = r
-                    add(name, "cover", c)
-            rej = eff_rej
+        rej, cover = _TEST_RUNS[test](_Batch(design, plan, rng, data, theta, cov, sig, truth))
         for name, hits in rej.items():
             add(name, "reject", hits)
+        for name, hits in cover.items():
+            add(name, "cover", hits)
         specific = [rej[name] for name in design.indirect]
         if len(specific) > 1:
             add("all indirect", "reject", np.all(np.stack(specific), axis=0))

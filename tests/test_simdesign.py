@@ -332,3 +332,12 @@ def test_paths_from_correlations_refuses_impossible_matrices():
         sd.design_from_correlations("simple-mediation", {"X-M": 0.9, "M-Y": 0.9, "X-Y": -0.5})
     with pytest.raises(OptionError, match="X-Y is needed"):
         sd.design_from_correlations("simple-mediation", {"X-M": 0.3, "M-Y": 0.3})
+
+
+def test_every_test_reports_the_total_indirect_effect():
+    # the total a1 b1 + a2 b2 of two sizeable effects is detected at least as often as the
+    # weaker specific effect, whatever the test
+    d = ParallelMediation((0.35, 0.3), (0.3, 0.3), 0.1)
+    for test in ("sobel", "monte-carlo"):
+        res = simulate_power(d, 120, test=test, reps=500, seed=28)
+        assert res["total indirect"].power >= res["X-M2-Y"].power - 3 * res["X-M2-Y"].mc_se
