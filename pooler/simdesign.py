@@ -985,6 +985,33 @@ def _probit_fit(ns, hits, reps):
     return np.array([b0, b1]), cov
 
 
+def _curve_fit(ns, hits, reps):
+    """Binomial maximum-likelihood fit of power(n) = Phi(b0 + b1 (n / n_max)^g), g > 0, for
+    drawing the whole curve: the power g of n (0.5 for a single Wald test) is free, so the
+    slower rise of tests of products and of "all significant" fits too. Monotone whenever
+    b1 > 0. Returns (b0, b1, g, n_max) or None."""
+    from scipy.optimize import minimize
+    x = np.asarray(ns, float)
+    h, m = np.asarray(hits, float), np.asarray(reps, float)
+    if len(np.unique(x)) < 3:
+        return None
+    xs = x / x.max()
+
+    def nll(p):
+        eta = p[0] + p[1] * xs ** math.exp(min(max(p[2], -5.0), 5.0))
+        return -float(np.sum(h * sp.log_ndtr(eta) + (m - h) * sp.log_ndtr(-eta)))
+    best = None
+    for g0 in (0.25, 0.5, 1.0):
+        r = minimize(nll, np.array([-2.0, 4.0, math.log(g0)]), method="Nelder-Mead",
+                     options={"xatol": 1e-7, "fatol": 1e-9, "maxiter": 4000})
+        if best is None or r.fun < best.fun:
+            best = r
+    b0, b1, lg = best.x
+    if not np.all(np.isfinite(best.x)) or b1 <= 0:
+        return None
+    return float(b0), float(b1), math.exp(min(max(lg, -5.0), 5.0)), float(x.max())
+
+
 def _n_from_fit(beta, goal):
     """The n at which the fitted curve reaches ``goal``: ((Phi^-1(goal) - b0) / b1)^2."""
     root = (sp.ndtri(goal) - beta[..., 0]) / beta[..., 1]
@@ -1023,14 +1050,17 @@ class SampleSizeResult:
     seed: int
     solutions: tuple
     points: tuple   # PowerEstimate at every simulated n (stages pooled), for the curves
-    fits: dict      # target -> (b0, b1) of power = Phi(b0 + b1 sqrt(n))
+    fits: dict      # target -> (b0, b1, g, scale): power = Phi(b0 + b1 (n / scale)^g)
 
     def curve(self, target, ns):
-        """Fitted power at ``ns`` for ``target`` (NaN-free; None if no curve was fitted)."""
+        """Fitted power curve at ``ns`` for ``target``, over all simulated points (None if
+        none was fitted). For display: each n in ``solutions`` comes from the local fit
+        near it and its confirmation."""
         beta = self.fits.get(target)
         if beta is None:
             return None
-        return sp.ndtr(beta[0] + beta[1] * np.sqrt(np.asarray(ns, float)))
+        b0, b1, g, scale = beta
+        return sp.ndtr(b0 + b1 * (np.asarray(ns, float) / scale) ** g)
 
     def to_dict(self) -> dict:
         return to_jsonable({
@@ -1038,8 +1068,8 @@ class SampleSizeResult:
             "description": self.design.describe(), "test": self.test, "alpha": self.alpha,
             "seed": self.seed, "solutions": [s.to_dict() for s in self.solutions],
             "points": [p.to_dict() for p in self.points],
-            "fits": {k: {"intercept": float(v[0]), "slope_sqrt_n": float(v[1])}
-                     for k, v in self.fits.items()}})
+            "curves": {k: {"intercept": v[0], "slope": v[1], "power_of_n": v[2],
+                           "n_scale": v[3]} for k, v in self.fits.items()}})
 
     def to_frame(self):
         import pandas as pd
@@ -1170,7 +1200,6 @@ def find_n(design, *, test: str | None = None, powers=(0.8, 0.9, 0.95), targets=
                     sols[(t, g)] = NSolution(t, g, NotEstimable(reason), NotEstimable(reason),
                                              None)
                 continue
-            fits[t] = tuple(float(v) for v in fit[0])
             for g in powers:
                 todo[(t, g)] = fit
         # solve every (target, goal), confirm all the solutions in one batch, repeat the
@@ -1204,6 +1233,11 @@ def find_n(design, *, test: str | None = None, powers=(0.8, 0.9, 0.95), targets=
             todo = left
             if not todo:
                 break
+        for t in targets:
+            ns = sorted(counts)
+            curve = _curve_fit(ns, [counts[m][t][0] for m in ns], [counts[m][t][1] for m in ns])
+            if curve is not None:
+                fits[t] = curve
         return [sols[(t, g)] for t in targets for g in powers], fits
 
     if _runner is not None:

@@ -296,8 +296,12 @@ def test_find_n_confirms_its_solution():
     ns = np.array(sorted({p.n for p in res.points}))
     fitted = res.curve("X-M-Y", ns)
     assert np.all(np.diff(fitted) > 0)
+    pts = sorted((p for p in res.points if p.target == "X-M-Y"), key=lambda p: p.n)
+    z = [(p.power - f) / math.sqrt(max(f * (1 - f), 1e-4) / p.reps)
+         for p, f in zip(pts, fitted)]
+    assert np.median(np.abs(z)) < 1.5 and np.max(np.abs(z)) < 4
     doc = res.to_dict()
-    assert doc["solutions"][0]["n"] == a.n and "fits" in doc
+    assert doc["solutions"][0]["n"] == a.n and "curves" in doc
 
 
 def test_find_n_says_when_power_cannot_be_reached():
