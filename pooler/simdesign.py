@@ -52,7 +52,7 @@ from typing import Callable
 import numpy as np
 from scipy import special as sp
 
-from ._results import Interval, NotEstimable, text_table, to_jsonable
+from ._results import Interval, NotEstimable, to_jsonable
 from ._threads import one_blas_thread
 from .errors import OptionError
 
