@@ -671,5 +671,224 @@ def template(path, force):
         click.echo(f"wrote {p}")
 
 
+# ---- pooler paths: simulated power for mediation and moderation (pooler.simdesign) ----------
+
+@main.command("paths")
+@click.option("--design", "design_name", required=True,
+              type=click.Choice(["simple-mediation", "parallel-mediation", "serial-mediation",
+                                 "moderation"]),
+              help="The path model to plan for.")
+@click.option("--a", "a_paths", type=float, multiple=True,
+              help="Standardized path from X to a mediator; repeat once per mediator "
+                   "(serial: X-M1, then optionally X-M2).")
+@click.option("--b", "b_paths", type=float, multiple=True,
+              help="Standardized path from a mediator to Y; repeat once per mediator "
+                   "(serial: M1-Y, then M2-Y).")
+@click.option("--direct", type=float, default=None,
+              help="Direct path X-Y (mediation), controlling for the mediators [default: 0].")
+@click.option("--m1-m2", type=float, default=None,
+              help="Serial mediation: the path from M1 to M2.")
+@click.option("--mediator-r", type=float, default=0.0, show_default=True,
+              help="Parallel mediation: correlation of the mediators' residuals.")
+@click.option("--x-effect", type=float, default=None,
+              help="Moderation: effect of X on Y at the mean of Z.")
+@click.option("--z-effect", type=float, default=None,
+              help="Moderation: effect of the moderator Z on Y [default: 0].")
+@click.option("--interaction", type=float, default=None,
+              help="Moderation: coefficient of the product of standardized X and Z.")
+@click.option("--slope-high", type=float, default=None,
+              help="Moderation, instead of --x-effect/--interaction: effect of X at +1 SD "
+                   "of Z (binary: in the group coded +1).")
+@click.option("--slope-low", type=float, default=None,
+              help="Moderation: effect of X at -1 SD of Z (with --slope-high).")
+@click.option("--xz-r", type=float, default=0.0, show_default=True,
+              help="Moderation: correlation of X and Z.")
+@click.option("--x-reliability", type=float, default=1.0, show_default=True,
+              help="Moderation: reliability of the measure of X.")
+@click.option("--z-reliability", type=float, default=1.0, show_default=True,
+              help="Moderation: reliability of the measure of Z.")
+@click.option("--binary-moderator", is_flag=True,
+              help="Moderation: Z is two equal groups instead of a continuous score.")
+@click.option("--paths-file", type=click.Path(dir_okay=False), default=None,
+              help="CSV with columns scenario, path, value (paths named like X-M1, M1-Y, "
+                   "X-Y, M1-M2, XZ-Y): one plan per scenario; paths the file lacks are "
+                   "taken from the options.")
+@click.option("--correlations", "as_correlations", is_flag=True,
+              help="The values in --paths-file are correlations between the named variables "
+                   "(X-M1, M1-Y, X-Y, M1-M2, ...; every pair), e.g. pooled from literatures; "
+                   "the paths are the standardized coefficients they imply. Mediation only.")
+@click.option("--test", "test_name", default=None,
+              type=click.Choice(["joint", "monte-carlo", "bootstrap", "sobel"]),
+              help="Test of the indirect effects [default: monte-carlo]; sobel only for "
+                   "comparison (low-powered).")
+@click.option("--n", "fixed_n", type=click.IntRange(min=5), default=None,
+              help="Simulate power at this total n instead of searching for n.")
+@click.option("--power", "powers", type=float, multiple=True,
+              help="Target power; repeatable [default: 0.8 0.9 0.95].")
+@click.option("--alpha", type=float, default=0.05, show_default=True,
+              help="Two-sided significance level.")
+@click.option("--reps", type=click.IntRange(min=1), default=None,
+              help="Replications per simulated n [default: 1,000 for the search, 2,000 "
+                   "at --n; a fifth of that for the bootstrap].")
+@click.option("--draws", type=click.IntRange(min=100), default=1000, show_default=True,
+              help="Monte Carlo draws per replication (monte-carlo test).")
+@click.option("--resamples", type=click.IntRange(min=100), default=1000, show_default=True,
+              help="Bootstrap resamples per replication (bootstrap test).")
+@click.option("--seed", type=int, default=2026, show_default=True, help="Random seed.")
+@click.option("--workers", type=click.IntRange(min=1), default=2, show_default=True,
+              help="Local processes (results do not depend on it).")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) "
+                   "instead of local processes; same results. Needs pooler[cluster].")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
+              help="Folder for results.json, report.md and the power-curve figure.")
+@click.option("--format", "fmt", type=click.Choice(["png", "svg", "pdf"]), default="png",
+              show_default=True, help="File format of the figure.")
+@click.option("--force", is_flag=True, help="Write into --out even if it is not empty and "
+              "pooler did not write it (a folder pooler wrote is replaced by a rerun).")
+@_json_option
+def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
+              interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
+              binary_moderator, paths_file, as_correlations, test_name, fixed_n, powers, alpha, reps, draws,
+              resamples, seed, workers, scheduler, out_dir, fmt, force, as_json):
+    """Sample size (or power) for mediation and moderation, by simulation.
+
+    Give the standardized paths as options, or several scenarios of them in
+    --paths-file. The table shows, for each indirect effect (and for the
+    total and for "all indirect effects significant" with several mediators), the n that
+    reaches each target power, a 95 % Monte Carlo interval for that n, and the power
+    confirmed at n with its Monte Carlo SE. Moderation plans for the interaction.
+
+    \b
+    Example:
+      pooler paths --design simple-mediation --a 0.3 --b 0.3 --test joint
+      pooler paths --design parallel-mediation --a 0.3 --a 0.25 --b 0.3 --b 0.2 \\
+          --direct 0.1 --out two_mediators
+      pooler paths --design serial-mediation --a 0.4 --m1-m2 0.3 --b 0.1 --b 0.3
+      pooler paths --design moderation --slope-high 0.375 --slope-low 0.225 \\
+          --z-effect 0.3 --x-reliability 0.8 --z-reliability 0.8
+      pooler paths --design parallel-mediation --paths-file my_paths.csv --direct 0.1
+    """
+    from .errors import OptionError
+    from .pathsreport import methods_paragraph, plan_text, power_text, render_files
+    from . import simdesign as sd
+    mediation_opts = {"--a": a_paths, "--b": b_paths, "--m1-m2": m1_m2}
+    moderation_opts = {"--x-effect": x_effect, "--interaction": interaction,
+                       "--slope-high": slope_high, "--slope-low": slope_low}
+    settings: dict = {}
+    if design_name == "moderation":
+        used = [k for k, v in mediation_opts.items() if v] + (["--test"] if test_name else [])
+        if used:
+            raise OptionError(f"{', '.join(used)} does not apply to moderation")
+        if (slope_high is None) != (slope_low is None):
+            raise OptionError("give both --slope-high and --slope-low")
+        if slope_high is not None:
+            if x_effect is not None or interaction is not None:
+                raise OptionError("give either --slope-high/--slope-low or "
+                                  "--x-effect/--interaction, not both")
+            x_effect, interaction = (slope_high + slope_low) / 2, (slope_high - slope_low) / 2
+        given = {"X-Y": x_effect, "Z-Y": z_effect, "XZ-Y": interaction}
+        settings = dict(xz_r=xz_r, x_reliability=x_reliability, z_reliability=z_reliability,
+                        binary_moderator=binary_moderator)
+    else:
+        used = [k for k, v in moderation_opts.items() if v is not None]
+        if used:
+            raise OptionError(f"{', '.join(used)} applies to moderation only")
+        a_, b_ = list(a_paths), list(b_paths)
+        if design_name == "simple-mediation":
+            if len(a_) > 1 or len(b_) > 1:
+                raise OptionError("simple mediation takes one --a and one --b")
+            given = {"X-M": a_[0] if a_ else None, "M-Y": b_[0] if b_ else None}
+        elif design_name == "parallel-mediation":
+            if len(a_) != len(b_):
+                raise OptionError("give --a and --b once per mediator (as many --a as --b)")
+            given = {f"X-M{i}": v for i, v in enumerate(a_, start=1)}
+            given.update({f"M{i}-Y": v for i, v in enumerate(b_, start=1)})
+            settings = dict(mediator_r=mediator_r)
+        else:
+            if len(a_) > 2 or len(b_) not in (0, 2):
+                raise OptionError("serial mediation takes --a once (X-M1) or twice (X-M1, "
+                                  "X-M2) and --b twice (M1-Y, then M2-Y; 0 if absent)")
+            given = {"X-M1": a_[0] if a_ else None, "X-M2": a_[1] if len(a_) == 2 else None,
+                     "M1-M2": m1_m2, "M1-Y": b_[0] if b_ else None,
+                     "M2-Y": b_[1] if b_ else None}
+        given["X-Y"] = direct
+    given = {k: v for k, v in given.items() if v is not None}
+    hints = {"X-M": "--a", "M-Y": "--b", "X-M1": "--a", "M1-M2": "--m1-m2",
+             "M2-Y": "--b twice: M1-Y, then M2-Y",
+             "X-Y": "--x-effect, or --slope-high and --slope-low",
+             "XZ-Y": "--interaction, or --slope-high and --slope-low"}
+    if as_correlations:
+        if not paths_file:
+            raise OptionError("--correlations reads the correlations from --paths-file")
+        if design_name == "moderation":
+            raise OptionError("--correlations applies to the mediation designs only")
+        extra = [k for k, v in {**mediation_opts, "--direct": direct,
+                                "--mediator-r": mediator_r or None}.items() if v]
+        if extra:
+            raise OptionError(f"with --correlations every path comes from the correlations; "
+                              f"drop {', '.join(extra)}")
+        scenarios = {label: sd.design_from_correlations(design_name, values)
+                     for label, values in sd.read_paths_file(paths_file).items()}
+    elif paths_file:
+        scenarios = {}
+        for label, values in sd.read_paths_file(paths_file).items():
+            both = sorted(set(values) & set(given))
+            if both:
+                raise OptionError(f"{', '.join(both)} is given both in {paths_file} "
+                                  f"(scenario {label}) and as an option; give it once")
+            scenarios[label] = sd.design_from_paths(design_name, {**given, **values},
+                                                    hints=hints, **settings)
+    else:
+        scenarios = {"": sd.design_from_paths(design_name, given, hints=hints, **settings)}
+    if out_dir:
+        from .outputs import check_out
+        check_out(out_dir, force)
+    bar = None
+    if sys.stderr.isatty():
+        def bar(done, total):
+            filled = int(30 * done / total)
+            click.echo(f"\rsimulating [{'#' * filled}{'.' * (30 - filled)}] {done}/{total}",
+                       err=True, nl=done == total)
+    common = dict(test=test_name, alpha=alpha, seed=seed, draws=draws, resamples=resamples,
+                  workers=workers, scheduler=scheduler, progress=bar)
+    note = ""
+    if test_name == "sobel":
+        note = ("Sobel's test is shown for comparison only: it is low-powered "
+                "(MacKinnon et al. 2002); plan with joint, monte-carlo or bootstrap.")
+    if fixed_n is not None:
+        res = [sd.simulate_power(d, fixed_n, reps=reps, stream=i, **common)
+               for i, d in enumerate(scenarios.values())]
+        if as_json:
+            _print_json({"schema": "pooler.paths-power/1",
+                         "scenarios": [dict(r.to_dict(), scenario=lab)
+                                       for lab, r in zip(scenarios, res)]})
+        else:
+            click.echo("\n".join((f"{lab}: " if lab else "") + power_text(r)
+                                  for lab, r in zip(scenarios, res)) + note, nl=bool(note))
+        return
+    search_reps = reps or (200 if test_name == "bootstrap" else 1000)
+    common.pop("workers"), common.pop("scheduler")
+    with_pool = dict(workers=workers, scheduler=scheduler)
+    results = sd.plan_paths(scenarios, powers=powers or (0.8, 0.9, 0.95), reps=search_reps,
+                            **common, **with_pool)
+    test_used = results[0].test
+    methods = methods_paragraph(results, search_reps, draws, resamples)
+    options = {"design": design_name, "test": test_used, "alpha": alpha, "reps": search_reps,
+               "draws": draws, "resamples": resamples, "seed": seed,
+               "paths_file": paths_file}
+    if out_dir:
+        from .outputs import write
+        paths = write(render_files(results, options, methods, fmt), out_dir, force=force)
+    if as_json:
+        from .pathsreport import SCHEMA
+        _print_json({"schema": SCHEMA, "scenarios": [r.to_dict() for r in results],
+                     "options": options, "methods": methods})
+    else:
+        click.echo(plan_text(results, note))
+        if out_dir:
+            click.echo(f"Written to {out_dir}/: " + ", ".join(p.name for p in paths))
+
+
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())
