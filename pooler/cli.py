@@ -136,8 +136,8 @@ def _scenario_options(f):
                      show_default=True,
                      help="Two-sided level of the safeguard interval for the pessimistic "
                           "scenario (Perugini et al. 2014).")(f)
-    f = click.option("--adjuster", type=click.Choice(["default", "median", "3psm", "pet-peese",
-                                                      "trim-and-fill", "waap-wls"]),
+    from .choices import ADJUSTERS
+    f = click.option("--adjuster", type=click.Choice(list(ADJUSTERS)),
                      default="default", show_default=True,
                      help="How the realistic scenario is chosen: the default rule, the "
                           "safeguard limit of the median of the adjusters, or one adjuster.")(f)

@@ -283,17 +283,7 @@ def methods_paragraph(run) -> str:
             txt[-1] += (f"; the 95% prediction interval for the true effect of a new study was "
                         f"{_ci(pooled.prediction, 2)} (Higgins et al., 2009)")
         txt[-1] += "."
-    methods = []
-    if estimable(bias.egger):
-        methods.append("Egger's regression test (Egger et al., 1997)")
-    if estimable(bias.pet_peese):
-        methods.append("PET-PEESE (Stanley & Doucouliagos, 2014)")
-    if estimable(bias.trim_and_fill):
-        methods.append("trim-and-fill (Duval & Tweedie, 2000)")
-    if estimable(bias.selection_3psm):
-        methods.append("a three-parameter selection model (Vevea & Hedges, 1995)")
-    if estimable(bias.waap_wls):
-        methods.append("WAAP-WLS (Stanley et al., 2017)")
+    methods = bias.cited()
     if methods:
         txt.append("Because published effects are inflated by publication bias and low power, "
                    "we assessed small-study effects and selection with "

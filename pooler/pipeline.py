@@ -60,7 +60,7 @@ def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="re
     pooled = pool(effects, estimator, interval)
     say("bias-sensitivity suite (selection model from several starting points)")
     bias = bias_suite(pooled)
-    scen = make_scenarios(effects, pooled, bias, adjuster=adjuster,
+    scen = make_scenarios(pooled, bias, adjuster=adjuster,
                           safeguard_level=safeguard_level, sesoi=sesoi)
     return Analysis(sheet, effects, pooled, bias, scen)
 

@@ -343,7 +343,8 @@ def run_summary_text(run, paths) -> str:
 
 def stress_text(res) -> str:
     """What ``pooler stress`` prints: true power per planning rule, estimator bias and RMSE."""
-    from .simulate import ESTIMATORS, RULES
+    from .simulate import RULES
+    estimators = list(res.cells[0].estimates) if res.cells else []
     out = [f"Stress test: {res.reps} simulated literatures per cell ({res.shapes}); "
            f"n planned for {100 * res.power:g}% power, {res.design}; seed {res.seed}",
            "True power reached by the n each rule recommends: median (10th percentile); "
@@ -367,9 +368,9 @@ def stress_text(res) -> str:
     for c in res.cells:
         s = c.summary()
         line = [c.cell.k, c.cell.delta, c.cell.tau, c.cell.pi]
-        for e in ESTIMATORS:
+        for e in estimators:
             v = s["estimators"][e]
             line.append("-" if v["bias"] is None else f"{v['bias']:+.3f} / {v['rmse']:.3f}")
         rows.append(line)
-    out.append(text_table(["k", "delta", "tau", "pi"] + list(ESTIMATORS), rows, digits=2))
+    out.append(text_table(["k", "delta", "tau", "pi"] + estimators, rows, digits=2))
     return "\n".join(out)
