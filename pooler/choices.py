@@ -1,9 +1,25 @@
-"""Option choices the command line offers, kept free of numpy so that `pooler --help` stays
-fast. Each list is pinned to the registry it mirrors by a test (tests/test_bias_registry.py
-for the adjusters).
+"""The options as data: canonical choices and defaults, free of numpy so that `pooler --help`
+stays fast. The command line reads its choice lists and defaults from here; the library keeps
+the same values as its functions' defaults, and tests/test_options.py pins the two together
+(and the adjusters to the bias-method registry).
 """
 from __future__ import annotations
 
+from types import MappingProxyType
+
+#: ``--metric``: Hedges' g (d) or Fisher's z of the correlation (r).
+METRICS = ("d", "r")
+#: ``--estimator``: the between-study variance estimators of ``pooler.pooling``.
+ESTIMATORS = ("reml", "ml", "pm", "dl")
+#: ``--interval``: Hartung-Knapp-Sidik-Jonkman or Wald.
+INTERVALS = ("hksj", "wald")
 #: ``--adjuster``: the default rule, the median rule, then one value per bias method that can
 #: set the planning effect, in planning order (``pooler.bias.adjuster_choices()``).
 ADJUSTERS = ("default", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls")
+
+#: Defaults of the analysis (``pooler.pipeline.analyse`` and the stages it calls).
+ANALYSIS_DEFAULTS = MappingProxyType({
+    "metric": "d", "within_r": 0.5, "sample_r": 0.5, "estimator": "reml", "interval": "hksj",
+    "adjuster": "default", "safeguard_level": 0.6, "sesoi": None})
+#: Target powers of the planning table when none is given.
+POWERS = (0.8, 0.9, 0.95)

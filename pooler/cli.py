@@ -10,7 +10,8 @@ import sys
 
 import click
 
-from .errors import PoolerError
+from .choices import ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS, POWERS
+from .errors import OptionError, PoolerError
 
 
 class _Group(click.Group):
@@ -20,23 +21,37 @@ class _Group(click.Group):
         try:
             return super().invoke(ctx)
         except PoolerError as exc:
-            click.echo(f"pooler: error: {exc}", err=True)
+            click.echo(f"pooler: error: {_for_the_user(ctx, exc)}", err=True)
             ctx.exit(2)
 
 
+def _for_the_user(ctx, exc) -> str:
+    """The error as the user should read it: library parameter names become the flags of the
+    command that ran (``safeguard_level`` -> ``--safeguard``)."""
+    cmd = ctx.command.get_command(ctx, ctx.invoked_subcommand or "")
+    if not isinstance(exc, OptionError) or cmd is None:
+        return str(exc)
+    flags = {p.name: max(p.opts, key=len) for p in cmd.params
+             if isinstance(p, click.Option) and p.name}
+    return exc.naming(flags)
+
+
 def _metric_option(f):
-    return click.option("--metric", type=click.Choice(["d", "r"]), default="d", show_default=True,
+    return click.option("--metric", type=click.Choice(list(METRICS)),
+                        default=ANALYSIS_DEFAULTS["metric"], show_default=True,
                         help="Common metric: d = Hedges' g, r = Fisher's z of the correlation.")(f)
 
 
 def _within_r_option(f):
-    return click.option("--within-r", type=float, default=0.5, show_default=True,
+    return click.option("--within-r", type=float, default=ANALYSIS_DEFAULTS["within_r"],
+                        show_default=True,
                         help="Correlation between repeated measures for within-subject rows "
                              "that do not give one (an assumption, printed).")(f)
 
 
 def _sample_r_option(f):
-    return click.option("--sample-r", type=float, default=0.5, show_default=True,
+    return click.option("--sample-r", type=float, default=ANALYSIS_DEFAULTS["sample_r"],
+                        show_default=True,
                         help="Assumed correlation between outcomes of rows that share a "
                              "'sample' (they are combined into one effect).")(f)
 
@@ -117,12 +132,12 @@ def convert(sheet, metric, within_r, sample_r, as_json):
 
 
 def _pooling_options(f):
-    f = click.option("--interval", type=click.Choice(["hksj", "wald"]), default="hksj",
-                     show_default=True,
+    f = click.option("--interval", type=click.Choice(list(INTERVALS)),
+                     default=ANALYSIS_DEFAULTS["interval"], show_default=True,
                      help="Interval for the mean: Hartung-Knapp-Sidik-Jonkman (t, k-1 df) "
                           "or Wald (normal).")(f)
-    f = click.option("--estimator", type=click.Choice(["reml", "ml", "pm", "dl"]),
-                     default="reml", show_default=True,
+    f = click.option("--estimator", type=click.Choice(list(ESTIMATORS)),
+                     default=ANALYSIS_DEFAULTS["estimator"], show_default=True,
                      help="Between-study variance estimator: REML, ML, Paule-Mandel, "
                           "DerSimonian-Laird.")(f)
     return f
@@ -132,13 +147,12 @@ def _scenario_options(f):
     f = click.option("--sesoi", type=float, default=None,
                      help="Smallest effect size of interest (d, or r): the pessimistic scenario "
                           "never goes below it.")(f)
-    f = click.option("--safeguard", "safeguard_level", type=float, default=0.6,
-                     show_default=True,
+    f = click.option("--safeguard", "safeguard_level", type=float,
+                     default=ANALYSIS_DEFAULTS["safeguard_level"], show_default=True,
                      help="Two-sided level of the safeguard interval for the pessimistic "
                           "scenario (Perugini et al. 2014).")(f)
-    from .choices import ADJUSTERS
     f = click.option("--adjuster", type=click.Choice(list(ADJUSTERS)),
-                     default="default", show_default=True,
+                     default=ANALYSIS_DEFAULTS["adjuster"], show_default=True,
                      help="How the realistic scenario is chosen: the default rule, the "
                           "safeguard limit of the median of the adjusters, or one adjuster.")(f)
     return f
@@ -316,7 +330,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     else:
         raise OptionError("give a SHEET of prior results or a planning --effect")
     p = make_plan(scen, des, metric=pmetric, alpha=alpha, tails=tails,
-                  powers=powers or (0.8, 0.9, 0.95), attrition=attrition, predictive=predictive,
+                  powers=powers or POWERS, attrition=attrition, predictive=predictive,
                   n_total=n_total, effect_label=label)
     if as_json:
         _print_json(p.to_dict())
@@ -385,7 +399,7 @@ def _whole_job(ctx, sheet, sheet_label, params):
                         "adjuster": p["adjuster"], "safeguard_level": p["safeguard_level"],
                         "sesoi": p["sesoi"]}
     plan_options = {"alpha": p["alpha"], "tails": p["tails"],
-                    "powers": tuple(p["powers"] or (0.8, 0.9, 0.95)),
+                    "powers": tuple(p["powers"] or POWERS),
                     "attrition": p["attrition"], "n_total": p["n_total"]}
     from .outputs import check_out
     out = check_out(p["out_dir"], p["force"])   # before the work, so a refusal costs nothing

@@ -29,10 +29,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._results import Interval, NotEstimable, estimable, to_jsonable
+from .choices import ESTIMATORS, INTERVALS
 from .errors import OptionError
-
-ESTIMATORS = ("reml", "ml", "pm", "dl")
-INTERVALS = ("hksj", "wald")
 ESTIMATOR_NAMES = {"reml": "restricted maximum likelihood (REML)", "ml": "maximum likelihood",
                    "pm": "Paule-Mandel", "dl": "DerSimonian-Laird"}
 INTERVAL_NAMES = {"hksj": "Hartung-Knapp-Sidik-Jonkman", "wald": "Wald (normal)"}

@@ -199,9 +199,9 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
     chosen = {m.adjuster: m for m in bias.methods if m.can_plan}.get(adjuster)
     if chosen is not None:
         if chosen.key not in adjusted:
-            raise OptionError(f"--adjuster {adjuster}: that method is not estimable here "
+            raise OptionError(f"`adjuster` {adjuster}: that method is not estimable here "
                               f"({_reason(bias, chosen.key)}); choose another or the default "
-                              "rule")
+                              "rule", parameter="adjuster")
         est, se = adjusted[chosen.key]
         basis = f"{chosen.label} alone (chosen with --adjuster)"
         used = (chosen.key,)

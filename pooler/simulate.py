@@ -297,7 +297,8 @@ def grid_around(analysis, scale=(0.5, 1.0, 1.5), pis=(1.0, 0.2, 0.05)) -> list[C
     no selection to strong selection, k = the user's number of samples."""
     sc, bias, pooled = analysis.scenarios, analysis.bias, analysis.pooled
     if analysis.pooled.metric != "g":
-        raise OptionError("the stress test simulates standardised mean differences: use --metric d")
+        raise OptionError("`metric` must be 'd' for the stress test: it simulates standardised "
+                          "mean differences", parameter="metric")
     r = sc.realistic.effect
     deltas = [round(s * r, 3) for s in scale] if r > 0 else [0.1, 0.2, 0.3]
     # τ² of the method the realistic effect was computed from, when it has its own

@@ -145,4 +145,4 @@ def test_top_level_help_and_version(run_cli):
 
 def test_bad_option_values_exit_2(run_cli, demo_path):
     res = run_cli("convert", demo_path, "--within-r", "1.5")
-    assert res.exit_code == 2 and "within_r" in res.stderr
+    assert res.exit_code == 2 and "--within-r" in res.stderr

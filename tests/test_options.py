@@ -1,0 +1,76 @@
+"""Options as data: pooler/choices.py holds the canonical choices and defaults; the library's
+defaults, the CLI's options and the registries must agree with it; option errors carry their
+parameter and the CLI names its own flag instead."""
+from __future__ import annotations
+
+import inspect
+
+import click
+import pytest
+
+from pooler import choices
+from pooler.errors import OptionError
+
+
+def _defaults(fn):
+    return {n: p.default for n, p in inspect.signature(fn).parameters.items()
+            if p.default is not inspect.Parameter.empty}
+
+
+def test_library_defaults_are_the_canonical_ones():
+    from pooler.effects import convert
+    from pooler.pipeline import analyse
+    from pooler.planning import make_plan
+    from pooler.pooling import pool
+    from pooler.scenarios import make_scenarios
+    d = choices.ANALYSIS_DEFAULTS
+    got = _defaults(analyse)
+    assert {k: got[k] for k in d} == dict(d)
+    assert {k: v for k, v in _defaults(convert).items()} == {
+        "metric": d["metric"], "within_r": d["within_r"], "sample_r": d["sample_r"]}
+    assert _defaults(pool)["estimator"] == d["estimator"]
+    assert _defaults(pool)["interval"] == d["interval"]
+    sc = _defaults(make_scenarios)
+    assert {k: sc[k] for k in ("adjuster", "safeguard_level", "sesoi")} == {
+        k: d[k] for k in ("adjuster", "safeguard_level", "sesoi")}
+    assert tuple(_defaults(make_plan)["powers"]) == choices.POWERS
+
+
+def test_choice_lists_are_the_library_ones():
+    from pooler import bias, pooling
+    assert pooling.ESTIMATORS == choices.ESTIMATORS
+    assert pooling.INTERVALS == choices.INTERVALS
+    assert bias.adjuster_choices() == choices.ADJUSTERS
+
+
+@pytest.mark.parametrize("command", ["convert", "pool", "plan", "run"])
+def test_cli_options_read_the_canonical_choices_and_defaults(command):
+    from pooler.cli import main
+    params = {p.name: p for p in main.commands[command].params if isinstance(p, click.Option)}
+    lists = {"metric": choices.METRICS, "estimator": choices.ESTIMATORS,
+             "interval": choices.INTERVALS, "adjuster": choices.ADJUSTERS}
+    for name, default in choices.ANALYSIS_DEFAULTS.items():
+        if name not in params:
+            continue
+        assert params[name].default == default, name
+        if name in lists:
+            assert tuple(params[name].type.choices) == lists[name], name
+
+
+def test_option_error_carries_its_parameter():
+    e = OptionError("`safeguard_level` must lie in (0, 1), not 1.5")
+    assert e.parameter == "safeguard_level" and str(e) == e.message
+    assert e.naming({"safeguard_level": "--safeguard"}) == "--safeguard must lie in (0, 1), not 1.5"
+    assert OptionError("give at least one planning effect").parameter is None
+    assert OptionError("`adjuster` 3psm: not here", parameter="adjuster").parameter == "adjuster"
+
+
+@pytest.mark.parametrize("args, flag, internal", [
+    (["pool", "{demo}", "--safeguard", "1.5"], "--safeguard must lie in (0, 1)", "safeguard_level"),
+    (["convert", "{demo}", "--within-r", "1.5"], "--within-r must lie strictly between", "within_r"),
+    (["pool", "{demo}", "--sesoi", "-1"], "--sesoi must be a positive effect", "`sesoi`"),
+])
+def test_cli_errors_name_the_flag_not_the_parameter(run_cli, demo_path, args, flag, internal):
+    res = run_cli(*[a.format(demo=demo_path) for a in args])
+    assert res.exit_code == 2
+    assert flag in res.stderr and internal not in res.stderr, res.stderr
