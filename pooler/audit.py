@@ -2,8 +2,8 @@
 significant results than that power can explain.
 
 Both are computed at one assumed true effect (the pipeline uses the realistic planning
-effect) from the studies a :class:`pooler.pooling.PooledResult` carries, so they need
-nothing from earlier stages.
+effect) from the studies a :class:`pooler.pooling.PooledResult` carries: the stage after the
+scenarios, ``audit_literature(pooled, scenarios.realistic.effect) -> Audit``.
 
 References
 ----------
@@ -112,8 +112,22 @@ def excess_significance(units, powers) -> ExcessSignificance | NotEstimable:
     return ExcessSignificance(o, e, k, float(chi2), float(stats.chi2.sf(chi2, 1)))
 
 
-def audit_literature(pooled, effect) -> tuple[LiteratureAudit, ExcessSignificance | NotEstimable]:
-    """The literature audit and the excess-significance test of ``pooled.studies`` at the
-    true effect ``effect`` (on the pooled metric)."""
-    audit = literature_audit(pooled.studies, effect, pooled.metric)
-    return audit, excess_significance(pooled.studies, [r.power for r in audit.rows])
+@dataclass(frozen=True)
+class Audit:
+    """The audit stage: the studies' power and the excess-significance test at ``effect``."""
+
+    effect: float
+    literature: LiteratureAudit
+    excess_significance: ExcessSignificance | NotEstimable
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"effect": self.effect, "literature": self.literature,
+                            "excess_significance": self.excess_significance})
+
+
+def audit_literature(pooled, effect) -> Audit:
+    """Audit the studies of ``pooled`` (a :class:`pooler.pooling.PooledResult`) at the true
+    effect ``effect`` on its metric: each study's power, then the excess-significance test
+    (Ioannidis & Trikalinos 2007) with those powers."""
+    lit = literature_audit(pooled.studies, effect, pooled.metric)
+    return Audit(effect, lit, excess_significance(pooled.studies, [r.power for r in lit.rows]))

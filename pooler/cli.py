@@ -204,9 +204,9 @@ def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
     else:
         click.echo(pooled_text(a.pooled, a.effects))
         click.echo("")
-        click.echo(bias_text(a.bias, a.scenarios))
+        click.echo(bias_text(a.bias, a.audit))
         click.echo("")
-        click.echo(scenarios_text(a.scenarios))
+        click.echo(scenarios_text(a.scenarios, a.audit))
 
 
 def _planning_options(f):
@@ -342,7 +342,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     else:
         if analysis is not None:
             from .report import scenarios_text
-            click.echo(scenarios_text(analysis.scenarios).split("\n\nLiterature audit")[0])
+            click.echo(scenarios_text(analysis.scenarios))
             click.echo("")
         click.echo(plan_text(p))
 

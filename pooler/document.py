@@ -155,7 +155,7 @@ def build_blocks(run) -> list[Block]:
         b.append(Block("p", "Selection ratio (Mathur & VanderWeele 2020): "
                        + "; ".join(f"eta = {e:g}: {m:.3f}" for e, m in zip(sr.eta, sr.estimates))
                        + f"; worst case {_num(sr.worst_case)}; S-value {_num(sr.s_value, 2)}."))
-    tes = sc.excess_significance
+    tes = a.audit.excess_significance
     if estimable(tes):
         b.append(Block("p", f"Excess significance (Ioannidis & Trikalinos 2007): {tes.observed} "
                             f"of {tes.k} studies significant, {tes.expected:.1f} expected at the "
@@ -175,7 +175,7 @@ def build_blocks(run) -> list[Block]:
                             f"{sc.realistic.se:.3f}); {100 * iv.level:g}% safeguard interval "
                             f"{_ci(iv)}, 95% interval {_ci(ci95)}."))
     b.append(Block("p", md_escape(sc.verdict)))
-    au = sc.audit
+    au = a.audit.literature
     if estimable(au):
         b.append(Block("p", f"Literature audit: at the realistic effect the prior studies had a "
                             f"median power of {au.median:.2f}; {100 * au.share_80:.0f}% had 80% "

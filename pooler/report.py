@@ -256,7 +256,7 @@ def _influence_table(rows, sym, first="analysis") -> str:
 
 # ------------------------------------------------------------------ bias and scenarios
 
-def bias_text(bias, scen) -> str:
+def bias_text(bias, audit) -> str:
     """The bias table, the selection-ratio sensitivity and the excess-significance test."""
     from ._results import NotEstimable, estimable
     sym = "g" if bias.metric == "g" else "z"
@@ -278,7 +278,7 @@ def bias_text(bias, scen) -> str:
                    f"S-value: {_or_reason(sr.s_value)}")
     else:
         out.append(f"Selection ratio: {sr}")
-    tes = scen.excess_significance
+    tes = audit.excess_significance
     if estimable(tes):
         out.append(f"Excess significance at the realistic effect: {tes.observed} of {tes.k} "
                    f"significant, {tes.expected:.1f} expected; chi2(1) = {tes.chi2:.2f}, "
@@ -293,7 +293,9 @@ def _or_reason(x) -> str:
     return str(x) if isinstance(x, NotEstimable) else f"{x:.3f}"
 
 
-def scenarios_text(scen) -> str:
+def scenarios_text(scen, audit=None) -> str:
+    """The scenarios table, the realistic interval and the verdict; with ``audit`` (a
+    :class:`pooler.audit.Audit`) also the literature audit."""
     from ._results import estimable
     sym = "g" if scen.metric == "g" else "z"
     rows = []
@@ -310,7 +312,7 @@ def scenarios_text(scen) -> str:
                    f"{100 * iv.level:g}% safeguard interval {_ci(iv.low, iv.high)}, "
                    f"95% interval {_ci(ci.low, ci.high)}")
     out.append(scen.verdict)
-    a = scen.audit
+    a = audit.literature if audit is not None else None
     if estimable(a):
         out += ["", f"Literature audit: each study's power to detect the realistic {sym} = "
                     f"{a.effect:.3f} (two-sided alpha = .05): median {a.median:.2f}, "
@@ -324,10 +326,10 @@ def run_summary_text(run, paths) -> str:
     """The compact summary that ``pooler run`` and ``pooler demo`` print."""
     a = run.analysis
     head = pooled_text(a.pooled, a.effects).split("\n\nStudies:")[0]
-    scen = scenarios_text(a.scenarios)
+    scen = scenarios_text(a.scenarios, a.audit)
     scen_short, _, audit = scen.partition("\n\nLiterature audit")
     audit_line = ("Literature audit" + audit.split("\n")[0]) if audit else ""
-    out = [head, "", bias_text(a.bias, a.scenarios), "", scen_short]
+    out = [head, "", bias_text(a.bias, a.audit), "", scen_short]
     if audit_line:
         out.append(audit_line)
     out += ["", plan_text(run.plan)]

@@ -18,7 +18,6 @@ References
 .. [PGC14] Perugini, M., Gallucci, M., & Costantini, G. (2014). Safeguard power as a
    protection against imprecise power estimates. *Perspectives on Psychological Science*,
    9(3), 319-332.
-.. [IT07] Ioannidis & Trikalinos (2007), test of excess significance (see pooler.audit).
 """
 from __future__ import annotations
 
@@ -27,7 +26,6 @@ import statistics
 from dataclasses import dataclass
 
 from ._results import NotEstimable, estimable, to_jsonable
-from .audit import ExcessSignificance, LiteratureAudit, audit_literature
 from .bias import adjuster_choices, planning_methods
 from .errors import OptionError
 from .planning import PlanningEffect
@@ -61,7 +59,7 @@ class Scenario:
 
 @dataclass(frozen=True)
 class Scenarios:
-    """The three planning scenarios, their bases in words, and the audit at the realistic effect.
+    """The three planning scenarios and their bases in words.
 
     Attributes
     ----------
@@ -73,7 +71,6 @@ class Scenarios:
         The plain-language summary.
     predictive : (mean, sd) or NotEstimable
         Predictive distribution of a new study's true effect, for assurance.
-    audit, excess_significance : results at the realistic effect
     """
 
     metric: str
@@ -86,8 +83,6 @@ class Scenarios:
     supported: bool
     verdict: str
     predictive: tuple[float, float] | NotEstimable
-    audit: LiteratureAudit | NotEstimable
-    excess_significance: ExcessSignificance | NotEstimable
 
     def realistic_interval(self, level: float | None = None):
         """Interval around the realistic effect (default: the safeguard level, whose lower
@@ -123,8 +118,7 @@ class Scenarios:
                             "realistic_ci95": self.realistic_interval(0.95),
                             "predictive": ({"mean": self.predictive[0], "sd": self.predictive[1]}
                                            if isinstance(self.predictive, tuple)
-                                           else self.predictive),
-                            "audit": self.audit})
+                                           else self.predictive)})
 
     def to_frame(self):
         import pandas as pd
@@ -271,9 +265,8 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
     sd = math.sqrt(se ** 2 + tau2) if se is not None else float("nan")
     predictive = ((realistic.effect, sd) if math.isfinite(sd) and sd > 0
                   else NotEstimable("no SE for the realistic effect"))
-    audit, tes = audit_literature(pooled, realistic.effect)
     return Scenarios(metric, optimistic, realistic, pessimistic, adjuster, safeguard_level, sesoi,
-                     supported, verdict, predictive, audit, tes)
+                     supported, verdict, predictive)
 
 
 def _reason(bias, key) -> str:

@@ -148,10 +148,3 @@ def test_registry_is_back_to_the_built_ins_after_the_toy():
     assert "toy_half" not in [m.key for m in methods()]
     assert "toy-half" not in bias_mod.adjuster_choices()
 
-
-def test_pooled_result_carries_its_studies():
-    eff = make_effects(Y, V)
-    pooled = pool(eff)
-    assert pooled.studies == eff.units
-    assert [s.effect for s in pooled.studies] == list(pooled.effects)
-    assert pool(eff, influence=False).studies == eff.units
