@@ -616,7 +616,21 @@ _REGISTRY: dict[str, BiasMethod] = {}
 
 def register(method: BiasMethod) -> BiasMethod:
     """Add a method to the suite (after those already registered). Its key and its
-    ``adjuster`` value must be new."""
+    ``adjuster`` value must be new.
+
+    Examples
+    --------
+    An invented toy method (not a published one) that can set the planning effect:
+
+    >>> from pooler.bias import BiasMethod, adjuster_choices, register, unregister
+    >>> toy = BiasMethod("toy", "toy", lambda d: NotEstimable("a toy"), "nobody",
+    ...                  adjuster="toy-choice", plan_order=99)
+    >>> _ = register(toy)
+    >>> adjuster_choices()[-1]
+    'toy-choice'
+    >>> unregister("toy") is toy, "toy-choice" in adjuster_choices()
+    (True, False)
+    """
     # validation
     if method.key in _REGISTRY:
         raise ValueError(f"a bias method with key {method.key!r} is already registered")

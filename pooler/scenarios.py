@@ -162,6 +162,15 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
         Two-sided level of the safeguard interval (Perugini et al. 2014 use 0.60).
     sesoi : float or None
         Smallest effect size of interest on the planning metric (d, or r).
+
+    Examples
+    --------
+    >>> from pooler import bias_suite, convert, demo_sheet_path, pool, read_sheet
+    >>> from pooler.scenarios import make_scenarios
+    >>> pooled = pool(convert(read_sheet(demo_sheet_path())))
+    >>> sc = make_scenarios(pooled, bias_suite(pooled))
+    >>> sc.optimistic.effect >= sc.realistic.effect >= sc.pessimistic.effect
+    True
     """
     from scipy.special import ndtri
     # validation
