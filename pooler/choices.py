@@ -5,6 +5,7 @@ the same values as its functions' defaults, and tests/test_options.py pins the t
 """
 from __future__ import annotations
 
+from dataclasses import asdict, dataclass, replace
 from types import MappingProxyType
 
 #: ``--metric``: Hedges' g (d) or Fisher's z of the correlation (r).
@@ -17,9 +18,31 @@ INTERVALS = ("hksj", "wald")
 #: set the planning effect, in planning order (``pooler.bias.adjuster_choices()``).
 ADJUSTERS = ("default", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls")
 
+
+
+@dataclass(frozen=True)
+class AnalysisOptions:
+    """How one sheet is analysed: the keyword arguments of :func:`pooler.pipeline.analyse`,
+    as one frozen value (serialised into ``results.json`` under ``options``). The stages
+    validate the values; this only holds them."""
+
+    metric: str = "d"
+    within_r: float = 0.5
+    sample_r: float = 0.5
+    estimator: str = "reml"
+    interval: str = "hksj"
+    adjuster: str = "default"
+    safeguard_level: float = 0.6
+    sesoi: float | None = None
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+    def replace(self, **changes) -> "AnalysisOptions":
+        return replace(self, **changes)
+
+
 #: Defaults of the analysis (``pooler.pipeline.analyse`` and the stages it calls).
-ANALYSIS_DEFAULTS = MappingProxyType({
-    "metric": "d", "within_r": 0.5, "sample_r": 0.5, "estimator": "reml", "interval": "hksj",
-    "adjuster": "default", "safeguard_level": 0.6, "sesoi": None})
+ANALYSIS_DEFAULTS = MappingProxyType(AnalysisOptions().to_dict())
 #: Target powers of the planning table when none is given.
 POWERS = (0.8, 0.9, 0.95)

@@ -10,7 +10,8 @@ import sys
 
 import click
 
-from .choices import ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS, POWERS
+from .choices import (ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS, POWERS,
+                      AnalysisOptions)
 from .errors import OptionError, PoolerError
 
 
@@ -394,10 +395,8 @@ def _whole_job(ctx, sheet, sheet_label, params):
                        p["attenuation"], p["predictors_added"], p["predictors_total"],
                        p["exact_r"])
     metric = _planning_metric(p["metric"], p["design"])
-    analysis_options = {"metric": metric, "within_r": p["within_r"], "sample_r": p["sample_r"],
-                        "estimator": p["estimator"], "interval": p["interval"],
-                        "adjuster": p["adjuster"], "safeguard_level": p["safeguard_level"],
-                        "sesoi": p["sesoi"]}
+    analysis_options = AnalysisOptions(
+        **{k: p[k] for k in ANALYSIS_DEFAULTS if k != "metric"}, metric=metric)
     plan_options = {"alpha": p["alpha"], "tails": p["tails"],
                     "powers": tuple(p["powers"] or POWERS),
                     "attrition": p["attrition"], "n_total": p["n_total"]}
@@ -509,7 +508,9 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
     if calibration:
         cells, shapes = calibration_grid(), Shapes.generic()
     else:
-        a = _analyse(sheet, metric, within_r, sample_r, "reml", "hksj", "default", 0.6, None)
+        d = ANALYSIS_DEFAULTS
+        a = _analyse(sheet, metric, within_r, sample_r, d["estimator"], d["interval"],
+                     d["adjuster"], d["safeguard_level"], d["sesoi"])
         cells, shapes = grid_around(a), Shapes.from_effects(a.effects)
     bar = None
     if sys.stderr.isatty():

@@ -93,11 +93,16 @@ class RunResult:
             "options": self.options, "command": self.command})
 
 
-def run(sheet_path, *, design, analysis_options: dict, plan_options: dict,
+def run(sheet_path, *, design, analysis_options, plan_options: dict,
         command: str = "", progress=None) -> RunResult:
-    """The whole job on one sheet: analyse, then plan the scenarios for ``design``."""
+    """The whole job on one sheet: analyse, then plan the scenarios for ``design``.
+
+    ``analysis_options`` is a :class:`pooler.choices.AnalysisOptions` (or a dict of the same
+    keywords)."""
     from . import __version__
     from .planning import make_plan
+    if hasattr(analysis_options, "to_dict"):
+        analysis_options = analysis_options.to_dict()
     a = analyse(sheet_path, progress=progress, **analysis_options)
     sc = a.scenarios
     p = make_plan(sc.planning_effects(), design, metric=sc.planning_metric,

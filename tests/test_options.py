@@ -74,3 +74,30 @@ def test_cli_errors_name_the_flag_not_the_parameter(run_cli, demo_path, args, fl
     res = run_cli(*[a.format(demo=demo_path) for a in args])
     assert res.exit_code == 2
     assert flag in res.stderr and internal not in res.stderr, res.stderr
+
+
+def test_analysis_options_are_one_frozen_value_with_analyse_keywords():
+    from dataclasses import FrozenInstanceError
+
+    from pooler.choices import AnalysisOptions
+    from pooler.pipeline import analyse
+    o = AnalysisOptions()
+    with pytest.raises(FrozenInstanceError):
+        o.metric = "r"
+    kw = [k for k in inspect.signature(analyse).parameters if k not in ("sheet_path", "progress")]
+    assert list(o.to_dict()) == kw
+    assert o.replace(sesoi=0.2).sesoi == 0.2 and o.sesoi is None
+
+
+
+def test_run_serialises_the_options_it_was_given(write_sheet):
+    from pooler.choices import AnalysisOptions
+    from pooler.pipeline import run
+    rows = [{"study": f"Invented {i}", "stat": "d", "value": y, "n1": 40, "n2": 40}
+            for i, y in enumerate([0.52, 0.31, 0.44, 0.12, 0.65, 0.28])]
+    opts = AnalysisOptions(sesoi=0.1, adjuster="median")
+    res = run(write_sheet(rows), design="two-group", analysis_options=opts,
+              plan_options={"powers": (0.8,)})
+    got = res.to_dict()["options"]
+    assert {k: got[k] for k in opts.to_dict()} == opts.to_dict()
+    assert res.analysis.scenarios.rule == "median" and res.analysis.scenarios.sesoi == 0.1
