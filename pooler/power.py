@@ -4,7 +4,9 @@ Only numpy and ``scipy.special`` are imported at module level, so that a quick
 ``pooler plan --effect 0.3`` starts fast. Everything is vectorised over numpy arrays:
 a whole planning grid (effects × powers × alphas) costs about one call per search step.
 
-Designs and the test each is planned for (λ is the noncentrality):
+Designs and the test each is planned for (λ is the noncentrality); each design's power
+function, units, labels and description are its entry in the registry
+:mod:`pooler.designs`, which :class:`Design` and the functions below read:
 
 ============================  ====================================================  ==========
 design                        test                                                   effect
