@@ -13,6 +13,7 @@ import click
 from ._threads import limit_before_numpy
 from .choices import (ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS, POWERS,
                       AnalysisOptions)
+from .design_choices import DESIGN_OPTIONS, PLANNED_DESIGNS, used_by
 from .errors import OptionError, PoolerError
 
 # One BLAS thread for the whole command (the reason is in pooler/_threads.py); this must run
@@ -289,7 +290,7 @@ def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
 
 def _planning_options(f):
     opts = [
-        click.option("--design", type=click.Choice(list(_DESIGNS)), default="two-group",
+        click.option("--design", type=click.Choice(list(PLANNED_DESIGNS)), default="two-group",
                      show_default=True, help="The planned study's design."),
         click.option("--alpha", type=float, default=0.05, show_default=True,
                      callback=_fraction(0, 0.5, percent=True,
@@ -312,28 +313,30 @@ def _planning_options(f):
                           "smallest detectable effect."),
         click.option("--ratio", type=float, default=1.0, show_default=True,
                      callback=_positive,
-                     help="two-group, ancova: allocation n2/n1."),
+                     help=f"{used_by('ratio')}: allocation n2/n1."),
         click.option("--planned-r", type=float, default=0.5, show_default=True,
                      callback=_correlation,
-                     help="paired: planned correlation between the repeated measures "
-                          "(d_z = d / sqrt(2(1 - r)); at 0.5, d_z = d)."),
+                     help=f"{used_by('planned_r')}: planned correlation between the repeated "
+                          "measures (d_z = d / sqrt(2(1 - r)); at 0.5, d_z = d)."),
         click.option("--covariate-r", type=float, default=0.5, show_default=True,
                      callback=_correlation,
-                     help="ancova: correlation between covariate (pre-test) and outcome."),
+                     help=f"{used_by('covariate_r')}: correlation between covariate (pre-test) "
+                          "and outcome."),
         click.option("--attenuation", type=float, default=0.5, show_default=True,
                      callback=_fraction(0, 2, high_open=False,
                                         hint="1 = the effect vanishes, 2 = full crossover"),
-                     help="interaction-2x2: share of the simple effect that disappears at the "
-                          "other moderator level (1 = vanishes, 2 = full crossover)."),
+                     help=f"{used_by('attenuation')}: share of the simple effect that disappears "
+                          "at the other moderator level (1 = vanishes, 2 = full crossover)."),
         click.option("--predictors-added", type=click.IntRange(min=1), default=1,
-                     show_default=True, help="regression-increment: predictors tested."),
+                     show_default=True, help=f"{used_by('predictors_added')}: predictors tested."),
         click.option("--predictors-total", type=click.IntRange(min=1), default=None,
-                     help="regression-increment: predictors in the full model "
+                     help=f"{used_by('predictors_total')}: predictors in the full model "
                           "[default: the added ones]."),
         click.option("--exact-r", is_flag=True,
-                     help="correlation: use the exact distribution of r, not Fisher's z."),
+                     help=f"{used_by('exact_r')}: use the exact distribution of r, not "
+                          "Fisher's z."),
         click.option("--fixed-covariates", is_flag=True,
-                     help="ancova, regression-increment: hold the covariate / predictor values "
+                     help=f"{used_by('fixed_covariates')}: hold the covariate / predictor values "
                           "fixed (right when the design sets them) instead of averaging the "
                           "power over normally distributed ones; for sampled values this "
                           "overstates the power slightly."),
@@ -343,10 +346,9 @@ def _planning_options(f):
     return f
 
 
-# the same tuple as pooler.power.DESIGNS, repeated so that --help need not import numpy
-# (tests/test_cli_plan.py checks the two agree)
-_DESIGNS = ("two-group", "paired", "one-sample", "correlation", "ancova", "interaction-2x2",
-            "regression-increment")
+# the planned designs' names, from the light list so that --help need not import numpy
+# (tests/test_designs.py checks it against the registry, pooler.designs)
+_DESIGNS = PLANNED_DESIGNS
 
 
 def _planning_metric(metric, design):
@@ -359,18 +361,19 @@ def _planning_metric(metric, design):
     return design_metric(design)
 
 
-def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
-                 predictors_total, exact_r, fixed_covariates=False):
+def _make_design(design, options):
+    """The Design from --design and the design options (a mapping holding every name of
+    pooler.design_choices.DESIGN_OPTIONS, as click passes them)."""
     from .errors import OptionError
-    if predictors_total is not None and predictors_total < predictors_added:
-        raise OptionError(f"--predictors-total {predictors_total} is smaller than "
-                          f"--predictors-added {predictors_added}; the full model contains the "
+    opts = {k: options[k] for k in DESIGN_OPTIONS}
+    added, total = opts["predictors_added"], opts["predictors_total"]
+    if total is not None and total < added:
+        raise OptionError(f"--predictors-total {total} is smaller than "
+                          f"--predictors-added {added}; the full model contains the "
                           "added predictors")
+    opts["predictors_total"] = total or added
     from .power import Design
-    return Design(design, ratio=ratio, planned_r=planned_r, covariate_r=covariate_r,
-                  attenuation=attenuation, predictors_added=predictors_added,
-                  predictors_total=predictors_total or predictors_added, exact_r=exact_r,
-                  fixed_covariates=fixed_covariates)
+    return Design(design, **opts)
 
 
 @main.command()
@@ -390,9 +393,8 @@ def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_
               help="How to print the planning table (csv: one row per scenario x power).")
 @_json_option
 def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, interval, adjuster,
-         safeguard_level, sesoi, design, alpha, tails, powers, attrition, n_total, ratio,
-         planned_r, covariate_r, attenuation, predictors_added, predictors_total, exact_r,
-         fixed_covariates, table_format, as_json):
+         safeguard_level, sesoi, design, alpha, tails, powers, attrition, n_total, table_format,
+         as_json, **design_options):
     """Sample size for a planned study, from a SHEET of prior results or a given effect.
 
     From SHEET: the optimistic, realistic and pessimistic planning effects (as in
@@ -413,8 +415,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     from .errors import OptionError
     from .planning import PlanningEffect, make_plan
     from .report import plan_text
-    des = _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
-                       predictors_total, exact_r, fixed_covariates)
+    des = _make_design(design, design_options)
     analysis = None
     if sheet and effects:
         raise OptionError("give either SHEET or --effect, not both")
@@ -434,7 +435,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
         pmetric = metric
         bad = [e for e in effects if pmetric == "r" and not -1 < e < 1]
         if bad:
-            own = design in ("correlation", "regression-increment")
+            own = des.metric == "r"
             why = (f"on the r metric, the default of the {design} design," if own
                    else "with --metric r")
             raise OptionError(f"--effect {bad[0]:g} is not a correlation ({why} a planning "
@@ -511,9 +512,7 @@ def _whole_job(ctx, sheet, sheet_label, params):
     from .pipeline import run
     from .report import run_summary_text
     p = dict(params)
-    des = _make_design(p["design"], p["ratio"], p["planned_r"], p["covariate_r"],
-                       p["attenuation"], p["predictors_added"], p["predictors_total"],
-                       p["exact_r"], p["fixed_covariates"])
+    des = _make_design(p["design"], p)
     metric = _planning_metric(p["metric"], p["design"])
     _check_sesoi(p["sesoi"], metric)
     analysis_options = AnalysisOptions(

@@ -277,13 +277,9 @@ def key_numbers(run) -> list[tuple[str, str]]:
 
 def _power_basis(design) -> str:
     """How the planning power was computed, in words: the Fisher z test and covariates held
-    fixed are approximations; the design description says which covariate model was used."""
-    if design.name == "correlation":
-        return "the exact distribution of r" if design.exact_r else "the Fisher z approximation"
-    if design.name in ("ancova", "regression-increment") and design.fixed_covariates:
-        kind = "covariate" if design.name == "ancova" else "predictor"
-        return f"noncentral distributions (an approximation when the {kind} values are sampled)"
-    return "exact noncentral distributions"
+    fixed are approximations; the design description says which covariate model was used.
+    Each design's wording is in its registry entry (:mod:`pooler.designs`)."""
+    return design.power_basis()
 
 
 def methods_paragraph(run) -> str:
@@ -324,8 +320,7 @@ def methods_paragraph(run) -> str:
     pes = plan.row("pessimistic", first)
     tails = "two-tailed" if plan.tails == 2 else "one-tailed"
     if isinstance(row.n_total, int):
-        unit = ("per group" if plan.design.name in ("two-group", "ancova") else
-                "per cell" if plan.design.name == "interaction-2x2" else "")
+        unit = f"per {plan.design.unit}" if plan.design.grouped else ""
         n_txt = (f"{row.n_per_group} {unit} ({row.n_total} in total)" if unit
                  else f"N = {row.n_total}")
         s = (f"For a {tails} test at alpha = {plan.alpha:g} with {100 * first:g}% power, the "

@@ -236,9 +236,9 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
         fixed = _fixed_n(int(n_total), scenarios, effects, deff, des, metric, alpha, alternative,
                          powers)
         if fixed.n_total_used != fixed.n_total:
-            unit = "per cell" if des.name == "interaction-2x2" else "per group"
             notes.append(f"a total N of {fixed.n_total} does not split into whole groups as "
-                         f"planned: the fixed-N figures are for {fixed.n_per_group} {unit}, "
+                         f"planned: the fixed-N figures are for {fixed.n_per_group} "
+                         f"per {des.unit}, "
                          f"{fixed.n_total_used} in all")
     return Plan(design=des, metric=metric, alpha=alpha, tails=tails, powers=powers,
                 attrition=attrition, scenarios=scenarios, rows=tuple(rows), assurance=assurance,
@@ -246,14 +246,10 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
                 notes=tuple(notes))
 
 
-#: designs whose test is on a correlation (their own metric is r); the others test a d
-CORRELATIONAL = ("correlation", "regression-increment")
-
-
 def design_metric(design) -> str:
     """The metric a design plans on when the user does not choose one: r for the
-    correlational designs, d otherwise."""
-    return "r" if _design(design).name in CORRELATIONAL else "d"
+    correlational designs, d otherwise (the registry's ``metric``, :mod:`pooler.designs`)."""
+    return _design(design).metric
 
 
 def conversion_note(metric: str, design) -> str | None:
@@ -275,24 +271,19 @@ def conversion_note(metric: str, design) -> str | None:
     if metric == design_metric(des):
         return None
     if metric == "d":
-        then = ("" if des.name == "correlation"
-                else ", then f^2 = r^2 / (1 - r^2)")
         return (f"the planning effects are d, and the {des.name} design tests a correlation: "
                 "each d is converted to r = d / sqrt(d^2 + 4), the correlation of the outcome "
                 "with membership of one of two equal groups (Borenstein et al. 2009, eq. 7.7)"
-                f"{then}; give --metric r to plan on a correlation directly")
+                f"{des.spec.r_note}; give --metric r to plan on a correlation directly")
     return (f"the planning effects are correlations, and the {des.name} design tests a "
             "standardised mean difference: each r is converted to d = 2 r / sqrt(1 - r^2), "
             "as if it compared two equal groups (Borenstein et al. 2009, eq. 7.5)")
 
 
 def per_group(n_total: int, design: Design) -> int:
-    """n per group (per cell) that a total N allows, rounding down."""
-    if design.name in ("two-group", "ancova"):
-        return int(math.floor(n_total / (1 + design.ratio) + 1e-9))
-    if design.name == "interaction-2x2":
-        return n_total // 4
-    return n_total
+    """n per group (per cell) that a total N allows, rounding down (the registry's
+    ``per_unit``, :mod:`pooler.designs`)."""
+    return _design(design).per_unit(n_total)
 
 
 def _fixed_n(n_total, scenarios, effects, deff, des, metric, alpha, alternative, powers):

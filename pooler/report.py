@@ -72,8 +72,7 @@ def plan_table(plan) -> tuple[list[str], list[list]]:
     headers = ["scenario", f"planning {plan.effect_label}", f"design {des.effect_label}"]
     for p in plan.powers:
         if des.grouped:
-            unit = "n/cell" if des.name == "interaction-2x2" else "n/group"
-            headers += [f"{unit} @{_pct(p)}", f"total @{_pct(p)}"]
+            headers += [f"n/{des.unit} @{_pct(p)}", f"total @{_pct(p)}"]
         else:
             headers += [f"N @{_pct(p)}"]
         if plan.attrition:
