@@ -55,21 +55,35 @@ class Regression:
                             "slope": self.slope, "df": self.df})
 
 
+def _line_fit(x, y, w):
+    """Weighted least squares of ``y`` on a constant and ``x`` in closed form (centred sums;
+    Draper & Smith 1998, sec. 1.2 and 9.2): intercept, its SE with the residual variance
+    Σ w e² / (k - 2) as the multiplicative dispersion, slope and residual df. Two columns do not
+    need a linear-algebra library (the tests compare with statsmodels WLS/OLS)."""
+    sw = w.sum()
+    xm, ym = (w * x).sum() / sw, (w * y).sum() / sw
+    dx = x - xm
+    sxx = (w * dx * dx).sum()
+    b1 = (w * dx * (y - ym)).sum() / sxx
+    b0 = ym - b1 * xm
+    e = y - b0 - b1 * x
+    df = len(y) - 2
+    s2 = (w * e * e).sum() / df
+    return b0, math.sqrt(s2 * (1 / sw + xm * xm / sxx)), b1, df
+
+
 def _fit_line(x, y, weights=None, level=0.95) -> Regression | NotEstimable:
-    from scipy import stats
-    from statsmodels.regression.linear_model import OLS, WLS
-    X = np.column_stack([np.ones_like(x), x])
-    model = OLS(y, X) if weights is None else WLS(y, X, weights=weights)
+    from scipy.special import stdtr, stdtrit
+    w = np.ones_like(x) if weights is None else np.asarray(weights, float)
     with np.errstate(all="ignore"):
-        fit = model.fit()
-        b0, se0 = float(fit.params[0]), float(fit.bse[0])
+        b0, se0, b1, df = _line_fit(x, y, w)
+    b0, se0, b1 = float(b0), float(se0), float(b1)
     if not (math.isfinite(b0) and math.isfinite(se0) and se0 > 0):
         return NotEstimable("the regression line fits the studies exactly (no residual "
                             "variation), so it has no standard error")
-    df = int(fit.df_resid)
-    t = stats.t.ppf(0.5 + level / 2, df)
-    return Regression(b0, se0, Interval(b0 - t * se0, b0 + t * se0, level),
-                      float(fit.pvalues[0]), float(fit.params[1]), df)
+    t = float(stdtrit(df, 0.5 + level / 2))
+    p = float(2 * stdtr(df, -abs(b0 / se0)))
+    return Regression(b0, se0, Interval(b0 - t * se0, b0 + t * se0, level), p, b1, df)
 
 
 def egger_test(y, v) -> Regression | NotEstimable:
@@ -162,13 +176,26 @@ class TrimAndFill:
                             "iterations": self.iterations})
 
 
+def _average_ranks(a):
+    """Ranks 1..n of ``a``, ties given the mean of the ranks they span (as
+    scipy.stats.rankdata's default, which the tests compare with)."""
+    order = np.argsort(a, kind="mergesort")
+    sa = a[order]
+    new = np.r_[True, sa[1:] != sa[:-1]]
+    starts = np.flatnonzero(new)
+    ends = np.r_[starts[1:], len(a)]
+    mean_rank = (starts + 1 + ends) / 2.0  # ranks starts+1 .. ends
+    ranks = np.empty(len(a))
+    ranks[order] = np.repeat(mean_rank, ends - starts)
+    return ranks
+
+
 def _k0(dev, estimator):
     """Duval & Tweedie (2000) eqs. 2-3 for studies missing on the left: ranks of |dev|;
     L0 = (4 T - n(n + 1)) / (2n - 1) with T the rank sum of positive deviations;
     R0 = γ - 1 with γ the length of the run of positive deviations at the top ranks."""
-    from scipy.stats import rankdata
     n = len(dev)
-    ranks = rankdata(np.abs(dev))
+    ranks = _average_ranks(np.abs(dev))
     if estimator == "L0":
         t = ranks[dev > 0].sum()
         return max(0, int(round((4 * t - n * (n + 1)) / (2 * n - 1))))
@@ -307,8 +334,8 @@ def selection_model(y, v, min_per_interval=MIN_PER_INTERVAL) -> SelectionModel |
     """Fit the three-parameter selection model by maximum likelihood (L-BFGS-B from several
     starting points), SE from the observed information (numerical Hessian), and the
     likelihood-ratio test against the unadjusted (ω = 1) random-effects model."""
-    from scipy import optimize, stats
-    from statsmodels.tools.numdiff import approx_hess
+    from scipy import optimize
+    from scipy.special import chdtrc
     y, v = np.asarray(y, float), np.asarray(v, float)
     k = len(y)
     sig = y > Z975 * np.sqrt(v)
@@ -361,7 +388,7 @@ def selection_model(y, v, min_per_interval=MIN_PER_INTERVAL) -> SelectionModel |
     ci: Interval | NotEstimable
     omega_se: float | NotEstimable
     try:
-        h = approx_hess(theta[free], lambda t: nll(_expand(t, theta, free)))
+        h = _hessian(lambda t: nll(_expand(t, theta, free)), theta[free])
         cov = np.linalg.inv(h)
         if not np.all(np.isfinite(cov)) or cov[0, 0] <= 0:
             raise np.linalg.LinAlgError
@@ -379,8 +406,28 @@ def selection_model(y, v, min_per_interval=MIN_PER_INTERVAL) -> SelectionModel |
     ll0 = selection_loglik(ml.mu, ml.tau2, 1.0, y, v)
     lrt = max(0.0, 2 * (ll1 - ll0))
     return SelectionModel(mu, se, ci, tau2, omega, omega_se, ll1, lrt,
-                          float(stats.chi2.sf(lrt, 1)), k, ks, kn, converged, tuple(at_bound),
+                          float(chdtrc(1, lrt)), k, ks, kn, converged, tuple(at_bound),
                           tuple(float(g) for g in grad), len(starts))
+
+
+def _hessian(f, x):
+    """Numerical Hessian of ``f`` at ``x`` by central differences of four points,
+    [f(x+h_i+h_j) - f(x+h_i-h_j) - f(x-h_i+h_j) + f(x-h_i-h_j)] / (4 h_i h_j)
+    (Abramowitz & Stegun 1964, 25.3.26-27; Ridout 2009, eq. 7), steps
+    h_i = ε^(1/4) max(|x_i|, 0.1). The same steps and formula as statsmodels' approx_hess,
+    which the tests compare with."""
+    x = np.asarray(x, float)
+    n = len(x)
+    h = np.finfo(float).eps ** 0.25 * np.maximum(np.abs(x), 0.1)
+    ee = np.diag(h)
+    hess = np.outer(h, h)
+    for i in range(n):
+        for j in range(i, n):
+            hess[i, j] = ((f(x + ee[i] + ee[j]) - f(x + ee[i] - ee[j])
+                           - (f(x - ee[i] + ee[j]) - f(x - ee[i] - ee[j])))
+                          / (4.0 * hess[i, j]))
+            hess[j, i] = hess[i, j]
+    return hess
 
 
 def _expand(t, theta, free):
@@ -413,13 +460,16 @@ class WaapWls:
 
 def _wls_mean(y, v):
     """Unrestricted WLS mean (Stanley & Doucouliagos 2015): the inverse-variance mean with a
-    multiplicative-dispersion SE, from statsmodels WLS on a constant."""
-    from scipy import stats
-    from statsmodels.regression.linear_model import WLS
-    fit = WLS(y, np.ones((len(y), 1)), weights=1 / v).fit()
-    b, se = float(fit.params[0]), float(fit.bse[0])
+    multiplicative-dispersion SE, sqrt(Σ w e² / (k - 1) / Σ w), as WLS on a constant (the
+    tests compare with statsmodels WLS)."""
+    from scipy.special import stdtrit
+    w = 1 / v
+    sw = w.sum()
+    b = float((w * y).sum() / sw)
+    e = y - b
     df = max(1, len(y) - 1)
-    t = stats.t.ppf(0.975, df)
+    se = float(math.sqrt((w * e * e).sum() / (len(y) - 1) / sw)) if len(y) > 1 else math.nan
+    t = float(stdtrit(df, 0.975))
     return b, se, Interval(b - t * se, b + t * se, 0.95)
 
 
