@@ -62,32 +62,58 @@ class ExcessSignificance:
 
 def unit_powers(units, effect, metric, alpha=0.05):
     """Power of each unit's own study to detect ``effect`` (two-sided ``alpha``), exact for its
-    design where n is known, otherwise from its SE by the normal approximation."""
+    design where n is known, otherwise from its SE by the normal approximation.
+
+    The units are grouped by how their power is computed and each group is done in one
+    vectorised call, so the audit costs about the same at k = 10 and k = 10,000."""
     from scipy.special import ndtr, ndtri
-    from .power import Design, power_at, to_design_effect
-    out = []
+    from .power import Design, _t_power, power_at, to_design_effect
     zc = float(ndtri(1 - alpha / 2))
+    units = list(units)
+    kinds, hows = [], []
     for u in units:
         if metric == "z" and u.n_total and u.n_total > 3:
-            r = max(-1 + 1e-12, min(1 - 1e-12, math.tanh(effect)))
-            p = float(power_at(r, u.n_total, "correlation", alpha))
-            how = f"correlation, n = {u.n_total:g}"
+            kinds.append(("r",))
+            hows.append(f"correlation, n = {u.n_total:g}")
         elif metric == "g" and u.design == "between" and u.n1 and u.n2:
-            p = float(power_at(effect, u.n1, Design("two-group", ratio=u.n2 / u.n1), alpha))
-            how = f"two groups, {u.n1:g} + {u.n2:g}"
+            kinds.append(("two",))
+            hows.append(f"two groups, {u.n1:g} + {u.n2:g}")
         elif metric == "g" and u.design == "between" and u.n_total and u.n_total > 3:
-            p = float(power_at(effect, u.n_total / 2, "two-group", alpha))
-            how = f"two groups, {u.n_total:g} in all"
+            kinds.append(("half",))
+            hows.append(f"two groups, {u.n_total:g} in all")
         elif metric == "g" and u.design == "within" and u.n_total and u.within_r is not None:
-            des = Design("paired", planned_r=u.within_r)
-            p = float(power_at(to_design_effect(effect, "d", des), u.n_total, des, alpha))
-            how = f"paired, n = {u.n_total:g}, r = {u.within_r:g}"
+            kinds.append(("paired", u.within_r))
+            hows.append(f"paired, n = {u.n_total:g}, r = {u.within_r:g}")
         else:
-            lam = effect / u.se
-            p = float(ndtr(lam - zc) + ndtr(-lam - zc))
-            how = "from its SE (normal approximation)"
-        out.append(StudyPower(u.label, p, how))
-    return out
+            kinds.append(("se",))
+            hows.append("from its SE (normal approximation)")
+    power = np.empty(len(units))
+    for kind in dict.fromkeys(kinds):
+        idx = [i for i, kd in enumerate(kinds) if kd == kind]
+        sub = [units[i] for i in idx]
+        if kind[0] == "r":
+            r = max(-1 + 1e-12, min(1 - 1e-12, math.tanh(effect)))
+            p = power_at(r, np.array([u.n_total for u in sub], float), "correlation", alpha)
+        elif kind[0] == "two":
+            # power_at(effect, n1, Design("two-group", ratio=n2 / n1)) for every unit at once:
+            # second group ⌈ratio n1⌉ (Design.n2's rounding), t with df = n1 + n2 - 2 and
+            # λ = d √(n1 n2 / (n1 + n2)) (Cohen 1988, ch. 2)
+            n1 = np.array([u.n1 for u in sub], float)
+            n2 = np.ceil(np.array([u.n2 for u in sub], float) / n1 * n1 - 1e-9)
+            p = _t_power(effect * np.sqrt(n1 * n2 / (n1 + n2)), n1 + n2 - 2,
+                         np.asarray(alpha, float), "two-sided")
+        elif kind[0] == "half":
+            p = power_at(effect, np.array([u.n_total for u in sub], float) / 2, "two-group",
+                         alpha)
+        elif kind[0] == "paired":
+            des = Design("paired", planned_r=kind[1])
+            p = power_at(to_design_effect(effect, "d", des),
+                         np.array([u.n_total for u in sub], float), des, alpha)
+        else:
+            lam = effect / np.array([u.se for u in sub], float)
+            p = ndtr(lam - zc) + ndtr(-lam - zc)
+        power[idx] = np.asarray(p, float).reshape(-1)
+    return [StudyPower(u.label, float(pw), how) for u, pw, how in zip(units, power, hows)]
 
 
 def literature_audit(units, effect, metric) -> LiteratureAudit:

@@ -214,9 +214,20 @@ def pooled_summary(res) -> list[str]:
     return out
 
 
+#: Above this many rows the per-study text tables of ``pooler pool`` (studies, leave one
+#: out, cumulative) print TEXT_SHOWN_ROWS chosen rows and say so; every row stays in the
+#: JSON output. Thousands of printed lines are unreadable and cost more than the analysis.
+TEXT_MAX_ROWS = 100
+TEXT_SHOWN_ROWS = 20
+_ALL_ROWS = "every row is in the --json output"
+
+
 def pooled_text(res, eff) -> str:
-    """The pooling summary that ``pooler pool`` prints."""
+    """The pooling summary that ``pooler pool`` prints (per-study tables summarised above
+    :data:`TEXT_MAX_ROWS` rows)."""
     from pathlib import Path
+
+    import numpy as np
     from ._results import estimable
     sym = "g" if res.metric == "g" else "z"
     out = [f"{Path(eff.file).name}: k = {res.k} independent samples ({eff.n_used} rows used, "
@@ -225,15 +236,33 @@ def pooled_text(res, eff) -> str:
         out.append("  estimates on the Fisher z scale; r = tanh(z) in brackets")
     out += pooled_summary(res)
     out += [f"  note: {n}" for n in res.notes]
+    k = len(res.labels)
+    shown = range(k) if k <= TEXT_MAX_ROWS else \
+        sorted(np.argsort(-np.asarray(res.weights), kind="stable")[:TEXT_SHOWN_ROWS])
     rows = []
-    for lab, y, v, w in zip(res.labels, res.effects, res.variances, res.weights):
-        se = math.sqrt(v)
-        rows.append([lab, y, _ci(y - 1.96 * se, y + 1.96 * se), 100 * w])
-    out += ["", "Studies:", text_table(["sample", sym, "95% CI", "weight %"], rows)]
+    for i in shown:
+        y, se = res.effects[i], math.sqrt(res.variances[i])
+        rows.append([res.labels[i], y, _ci(y - 1.96 * se, y + 1.96 * se), 100 * res.weights[i]])
+    title = "Studies:" if k <= TEXT_MAX_ROWS else (
+        f"Studies: the {TEXT_SHOWN_ROWS} of {k:,} with the largest weight ({_ALL_ROWS}):")
+    out += ["", title, text_table(["sample", sym, "95% CI", "weight %"], rows)]
     for title, tab in (("Leave one out:", res.leave_one_out),
                        ("Cumulative, by year:", res.cumulative)):
         out.append("")
         if isinstance(tab, tuple):
+            if len(tab) > TEXT_MAX_ROWS and title.startswith("Leave"):
+                est = getattr(res.pooled, "estimate", res.fixed.estimate)
+                pick = np.argsort(-np.abs(np.array([r.estimate for r in tab]) - est),
+                                  kind="stable")[:TEXT_SHOWN_ROWS]
+                tab = tuple(tab[i] for i in sorted(pick))
+                title = (f"Leave one out: the {TEXT_SHOWN_ROWS} of {k:,} omissions that move "
+                         f"the estimate most ({_ALL_ROWS}):")
+            elif len(tab) > TEXT_MAX_ROWS:
+                pick = np.unique(np.linspace(0, len(tab) - 1, TEXT_SHOWN_ROWS).round()
+                                 .astype(int))
+                title = (f"Cumulative, by year: {len(pick)} of {len(tab):,} steps, evenly "
+                         f"spaced ({_ALL_ROWS}):")
+                tab = tuple(tab[i] for i in pick)
             out.append(title)
             out.append(_influence_table(tab, sym))
         else:
@@ -320,8 +349,17 @@ def scenarios_text(scen, audit=None) -> str:
         out += ["", f"Literature audit: each study's power to detect the realistic {sym} = "
                     f"{a.effect:.3f} (two-sided alpha = .05): median {a.median:.2f}, "
                     f"{100 * a.share_80:.0f}% of studies at 80% or more"]
+        rows = a.rows
+        if len(rows) > TEXT_MAX_ROWS:
+            import numpy as np
+            order = np.argsort([r.power for r in rows], kind="stable")
+            pick = order[np.unique(np.linspace(0, len(rows) - 1, TEXT_SHOWN_ROWS).round()
+                                   .astype(int))]
+            out.append(f"  {len(pick)} of {len(rows):,} studies at evenly spaced ranks of "
+                       f"power, lowest first ({_ALL_ROWS}):")
+            rows = [rows[i] for i in pick]
         out.append(text_table(["study", "power", "how"],
-                              [[r.label, r.power, r.how] for r in a.rows], digits=2))
+                              [[r.label, r.power, r.how] for r in rows], digits=2))
     return "\n".join(out)
 
 

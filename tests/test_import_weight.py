@@ -36,3 +36,38 @@ def test_whole_job_loads_no_scipy_stats_statsmodels_or_pandas(args, demo_path):
     assert r.returncode == 0, r.stderr[-2000:]
     line = [x for x in r.stdout.splitlines() if x.startswith("HEAVY=")][-1]
     assert line == "HEAVY=", line
+
+
+def test_pool_text_summarises_long_tables_and_audit_powers_are_vectorised(tmp_path):
+    # above report.TEXT_MAX_ROWS studies the text tables print TEXT_SHOWN_ROWS chosen rows
+    # (largest weights; the omissions that move the estimate most; evenly spaced steps and
+    # power ranks) and say so; the audit's powers equal one power_at call per study
+    import numpy as np
+
+    from pooler import convert, read_sheet
+    from pooler.audit import unit_powers
+    from pooler.pipeline import analyse
+    from pooler.power import Design, power_at
+    from pooler.report import TEXT_MAX_ROWS, TEXT_SHOWN_ROWS, pooled_text, scenarios_text
+    rng = np.random.default_rng(3)
+    k = TEXT_MAX_ROWS + 50
+    lines = ["study,stat,value,n1,n2,year"]
+    for i in range(k):
+        n1, n2 = rng.integers(10, 120, 2)
+        lines.append(f"S{i},d,{rng.normal(0.3, 0.3):.4f},{n1},{n2},{1990 + i % 20}")
+    path = tmp_path / "invented.csv"
+    path.write_text("\n".join(lines) + "\n")
+    a = analyse(path)
+    text = pooled_text(a.pooled, a.effects)
+    assert f"the {TEXT_SHOWN_ROWS} of {k:,} with the largest weight" in text
+    assert f"the {TEXT_SHOWN_ROWS} of {k:,} omissions that move the estimate most" in text
+    loo = a.pooled.leave_one_out
+    moved = max(loo, key=lambda r: abs(r.estimate - a.pooled.pooled.estimate))
+    assert f"{moved.label} " in text
+    assert f"of {k:,} studies at evenly spaced ranks of power" in scenarios_text(a.scenarios,
+                                                                               a.audit)
+    units = convert(read_sheet(path)).units
+    rows = unit_powers(units, 0.25, "g")
+    one_by_one = [float(power_at(0.25, u.n1, Design("two-group", ratio=u.n2 / u.n1)))
+                  for u in units]
+    assert [r.power for r in rows] == one_by_one
