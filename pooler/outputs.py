@@ -41,7 +41,7 @@ def render(run, fmt: str = "png") -> dict[str, bytes]:
     from .document import build_blocks, to_html, to_markdown
     from .report import plan_csv
     if fmt not in ("png", "svg", "pdf"):
-        raise OptionError(f"`fmt` must be png, svg or pdf, not {fmt!r}")
+        raise OptionError(f"--format must be png, svg or pdf, not {fmt!r}")
     a = run.analysis
     figs = {"forest": plots.forest_plot(a.pooled, a.scenarios),
             "funnel": plots.funnel_plot(a.pooled, a.bias),
@@ -70,13 +70,12 @@ def render(run, fmt: str = "png") -> dict[str, bytes]:
 
 
 def check_out(out_dir, force: bool = False) -> Path:
-    """Refuse an ``out_dir`` that is a file, or a non-empty folder without ``force``."""
+    """Refuse an --out that is a file, or a non-empty folder without ``force``."""
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
-        raise OptionError(f"`out_dir` {out} is a file, not a folder")
+        raise OptionError(f"--out {out} is a file, not a folder")
     if out.exists() and any(out.iterdir()) and not force:
-        raise OptionError(f"`out_dir` {out} is not empty; choose another folder or add `force`",
-                          parameter="out_dir")
+        raise OptionError(f"--out {out} is not empty; choose another folder or add --force")
     return out
 
 

@@ -102,14 +102,3 @@ def test_run_serialises_the_options_it_was_given(write_sheet):
     assert {k: got[k] for k in opts.to_dict()} == opts.to_dict()
     assert res.analysis.scenarios.rule == "median" and res.analysis.scenarios.sesoi == 0.1
 
-
-def test_output_errors_name_the_parameter_in_the_library(tmp_path):
-    from pooler.outputs import check_out
-    (tmp_path / "taken").write_text("x", encoding="utf-8")
-    with pytest.raises(OptionError, match="`out_dir`") as e:
-        check_out(tmp_path)
-    assert e.value.parameter == "out_dir" and "--" not in str(e.value)
-    assert e.value.naming({"out_dir": "--out", "force": "--force"}).startswith(f"--out {tmp_path}")
-    with pytest.raises(OptionError, match="is a file") as e:
-        check_out(tmp_path / "taken")
-    assert e.value.parameter == "out_dir"
