@@ -348,18 +348,17 @@ def run_summary_text(run, paths) -> str:
 
 def stress_text(res) -> str:
     """What ``pooler stress`` prints: true power per planning rule, estimator bias and RMSE."""
-    from .simulate import RULES
-    estimators = list(res.cells[0].estimates) if res.cells else []
+    rules, estimators = list(res.rules), list(res.estimators)
     out = [f"Stress test: {res.reps} simulated literatures per cell ({res.shapes}); "
            f"n planned for {100 * res.power:g}% power, {res.design}; seed {res.seed}",
            "True power reached by the n each rule recommends: median (10th percentile); "
            "'none' = share of literatures with no positive planning effect", ""]
-    heads = ["k", "delta", "tau", "pi"] + list(RULES)
+    heads = ["k", "delta", "tau", "pi"] + rules
     rows = []
     for c in res.cells:
         s = c.summary()
         line = [c.cell.k, c.cell.delta, c.cell.tau, c.cell.pi]
-        for r in RULES:
+        for r in rules:
             v = s["rules"][r]
             cell = ("-" if v["median_power"] is None else
                     f"{v['median_power']:.2f} ({v['p10_power']:.2f})")

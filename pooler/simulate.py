@@ -219,6 +219,16 @@ class StressResult:
     design: str
     power: float
 
+    @property
+    def rules(self) -> tuple[str, ...]:
+        """The planning rules evaluated, in order."""
+        return tuple(self.cells[0].true_power) if self.cells else RULES
+
+    @property
+    def estimators(self) -> tuple[str, ...]:
+        """The estimators whose bias and RMSE were measured, in order."""
+        return tuple(self.cells[0].estimates) if self.cells else ()
+
     def to_dict(self) -> dict:
         return to_jsonable({"schema": "pooler.stress/1", "reps": self.reps, "seed": self.seed,
                             "shapes": self.shapes, "design": self.design, "power": self.power,
