@@ -313,6 +313,15 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
         check_positive_definite(values, variables, s, file=file)
         matrices[s] = correlation_matrix(values, variables).tolist()
         designs[s] = design_from_correlations(design_name, values)
+    base = designs["optimistic"].true_values()
+    for s in SCENARIOS[1:]:
+        flips = [k for k, v in designs[s].true_values().items()
+                 if k.count("-") == 1 and base[k] * v < 0 and abs(v) > 0.01]
+        if flips:
+            notes.append(f"in the {s} scenario the standardized path(s) {', '.join(flips)} "
+                         "change sign against the optimistic one: the paths are partial "
+                         "coefficients, so lowering the correlations together can reverse or "
+                         "even raise a path; read each scenario's paths before its n")
     return PathSheet(file, sheet.sha256, design_name, variables, tuple(out), matrices,
                      designs, tuple(notes))
 
