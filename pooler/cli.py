@@ -718,6 +718,10 @@ def template(path, force):
               help="The values in --paths-file are correlations between the named variables "
                    "(X-M1, M1-Y, X-Y, M1-M2, ...; every pair), e.g. pooled from literatures; "
                    "the paths are the standardized coefficients they imply. Mediation only.")
+@click.option("--pair", "pair_values", multiple=True, metavar="PAIR=R",
+              help="With a SHEET: the correlation of a pair that has no rows, e.g. "
+                   "--pair X-M2=0.2 (any pair of the model; repeatable; used in every "
+                   "scenario).")
 @click.option("--test", "test_name", default=None,
               type=click.Choice(["joint", "monte-carlo", "bootstrap", "sobel"]),
               help="Test of the indirect effects [default: monte-carlo]; sobel only for "
@@ -750,7 +754,7 @@ def template(path, force):
 @_json_option
 def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
               interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
-              binary_moderator, paths_file, as_correlations, test_name, fixed_n, powers, alpha, reps, draws,
+              binary_moderator, paths_file, as_correlations, pair_values, test_name, fixed_n, powers, alpha, reps, draws,
               resamples, seed, workers, scheduler, out_dir, fmt, force, as_json):
     """Sample size (or power) for mediation and moderation, by simulation.
 
@@ -826,6 +830,9 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
              "X-Y": "--x-effect, or --slope-high and --slope-low",
              "XZ-Y": "--interaction, or --slope-high and --slope-low"}
     ps = None
+    if pair_values and not sheet:
+        raise OptionError("--pair gives a pair's correlation for a SHEET of path literatures; "
+                          "without one, give the paths with --a, --b, --direct, ...")
     if sheet:
         from .pathsheet import pool_paths
         if design_name == "moderation":
@@ -853,6 +860,21 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
             pairs["X-Y"], names["X-Y"] = direct, "--direct (r of X and Y)"
         if m1_m2 is not None:
             pairs["M1-M2"], names["M1-M2"] = m1_m2, "--m1-m2 (r of M1 and M2)"
+        from .pathsheet import split_path
+        for text in pair_values:
+            key, eq, val = text.partition("=")
+            pr = split_path(key)
+            try:
+                r = float(val) if eq else None
+            except ValueError:
+                r = None
+            if pr is None or r is None:
+                raise OptionError(f"--pair {text!r}: write a pair and its correlation, "
+                                  "e.g. --pair X-M2=0.2")
+            k = "-".join(pr)
+            if k in pairs or "-".join(pr[::-1]) in pairs:
+                raise OptionError(f"--pair {text!r}: the pair {k} is given twice")
+            pairs[k], names[k] = r, f"--pair {text}"
         ps = pool_paths(sheet, design_name, pairs, option_names=names)
         scenarios = dict(ps.designs)
     elif as_correlations:

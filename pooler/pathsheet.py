@@ -287,7 +287,8 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
             raise InputError(f"the path {pair} has no rows to pool"
                              + (" (only excluded ones)" if recs else "")
                              + "; add rows for it"
-                             + (f" or give its correlation with {hint}" if hint else ""),
+                             + f" or give its correlation with "
+                             + (f"{hint} or " if hint else "") + f"--pair {pair}=R",
                              file=file, column=col)
         sub = replace(sheet, records=tuple(recs))
         a = analyse(sub, metric="r", sample_r=sample_r, estimator=estimator, interval=interval,

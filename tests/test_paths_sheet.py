@@ -194,7 +194,8 @@ def test_cli_fixed_n_with_a_sheet_gives_power_per_scenario():
     ([["A", "X", "r", 0.3, 100]], [], "is not a pair of two variables", 2, "path"),
     ([["A", "", "r", 0.3, 100]], [], "'path' is empty", 2, "path"),
     ([["A", "X-M", "r", 0.3, 100], ["B", "M-Y", "r", 0.3, 100]], [],
-     "the path X-Y has no rows to pool; add rows for it or give its correlation with --direct",
+     "the path X-Y has no rows to pool; add rows for it or give its correlation with "
+     "--direct or --pair X-Y=R",
      None, "path"),
     ([["A", "X-M", "r", 0.3, 100], ["B", "M-Y", "r", 0.3, 100], ["C", "X-Y", "r", 0.1, 90]],
      ["--a", "0.2"], "the path X-M has rows in the sheet (rows 2) and is also given as --a",
@@ -224,3 +225,22 @@ def test_sheet_mistakes_in_options_exit_2(tmp_path):
     assert res.exit_code == 2 and "mediation designs" in res.output
     res = run(main, ["paths", str(s), "--design", "parallel-mediation", "--mediator-r", "0.2"])
     assert res.exit_code == 2 and "--mediator-r does not apply" in res.output
+
+
+def test_serial_sheet_with_pairs_given_by_pair(tmp_path):
+    """Pairs may be written in either order and with an arrow; --pair fills any pair."""
+    from click.testing import CliRunner
+    from pooler.cli import main
+    s = _write(tmp_path / "serial.csv", ["study", "path", "stat", "value", "n", "df", "predictors"],
+               [["A", "X-M1", "r", 0.35, 200, "", ""], ["B", "M1->X", "coef_t", 4.1, "", 150, 1],
+                ["C", "M1-M2", "r", 0.4, 180, "", ""], ["D", "M2-Y", "coef_t", 3.2, "", 170, 3],
+                ["E", "Y-M2", "r", 0.3, 120, "", ""]])
+    res = CliRunner().invoke(main, ["paths", str(s), "--design", "serial-mediation",
+                                    "--pair", "X-M2=0.1", "--pair", "M1-Y=0.2", "--direct", "0.1",
+                                    "--test", "joint", "--reps", "200", "--n", "200"])
+    assert res.exit_code == 0, res.output
+    assert "--pair X-M2=0.1" in res.output and "rows 2, 3" in res.output
+    assert res.output.count("n = 200") == 3
+    bad = CliRunner().invoke(main, ["paths", str(s), "--design", "serial-mediation",
+                                    "--pair", "X-M2:0.1"])
+    assert bad.exit_code == 2 and "e.g. --pair X-M2=0.2" in bad.output
