@@ -361,10 +361,11 @@ def check_positive_definite(values: dict, variables: tuple, scenario: str = "",
 
     Examples
     --------
-    >>> check_positive_definite({"X-M": 0.9, "M-Y": 0.9, "X-Y": -0.5}, ("X", "M", "Y"))
+    >>> check_positive_definite({"X-M": 0.9, "M-Y": 0.9, "X-Y": -0.5},
+    ...                         ("X", "M", "Y"))  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    pooler.errors.InputError: the correlations X-M = 0.900, X-Y = -0.500, M-Y = 0.900 cannot occur together (their matrix is not positive definite); pooled values of separate literatures can conflict like this: check those paths' rows, or plan on other values for them
+    pooler.errors.InputError: the correlations X-M = 0.900, X-Y = -0.500, M-Y = 0.900 cannot...
     """
     import numpy as np
     mat = correlation_matrix(values, variables)
@@ -380,9 +381,8 @@ def check_positive_definite(values: dict, variables: tuple, scenario: str = "",
             break
     groups = []
     for sub in bad:
-        pairs = [f"{variables[i]}-{variables[j]}" for i, j in itertools.combinations(sub, 2)]
-        groups.append(", ".join(f"{p} = {mat[variables.index(p.split('-')[0]), variables.index(p.split('-')[1])]:.3f}"
-                                for p in pairs))
+        groups.append(", ".join(f"{variables[i]}-{variables[j]} = {mat[i, j]:.3f}"
+                                for i, j in itertools.combinations(sub, 2)))
     lead = f"{scenario} scenario: " if scenario else ""
     raise InputError(f"{lead}the correlations {'; and '.join(groups)} cannot occur together "
                      "(their matrix is not positive definite); pooled values of separate "
