@@ -876,6 +876,7 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
                 raise OptionError(f"--pair {text!r}: the pair {k} is given twice")
             pairs[k], names[k] = r, f"--pair {text}"
         ps = pool_paths(sheet, design_name, pairs, option_names=names)
+        _echo_warnings(ps.warnings)
         scenarios = dict(ps.designs)
     elif as_correlations:
         if not paths_file:

@@ -105,6 +105,12 @@ class PathSheet:
     designs: dict
     notes: tuple = ()
 
+    @property
+    def warnings(self) -> tuple:
+        """The conversion warnings of every path's rows (duplicates, disagreeing numbers)."""
+        return tuple(w for p in self.paths if p.analysis is not None
+                     for w in p.analysis.effects.warnings)
+
     def __getitem__(self, path: str) -> PathValues:
         for p in self.paths:
             if p.path == path:

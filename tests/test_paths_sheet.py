@@ -244,3 +244,15 @@ def test_serial_sheet_with_pairs_given_by_pair(tmp_path):
     bad = CliRunner().invoke(main, ["paths", str(s), "--design", "serial-mediation",
                                     "--pair", "X-M2:0.1"])
     assert bad.exit_code == 2 and "e.g. --pair X-M2=0.2" in bad.output
+
+
+def test_conversion_warnings_of_each_path_are_shown(tmp_path):
+    from click.testing import CliRunner
+    from pooler.cli import main
+    s = _write(tmp_path / "dup.csv", ["study", "path", "stat", "value", "n"],
+               [["A", "X-M", "r", 0.3, 100], ["A", "X-M", "r", 0.3, 100],
+                ["B", "M-Y", "r", 0.3, 100], ["C", "X-Y", "r", 0.2, 100]])
+    res = CliRunner().invoke(main, ["paths", str(s), "--design", "simple-mediation",
+                                    "--test", "joint", "--reps", "100", "--n", "100"])
+    assert res.exit_code == 0, res.output
+    assert "row 3 repeats row 2" in res.output
