@@ -61,8 +61,9 @@ def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="re
     from .effects import convert
     from .pooling import pool
     from .scenarios import make_scenarios
-    from .sheet import read_sheet
-    sheet = read_sheet(sheet_path)
+    from .sheet import Sheet, read_sheet
+    # a Sheet already read (e.g. one path's rows of a path sheet) is analysed as it is
+    sheet = sheet_path if isinstance(sheet_path, Sheet) else read_sheet(sheet_path)
     effects = convert(sheet, metric, within_r=within_r, sample_r=sample_r)
     say("pooling (with leave-one-out)")
     pooled = pool(effects, estimator, interval)
