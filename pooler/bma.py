@@ -366,6 +366,7 @@ def _fit_model(model, d, dims, fixed_mu, fixed_tau, pr, resolution):
         return _Grid((), (), np.ones(()), ll, 0.0)
     sd = pr.effect_sd
     box = [(-8.0 * sd, 8.0 * sd) if dm.kind == "mu" else (0.0, 1.0) for dm in dims]
+    init_box = list(box)
     n_pilot = {1: 48, 2: 24, 3: 12, 4: 8}[nd]
     for _ in range(16):
         nodes, hs = zip(*(_pilot_nodes(lo, hi, n_pilot) for lo, hi in box))
@@ -394,13 +395,107 @@ def _fit_model(model, d, dims, fixed_mu, fixed_tau, pr, resolution):
         box = new
         if not shrunk:
             break
-    # final pass
+    # the coarse pass can miss a narrow ridge (μ and ω are strongly correlated in the
+    # selection models of large literatures): climb from its best point to the mode and
+    # make the box hold the mode ± 8 Laplace standard deviations as well
+    best = np.unravel_index(int(np.argmax(lp)), lp.shape)
+    start = np.array([nodes[i][best[i]] for i in range(nd)])
+    box = _hold_mode(model, d, dims, fixed_mu, fixed_tau, sd, start, box, init_box)
+    # final pass; then, if its masses show the posterior occupies much less of the box (or
+    # reaches its edge), once more on the box its masses call for
     n_mu, n_u = _FINAL_NODES[nd]
     # small literatures get finer grids (cheap there, and their posteriors are the least
     # regular); large ones keep the floor, where the posterior is close to normal
     room = _NODE_BUDGET / (len(d.y) * n_mu * n_u ** (nd - 1))
     f = min(2.5, max(1.0, room ** (1 / nd)))
     n_mu, n_u = int(round(n_mu * f * resolution)), int(round(n_u * f * resolution))
+    for attempt in range(3):
+        grid, new_box = _final_pass(model, d, dims, fixed_mu, fixed_tau, sd, box, init_box,
+                                    n_mu, n_u)
+        widths = [(b[1] - b[0]) / (a[1] - a[0]) for a, b in zip(box, new_box)]
+        if all(0.5 < w <= 1.0 + 1e-12 for w in widths):
+            break
+        box = new_box
+    return grid
+
+
+def _hold_mode(model, d, dims, fixed_mu, fixed_tau, sd, start, box, init_box):
+    """Widen ``box`` to hold the posterior mode ± 8 standard deviations (from the Hessian).
+
+    The mode is found by damped Newton steps whose gradient and Hessian come from central
+    differences on a 3 × ... × 3 stencil, evaluated in one vectorised call per step.
+    """
+    nd = len(dims)
+    lo_b = np.array([a if dm.kind == "mu" else a + 1e-9 for (a, _), dm in zip(init_box, dims)])
+    hi_b = np.array([b if dm.kind == "mu" else b - 1e-9 for (_, b), dm in zip(init_box, dims)])
+    widths = np.array([b - a for a, b in box])
+    h = np.maximum(1e-4 * (hi_b - lo_b), 1e-3 * widths)
+
+    def logpost(grid_nodes):
+        val = _evaluate(model, d, dims, grid_nodes, fixed_mu, fixed_tau)
+        if dims[0].kind == "mu":
+            shp = [1] * nd
+            shp[0] = len(grid_nodes[0])
+            val = val + _log_prior_mu(grid_nodes[0], sd).reshape(shp)
+        return np.where(np.isfinite(val), val, -np.inf)
+
+    def point(x):
+        return float(logpost([np.array([xi]) for xi in x]).reshape(-1)[0])
+
+    x = np.clip(start, lo_b + h, hi_b - h)
+    fx = point(x)
+    hess = None
+    for _ in range(30):
+        x = np.clip(x, lo_b + h, hi_b - h)
+        f = logpost([np.array([xi - hi, xi, xi + hi]) for xi, hi in zip(x, h)])
+        if not np.all(np.isfinite(f)):
+            break
+        c = (1,) * nd
+        g = np.empty(nd)
+        hess = np.empty((nd, nd))
+        for i in range(nd):
+            up, dn = list(c), list(c)
+            up[i], dn[i] = 2, 0
+            g[i] = (f[tuple(up)] - f[tuple(dn)]) / (2 * h[i])
+            hess[i, i] = (f[tuple(up)] - 2 * f[c] + f[tuple(dn)]) / h[i] ** 2
+            for j in range(i + 1, nd):
+                pp, pm, mp, mm = list(c), list(c), list(c), list(c)
+                pp[i], pp[j], pm[i], pm[j] = 2, 2, 2, 0
+                mp[i], mp[j], mm[i], mm[j] = 0, 2, 0, 0
+                hess[i, j] = hess[j, i] = (f[tuple(pp)] - f[tuple(pm)] - f[tuple(mp)]
+                                           + f[tuple(mm)]) / (4 * h[i] * h[j])
+        try:
+            if np.any(np.linalg.eigvalsh(hess) >= 0):
+                raise np.linalg.LinAlgError
+            step = -np.linalg.solve(hess, g)
+        except np.linalg.LinAlgError:
+            step = g * (0.1 * widths) / max(1e-300, float(np.max(np.abs(g * widths))))
+        moved = False
+        for _t in range(12):
+            xn = np.clip(x + step, lo_b, hi_b)
+            fn = point(xn)
+            if fn >= fx:
+                moved = np.any(np.abs(xn - x) > 1e-7 * widths)
+                x, fx = xn, fn
+                break
+            step = step / 3
+        if not moved:
+            break
+    try:
+        if hess is None:
+            raise np.linalg.LinAlgError
+        cov = np.linalg.inv(-hess)
+        if not np.all(np.isfinite(cov)) or np.any(np.diag(cov) <= 0):
+            raise np.linalg.LinAlgError
+        sds = np.sqrt(np.diag(cov))
+    except np.linalg.LinAlgError:
+        sds = widths / 2
+    return [(max(a, min(lo, x[i] - 8 * sds[i])), min(b, max(hi, x[i] + 8 * sds[i])))
+            for i, ((lo, hi), (a, b)) in enumerate(zip(box, init_box))]
+
+
+def _final_pass(model, d, dims, fixed_mu, fixed_tau, sd, box, init_box, n_mu, n_u):
+    nd = len(dims)
     nodes, weights = [], []
     for (lo, hi), dm in zip(box, dims):
         if dm.kind == "mu":
@@ -423,9 +518,25 @@ def _fit_model(model, d, dims, fixed_mu, fixed_tau, pr, resolution):
     mass = np.exp(lt - m)
     z = mass.sum()
     log_ml = float(m + math.log(z))
+    mass = mass / z
+    # the box these masses call for: drop at most _TAIL in each tail, one node beyond
+    new_box = []
+    for i, ((lo, hi), (a, b)) in enumerate(zip(box, init_box)):
+        ax = tuple(j for j in range(nd) if j != i)
+        marg = mass.sum(axis=ax) if ax else mass
+        cum = np.cumsum(marg)
+        i_lo = int(np.searchsorted(cum, _TAIL))
+        i_hi = min(int(np.searchsorted(cum, 1 - _TAIL)), len(cum) - 1)
+        x = nodes[i]
+        gap_lo = x[min(i_lo + 1, len(x) - 1)] - x[i_lo] if len(x) > 1 else 0.0
+        gap_hi = x[i_hi] - x[max(i_hi - 1, 0)] if len(x) > 1 else 0.0
+        nlo = x[i_lo] - 2 * gap_lo if i_lo > 0 else lo - (0.5 * (hi - lo) if lo > a else 0.0)
+        nhi = x[i_hi] + 2 * gap_hi if i_hi < len(x) - 1 else hi + (0.5 * (hi - lo)
+                                                                     if hi < b else 0.0)
+        new_box.append((max(a, nlo), min(b, nhi)))
     values = tuple(x if dm.kind == "mu" else dm.to_value(x) for x, dm in zip(nodes, dims))
     mu_step = float(nodes[0][1] - nodes[0][0]) if dims[0].kind == "mu" else 0.0
-    return _Grid(tuple(dm.name for dm in dims), values, mass / z, log_ml, mu_step)
+    return _Grid(tuple(dm.name for dm in dims), values, mass, log_ml, mu_step), new_box
 
 
 # ------------------------------------------------------------------ results
@@ -850,3 +961,112 @@ def _coarsen(x, m, most):
     loc = np.where(tot > 0, (w * xs).sum(axis=1) / np.where(tot > 0, tot, 1.0),
                    xs.mean(axis=1))
     return loc, ms.sum(axis=1)
+
+
+# ------------------------------------------------------------------ planning scenarios
+
+#: Below this inclusion Bayes factor for an effect the posterior favours no effect
+#: (1/3: "moderate" evidence for the null on the conventional scale of Jeffreys 1961, as
+#: labelled by Lee & Wagenmakers 2013; common practice). With prior P(effect) = ½ it means
+#: P(effect | data) < ¼, hence P(μ > 0 | data) < ¼.
+NULL_BF = 1 / 3
+
+
+@dataclass(frozen=True)
+class PosteriorScenarios:
+    """Planning effects from the model-averaged posterior, on the literature's metric.
+
+    Attributes
+    ----------
+    realistic : float
+        Posterior median of μ given μ > 0.
+    pessimistic : float
+        The ``pessimistic_quantile`` of μ given μ > 0, raised to the SESOI when one is given,
+        never above the realistic effect.
+    interval : Interval
+        Credible interval of μ given μ > 0 (the realistic effect's interval).
+    p_positive, bf_effect : float
+        P(μ > 0 | data) and the inclusion Bayes factor for an effect.
+    favours_null : bool
+        True when the inclusion Bayes factor for an effect is below ``null_bf``.
+    """
+
+    realistic: float
+    pessimistic: float
+    interval: Interval
+    p_positive: float
+    bf_effect: float | NotEstimable
+    favours_null: bool
+    pessimistic_quantile: float
+    sesoi: float | None
+    basis_realistic: str
+    basis_pessimistic: str
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"realistic": self.realistic, "pessimistic": self.pessimistic,
+                            "interval": self.interval, "p_positive": self.p_positive,
+                            "bf_effect": self.bf_effect, "favours_null": self.favours_null,
+                            "pessimistic_quantile": self.pessimistic_quantile,
+                            "sesoi": self.sesoi})
+
+
+def posterior_scenarios(avg: ModelAverage, *, pessimistic_quantile: float = 0.25,
+                        sesoi: float | None = None, level: float = 0.95,
+                        null_bf: float = NULL_BF) -> PosteriorScenarios:
+    """Realistic and pessimistic planning effects from a :class:`ModelAverage`.
+
+    Parameters
+    ----------
+    avg : ModelAverage
+    pessimistic_quantile : float
+        Quantile of μ given μ > 0 used as the pessimistic effect (0.25 by default; lower is
+        more protective and costs more participants).
+    sesoi : float, optional
+        Smallest effect size of interest on the literature's metric: the pessimistic effect
+        is never below it.
+    level : float
+        Credible level of the realistic interval.
+    null_bf : float
+        Inclusion Bayes factor for an effect below which the posterior favours no effect.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> y = np.array([0.42, 0.18, 0.55, 0.31, 0.08, 0.47])   # invented
+    >>> v = np.array([0.040, 0.031, 0.062, 0.045, 0.028, 0.051])
+    >>> sc = posterior_scenarios(model_average(y, v))
+    >>> 0 < sc.pessimistic < sc.realistic
+    True
+    """
+    # validation
+    if not isinstance(avg, ModelAverage):
+        raise OptionError("`avg` must be a pooler.bma.ModelAverage")
+    if not 0 < pessimistic_quantile <= 0.5:
+        raise OptionError("`pessimistic_quantile` must lie in (0, 0.5], not "
+                          f"{pessimistic_quantile!r}")
+    if sesoi is not None and not (sesoi > 0 and math.isfinite(sesoi)):
+        raise OptionError(f"`sesoi` must be a positive effect, not {sesoi!r}")
+    if not 0 < level < 1:
+        raise OptionError(f"`level` must lie in (0, 1), not {level!r}")
+    if avg.p_positive <= 0:
+        raise OptionError("the posterior puts no mass on a positive effect")
+    real = avg.mu_quantile(0.5, positive=True)
+    pess = avg.mu_quantile(pessimistic_quantile, positive=True)
+    basis_p = (f"{100 * pessimistic_quantile:g}th percentile of the model-averaged posterior "
+               "of the mean effect given a positive effect")
+    if sesoi is not None and pess < sesoi:
+        pess = sesoi
+        basis_p += "; raised to the smallest effect size of interest"
+    if pess > real:
+        pess = real
+        basis_p += "; lowered to the realistic effect"
+    lo = avg.mu_quantile((1 - level) / 2, positive=True)
+    hi = avg.mu_quantile((1 + level) / 2, positive=True)
+    bf = avg.inclusion_bf["effect"]
+    favours_null = isinstance(bf, float) and bf < null_bf
+    return PosteriorScenarios(
+        real, pess, Interval(lo, hi, level), avg.p_positive, bf, favours_null,
+        pessimistic_quantile, sesoi,
+        f"posterior median of the mean effect given a positive effect, averaged over "
+        f"{len(avg.models)} publication-bias models (P(effect > 0) = {avg.p_positive:.2f})",
+        basis_p)
