@@ -988,7 +988,8 @@ class PosteriorScenarios:
     p_positive, bf_effect : float
         P(μ > 0 | data) and the inclusion Bayes factor for an effect.
     favours_null : bool
-        True when the inclusion Bayes factor for an effect is below ``null_bf``.
+        True when the posterior favours no positive effect: the inclusion Bayes factor for
+        an effect is below ``null_bf``, or P(μ < 0 | data) > ½ (a negative effect).
     """
 
     realistic: float
@@ -1008,6 +1009,11 @@ class PosteriorScenarios:
                             "bf_effect": self.bf_effect, "favours_null": self.favours_null,
                             "pessimistic_quantile": self.pessimistic_quantile,
                             "sesoi": self.sesoi})
+
+
+def _atom(avg) -> float:
+    """Posterior probability of μ = 0 exactly (the models without an effect)."""
+    return float(avg._mu_cdf[2])
 
 
 def posterior_scenarios(avg: ModelAverage, *, pessimistic_quantile: float = 0.25,
@@ -1063,7 +1069,8 @@ def posterior_scenarios(avg: ModelAverage, *, pessimistic_quantile: float = 0.25
     lo = avg.mu_quantile((1 - level) / 2, positive=True)
     hi = avg.mu_quantile((1 + level) / 2, positive=True)
     bf = avg.inclusion_bf["effect"]
-    favours_null = isinstance(bf, float) and bf < null_bf
+    p_negative = float(avg.mu_cdf(0.0)) - _atom(avg)
+    favours_null = (isinstance(bf, float) and bf < null_bf) or p_negative > 0.5
     return PosteriorScenarios(
         real, pess, Interval(lo, hi, level), avg.p_positive, bf, favours_null,
         pessimistic_quantile, sesoi,

@@ -208,11 +208,13 @@ def _scenario_options(f):
                                                        hint="a two-sided level, e.g. 0.6"),
                      help="Two-sided level of the safeguard interval for the pessimistic "
                           "scenario (Perugini et al. 2014).")(f)
-    f = click.option("--adjuster", type=click.Choice(["default", "median", "3psm", "pet-peese",
-                                                      "trim-and-fill", "waap-wls"]),
+    f = click.option("--adjuster", type=click.Choice(["default", "safeguard", "median", "3psm",
+                                                      "pet-peese", "trim-and-fill", "waap-wls"]),
                      default="default", show_default=True,
-                     help="How the realistic scenario is chosen: the default rule, the "
-                          "safeguard limit of the median of the adjusters, or one adjuster.")(f)
+                     help="How the realistic scenario is chosen: the default Bayesian model "
+                          "average over publication-bias models, the earlier safeguard rule, "
+                          "the safeguard limit of the median of the adjusters, or one "
+                          "adjuster.")(f)
     return f
 
 

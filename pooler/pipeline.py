@@ -28,6 +28,8 @@ class Analysis:
         bias["excess_significance"] = to_jsonable(self.scenarios.excess_significance)
         doc["bias"] = bias
         doc["scenarios"] = self.scenarios.to_dict()
+        if "model_average" in doc["scenarios"]:
+            doc["model_average"] = doc["scenarios"].pop("model_average")
         weight = {}
         for u, w in zip(self.effects.units, self.pooled.weights):
             for r in u.rows:
