@@ -202,7 +202,11 @@ def _pooling_options(f):
 def _scenario_options(f):
     f = click.option("--sesoi", type=float, default=None, callback=_positive,
                      help="Smallest effect size of interest (d, or r): the pessimistic scenario "
-                          "never goes below it.")(f)
+                          "never goes below it, and it is the plan when the literature's "
+                          "posterior favours no positive effect. Choose it before looking at "
+                          "the literature: the smallest effect that would matter in practice "
+                          "or to your theory, or the effect the earlier studies could just "
+                          "have detected (Lakens, Scheel & Isager 2018).")(f)
     f = click.option("--safeguard", "safeguard_level", type=float, default=0.6,
                      show_default=True, callback=_fraction(0, 1, percent=True,
                                                        hint="a two-sided level, e.g. 0.6"),

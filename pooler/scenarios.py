@@ -405,7 +405,7 @@ def posterior_rule(effects, pooled, optimistic, *, sesoi_m, sesoi, safeguard_lev
     realistic = the posterior median of the mean effect given a positive effect; its interval
     the credible interval; pessimistic = the ``pessimistic_quantile`` of the same posterior,
     never below the SESOI, never above the realistic effect. When the inclusion Bayes factor
-    for an effect is below 1/3, or P(effect < 0) > ½, the posterior favours no positive
+    for an effect is below 1/10, or P(effect < 0) > ½, the posterior favours no positive
     effect: the verdict says so and, with a SESOI, both scenarios plan on it.
     """
     from .bma import DEFAULT_PRIORS, WIDE_PRIORS, model_average, posterior_scenarios

@@ -143,7 +143,7 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
     eff = _effects_for(y, v, idx, shapes)
     pooled = pool(eff, influence=False)
     bias = bias_suite(pooled)
-    sc = make_scenarios(eff, pooled, bias)
+    sc = make_scenarios(eff, pooled, bias, sensitivity=False)
     adj = bias.adjusted()
     est = {"random effects": pooled.mu,
            "selection model": adj.get("selection model", (math.nan,))[0],

@@ -253,7 +253,7 @@ def test_bad_options_are_refused():
 
 
 def test_fisher_z_priors_are_the_d_priors_rescaled():
-    # z ≈ d/2 near 0 (d = 2r/√(1 - r²), z = atanh r; Borenstein et al. 2009, eq. 7.5)
+    # z ≈ d/2 near 0 (d = 2r/√(1 - r²), z = atanh r; Borenstein et al. 2009, ch. 7)
     z = DEFAULT_PRIORS.on_metric("z")
     assert (z.effect_sd, z.tau_scale, z.pet_scale, z.peese_scale) == (0.5, 0.075, 1.0, 10.0)
     assert DEFAULT_PRIORS.on_metric("g") is DEFAULT_PRIORS
