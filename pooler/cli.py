@@ -421,7 +421,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
                             safeguard_level, sesoi)
         sc = analysis.scenarios
         scen = sc.planning_effects()
-        predictive = sc.predictive if isinstance(sc.predictive, tuple) else None
+        predictive = sc.assurance_density()
         pmetric = sc.planning_metric
         label = "g" if pmetric == "d" else "r"
     elif effects:

@@ -113,7 +113,9 @@ def plan_text(plan) -> str:
             out.append(f"  {a}")
         else:
             scale = "Fisher z" if a.metric in ("r", "z") else "d"
-            out.append(f"  true effect ~ Normal({a.mean:.3f}, {a.sd:.3f}^2) on the {scale} scale; "
+            dist = (f"Normal({a.mean:.3f}, {a.sd:.3f}^2)" if getattr(a, "form", "normal") == "normal"
+                    else f"the tabulated predictive (mean {a.mean:.3f}, SD {a.sd:.3f})")
+            out.append(f"  true effect ~ {dist} on the {scale} scale; "
                        f"ceiling P(effect > 0) = {a.ceiling:.3f}")
             arows, why = [], []
             for t, n, nt, got in zip(a.targets, a.n, a.n_total, a.achieved):

@@ -148,6 +148,18 @@ class Scenarios:
         z = float(ndtri(0.5 + level / 2))
         return Interval(self.realistic.effect - z * se, self.realistic.effect + z * se, level)
 
+    def assurance_density(self):
+        """The predictive distribution of a new study's true effect for assurance: under the
+        model-average rule the model-averaged posterior predictive, tabulated
+        (:func:`predictive_effect_density`); otherwise Normal(mean, sd²); None when there is
+        none."""
+        from .power import EffectDensity
+        if self.posterior is not None:
+            return predictive_effect_density(self.posterior)
+        if isinstance(self.predictive, tuple):
+            return EffectDensity.normal(*self.predictive, metric=self.metric)
+        return None
+
     @property
     def planning_metric(self) -> str:
         return "d" if self.metric == "g" else "r"
@@ -517,3 +529,35 @@ def assurance_over_table(nodes, probs, n, design="two-group", alpha=0.05,
     eff = to_design_effect(nodes, metric, des)
     p = power_at(eff[:, None], n.reshape(1, -1), des, alpha, alternative, upper_only=True)
     return (probs[:, None] * p).sum(axis=0).reshape(n.shape)
+
+
+def predictive_effect_density(avg):
+    """The model-averaged posterior predictive of a new study's true effect as a
+    :class:`pooler.power.EffectDensity` (piecewise linear through the cell densities).
+
+    The posterior mass at exactly 0 (the models with neither an effect nor heterogeneity)
+    cannot be a density; it is spread as a thin triangle just below 0 (between the last two
+    nodes below 0), so P(effect > 0) - the assurance ceiling - stays exact and the power it
+    adds is that of an effect within two grid cells below 0 (about alpha/2 at most).
+    """
+    from .power import EffectDensity
+    x, f = avg.predictive_density()
+    x, f = np.asarray(x, float), np.asarray(f, float)
+    atom = float(avg.predictive_atom)
+    if atom > 0:
+        h = float(x[1] - x[0])
+        f0 = float(np.interp(0.0, x, f, left=0.0, right=0.0))
+        keep = np.abs(x) > 1e-9 * h
+        x, f = x[keep], f[keep]
+        neg, pos = x < 0, x > 0
+        xn, fn = x[neg], f[neg]
+        if xn.size < 2:  # make room below 0 for the triangle
+            xn = np.concatenate([[-2 * h, -h][:2 - xn.size], xn])
+            fn = np.concatenate([np.zeros(2 - fn.size), fn])
+        # raising the last node below 0 by b adds b (0 - x_{j-1}) / 2 of mass, all below 0
+        fn = fn.copy()
+        fn[-1] += 2 * atom / (0.0 - xn[-2])
+        x = np.concatenate([xn, [0.0], x[pos]])
+        f = np.concatenate([fn, [f0], f[pos]])
+    metric = "z" if avg.metric == "z" else "d"
+    return EffectDensity.from_grid(x, f, metric=metric)

@@ -294,3 +294,23 @@ def test_identical_on_every_run():
     y, v = _literature(rng, 7, 0.3, 0.1, 0.5)
     a, b = model_average(y, v), model_average(y, v)
     assert a.mu == b.mu and a.p_positive == b.p_positive
+
+
+def test_assurance_over_the_model_averaged_predictive():
+    # O'Hagan, Stevens & Campbell (2005): assurance = E[power(θ)] over the predictive of θ.
+    # The EffectDensity built for pooler.power.assurance_over must agree with the plain sum
+    # Σ p_j power(θ_j) over the tabulated predictive (cells plus the mass at exactly 0)
+    from pooler.power import assurance_over
+    from pooler.scenarios import assurance_over_table, predictive_effect_density
+    rng = np.random.default_rng(15)
+    y, v = rng.normal(0.2, 0.25, 6), rng.uniform(0.03, 0.08, 6)
+    res = model_average(y, v)
+    assert res.predictive_atom > 0.05          # the no-effect, no-heterogeneity models count
+    dens = predictive_effect_density(res)
+    grid = np.linspace(dens.lower, dens.upper, 20001)
+    assert np.trapezoid(dens.pdf(grid), grid) == pytest.approx(1.0, abs=1e-3)
+    x, p = res.predictive_points()
+    assert dens.ceiling == pytest.approx(p[x > 0].sum(), abs=0.03)
+    for n in (20, 100, 400):
+        assert float(assurance_over(dens, n)) == pytest.approx(
+            float(assurance_over_table(x, p, np.array([n]))[0]), abs=0.006)
