@@ -5,6 +5,8 @@ with ``to_frame()`` and ``to_dict()``)::
 
     read_sheet  (pooler.sheet)    file -> Sheet
     convert     (pooler.effects)  Sheet -> Effects (one metric, variance per row)
+    pool        (pooler.pooling)  Effects -> PooledResult (carrying its studies)
+    bias_suite  (pooler.bias)     PooledResult -> BiasResult (every registered bias method)
 
 Names are imported lazily so that ``import pooler`` and ``pooler --help`` stay fast.
 """
@@ -18,6 +20,10 @@ _API = {
     "convert": "pooler.effects",
     "Effects": "pooler.effects",
     "hedges_j": "pooler.effects",
+    "pool": "pooler.pooling",
+    "PooledResult": "pooler.pooling",
+    "bias_suite": "pooler.bias",
+    "BiasResult": "pooler.bias",
     "demo_sheet_path": "pooler.demo",
     "write_template": "pooler.template",
     "PoolerError": "pooler.errors",

@@ -25,7 +25,9 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
+from types import MappingProxyType
 
 import numpy as np
 
@@ -503,73 +505,277 @@ def selection_ratio(y, v, tau2, etas=(2.0, 5.0, 10.0)) -> SelectionRatio | NotEs
     return SelectionRatio(tuple(etas), ests, worst, s, ka, kn)
 
 
+# ------------------------------------------------------------------ the registry
+
+@dataclass(frozen=True)
+class BiasData:
+    """What every registered method is given: the pooled studies' effects ``y`` and
+    variances ``v``, the pooled τ², the τ² estimator and interval method to reuse, the metric,
+    and ``earlier``: the results of the methods registered before it, by key."""
+
+    y: np.ndarray
+    v: np.ndarray
+    tau2: float
+    estimator: str
+    interval: str
+    metric: str
+    earlier: Mapping[str, object]
+
+
+@dataclass(frozen=True)
+class BiasMethod:
+    """One bias-sensitivity method, as the registry knows it.
+
+    Attributes
+    ----------
+    key : str
+        Stable identifier: the :class:`BiasResult` attribute and the key of the method's
+        object in the JSON ``bias`` section. Never shown to users, never changed.
+    label : str
+        Short display label (estimate ladder, scenario bases, stress-test columns).
+    compute : callable(BiasData) -> result or NotEstimable
+        The method. A result that can set the planning effect exposes ``estimate`` and
+        ``se`` (a float, or NotEstimable when it has none); one shown in the table or on
+        the ladder exposes ``estimate`` and, if it has one, ``ci`` (an Interval). Any richer
+        object with those attributes will do.
+    citation : str
+        Author-year source, as the methods paragraph cites it.
+    adjuster : str or None
+        The ``--adjuster`` value with which it alone sets the planning effect; None when it
+        cannot set the planning effect.
+    table_label : str or None
+        Its row in the bias table (None: no row).
+    note : callable(result) -> str, optional
+        The table note when the method is estimable.
+    phrase : str or None
+        How the methods paragraph names it when estimable (None: not named).
+    plan_order : int
+        Order among the methods that can set the planning effect (scenario bases, the
+        median's list, stress-test columns).
+    robust : bool
+        Corrects under publication selection: one of the estimates the default rule falls
+        back on (DEVELOPERS.md, "The planning-effect rule").
+    own_tau2 : bool
+        Its result's ``tau2`` replaces the pooled τ² in the predictive distribution when it
+        alone sets the realistic effect.
+    ladder : bool
+        Shown on the estimate ladder.
+    table_row, ladder_row : callable(result) -> row, optional
+        Replace the default table row (label, estimate, CI, note) or ladder row (label,
+        estimate, low, high; None for no row) for methods that are not an estimate.
+    """
+
+    key: str
+    label: str
+    compute: Callable[[BiasData], object]
+    citation: str
+    adjuster: str | None = None
+    table_label: str | None = None
+    note: Callable[[object], str] | None = None
+    phrase: str | None = None
+    plan_order: int = 0
+    robust: bool = False
+    own_tau2: bool = False
+    ladder: bool = True
+    table_row: Callable[[object], tuple] | None = None
+    ladder_row: Callable[[object], tuple | None] | None = None
+
+    @property
+    def can_plan(self) -> bool:
+        """Whether the method can set the planning effect."""
+        return self.adjuster is not None
+
+    def adjusted(self, res) -> tuple[float, float] | None:
+        """(estimate, se) of an estimable result with a standard error, else None."""
+        if not estimable(res) or not estimable(getattr(res, "se", None)):
+            return None
+        return float(res.estimate), float(res.se)
+
+    def row(self, res) -> tuple[str, object, object, str]:
+        """This method's row of the bias table."""
+        if not estimable(res):
+            return (self.table_label, res, None, str(res))
+        if self.table_row is not None:
+            return self.table_row(res)
+        return (self.table_label, res.estimate, getattr(res, "ci", None),
+                self.note(res) if self.note else "")
+
+    def rung(self, res) -> tuple | None:
+        """This method's row of the estimate ladder (label, estimate, low, high) or None."""
+        if not estimable(res):
+            return None
+        if self.ladder_row is not None:
+            return self.ladder_row(res)
+        ci = getattr(res, "ci", None)
+        lo, hi = (ci.low, ci.high) if ci is not None and estimable(ci) else (None, None)
+        return (self.label, res.estimate, lo, hi)
+
+
+_REGISTRY: dict[str, BiasMethod] = {}
+
+
+def register(method: BiasMethod) -> BiasMethod:
+    """Add a method to the suite (after those already registered). Its key and its
+    ``adjuster`` value must be new.
+
+    Examples
+    --------
+    An invented toy method (not a published one) that can set the planning effect:
+
+    >>> from pooler.bias import BiasMethod, adjuster_choices, register, unregister
+    >>> toy = BiasMethod("toy", "toy", lambda d: NotEstimable("a toy"), "nobody",
+    ...                  adjuster="toy-choice", plan_order=99)
+    >>> _ = register(toy)
+    >>> adjuster_choices()[-1]
+    'toy-choice'
+    >>> unregister("toy") is toy, "toy-choice" in adjuster_choices()
+    (True, False)
+    """
+    # validation
+    if method.key in _REGISTRY:
+        raise ValueError(f"a bias method with key {method.key!r} is already registered")
+    taken = {m.adjuster for m in _REGISTRY.values() if m.adjuster}
+    if method.adjuster in taken or method.adjuster in ("default", "median"):
+        raise ValueError(f"the adjuster name {method.adjuster!r} is already taken")
+    _REGISTRY[method.key] = method
+    return method
+
+
+def unregister(key: str) -> BiasMethod:
+    """Remove a registered method (tests that register a toy method use it)."""
+    return _REGISTRY.pop(key)
+
+
+def methods() -> tuple[BiasMethod, ...]:
+    """Every registered method, in the suite's order (table and JSON order)."""
+    return tuple(_REGISTRY.values())
+
+
+def planning_methods() -> tuple[BiasMethod, ...]:
+    """The methods that can set the planning effect, in their planning order."""
+    return tuple(sorted((m for m in _REGISTRY.values() if m.can_plan),
+                        key=lambda m: m.plan_order))
+
+
+def adjuster_choices() -> tuple[str, ...]:
+    """Every value ``--adjuster`` accepts: the three rules (the model average, the earlier
+    safeguard rule, the median of the adjusters), then one per planning method."""
+    return ("default", "safeguard", "median") + tuple(m.adjuster for m in planning_methods())
+
+
+def _egger_row(e) -> tuple:
+    return ("Egger's test", None, None,
+            f"asymmetry: intercept {e.estimate:.2f} [{e.ci.low:.2f}, {e.ci.high:.2f}], "
+            f"p = {e.p:.3f}")
+
+
+def _selection_note(r) -> str:
+    return (f"omega = {r.omega:.2f}, LRT p = {r.lrt_p:.3f}, "
+            f"{r.k_significant} significant / {r.k_nonsignificant} not"
+            + ("" if r.converged else ", did not converge")
+            + (f", {', '.join(r.at_bound)}" if r.at_bound else ""))
+
+
+def _worst_case_rung(r) -> tuple | None:
+    return (("worst-case selection", r.worst_case, None, None) if estimable(r.worst_case)
+            else None)
+
+
+for _m in (
+    BiasMethod("egger", "Egger's test", lambda d: egger_test(d.y, d.v), "Egger et al., 1997",
+               table_label="Egger's test", phrase="Egger's regression test", ladder=False,
+               table_row=_egger_row),
+    BiasMethod("pet", "PET", lambda d: pet(d.y, d.v), "Stanley & Doucouliagos, 2014",
+               table_label="PET", note=lambda r: f"intercept p = {r.p:.3f}"),
+    BiasMethod("peese", "PEESE", lambda d: peese(d.y, d.v), "Stanley & Doucouliagos, 2014",
+               table_label="PEESE", note=lambda r: f"slope on SE^2 = {r.slope:.2f}"),
+    BiasMethod("pet_peese", "PET-PEESE",
+               lambda d: pet_peese(d.earlier["pet"], d.earlier["peese"]),
+               "Stanley & Doucouliagos, 2014", adjuster="pet-peese", table_label="PET-PEESE",
+               note=lambda r: f"{r.chosen}: {r.why}", phrase="PET-PEESE", plan_order=2,
+               robust=True),
+    BiasMethod("trim_and_fill", "trim-and-fill",
+               lambda d: trim_and_fill(d.y, d.v, estimator="L0", tau2_estimator=d.estimator,
+                                       interval=d.interval),
+               "Duval & Tweedie, 2000", adjuster="trim-and-fill", table_label="trim-and-fill (L0)",
+               note=lambda r: f"{r.k0} studies imputed on the {r.side}", phrase="trim-and-fill",
+               plan_order=3),
+    BiasMethod("trim_and_fill_r0", "trim-and-fill (R0)",
+               lambda d: trim_and_fill(d.y, d.v, estimator="R0", tau2_estimator=d.estimator,
+                                       interval=d.interval),
+               "Duval & Tweedie, 2000", table_label="trim-and-fill (R0)",
+               note=lambda r: f"{r.k0} studies imputed on the {r.side}", ladder=False),
+    BiasMethod("selection_3psm", "selection model",
+               lambda d: (selection_model(d.y, d.v) if len(d.y) >= 2
+                          else NotEstimable("one study")),
+               "Vevea & Hedges, 1995", adjuster="3psm", table_label="selection model (3PSM)",
+               note=_selection_note, phrase="a three-parameter selection model", plan_order=1,
+               robust=True, own_tau2=True),
+    BiasMethod("waap_wls", "WAAP-WLS", lambda d: waap_wls(d.y, d.v), "Stanley et al., 2017",
+               adjuster="waap-wls", table_label="WAAP-WLS", note=lambda r: r.note,
+               phrase="WAAP-WLS", plan_order=4),
+    BiasMethod("selection_ratio", "selection ratio",
+               lambda d: selection_ratio(d.y, d.v, d.tau2), "Mathur & VanderWeele, 2020",
+               ladder_row=_worst_case_rung),
+):
+    register(_m)
+del _m
+
+
 # ------------------------------------------------------------------ the suite
 
 @dataclass(frozen=True)
 class BiasResult:
-    """Every bias-sensitivity method, estimated or not estimable (with the reason)."""
+    """Every registered bias-sensitivity method, estimated or not estimable (with the reason).
+
+    Each method's result is an attribute named by its key (``bias.selection_3psm``) and an
+    item (``bias["selection_3psm"]``).
+    """
 
     metric: str
     k: int
-    egger: Regression | NotEstimable
-    pet: Regression | NotEstimable
-    peese: Regression | NotEstimable
-    pet_peese: PetPeese | NotEstimable
-    trim_and_fill: TrimAndFill | NotEstimable
-    trim_and_fill_r0: TrimAndFill | NotEstimable
-    selection_3psm: SelectionModel | NotEstimable
-    waap_wls: WaapWls | NotEstimable
-    selection_ratio: SelectionRatio | NotEstimable
+    results: Mapping[str, object]
+    methods: tuple[BiasMethod, ...]
+
+    def __getattr__(self, name):
+        results = self.__dict__.get("results")
+        if results is None or name not in results:
+            raise AttributeError(name)
+        return results[name]
+
+    def __getitem__(self, key):
+        return self.results[key]
 
     def adjusted(self) -> dict:
-        """The bias-adjusted estimates the planning rule can use: name -> (estimate, se)."""
+        """The bias-adjusted estimates the planning rule can use: key -> (estimate, se), in
+        planning order."""
         out = {}
-        if estimable(self.selection_3psm) and estimable(self.selection_3psm.se):
-            out["selection model"] = (self.selection_3psm.estimate, self.selection_3psm.se)
-        if estimable(self.pet_peese):
-            out["PET-PEESE"] = (self.pet_peese.estimate, self.pet_peese.se)
-        if estimable(self.trim_and_fill):
-            out["trim-and-fill"] = (self.trim_and_fill.estimate, self.trim_and_fill.se)
-        if estimable(self.waap_wls):
-            out["WAAP-WLS"] = (self.waap_wls.estimate, self.waap_wls.se)
+        for m in sorted((m for m in self.methods if m.can_plan), key=lambda m: m.plan_order):
+            a = m.adjusted(self.results[m.key])
+            if a is not None:
+                out[m.key] = a
         return out
+
+    def method(self, key) -> BiasMethod:
+        """The registry entry of a method in this result."""
+        return next(m for m in self.methods if m.key == key)
 
     def table(self) -> list[tuple[str, object, object, str]]:
         """(method, estimate or NotEstimable, CI or None, note) rows for reports."""
-        rows = []
-        def add(name, res, note_fn):
-            if not estimable(res):
-                rows.append((name, res, None, str(res)))
-            else:
-                rows.append((name, res.estimate, getattr(res, "ci", None), note_fn(res)))
-        if estimable(self.egger):
-            e = self.egger
-            rows.append(("Egger's test", None, None,
-                         f"asymmetry: intercept {e.estimate:.2f} [{e.ci.low:.2f}, {e.ci.high:.2f}], "
-                         f"p = {e.p:.3f}"))
-        else:
-            rows.append(("Egger's test", self.egger, None, str(self.egger)))
-        add("PET", self.pet, lambda r: f"intercept p = {r.p:.3f}")
-        add("PEESE", self.peese, lambda r: f"slope on SE^2 = {r.slope:.2f}")
-        add("PET-PEESE", self.pet_peese, lambda r: f"{r.chosen}: {r.why}")
-        add("trim-and-fill (L0)", self.trim_and_fill,
-            lambda r: f"{r.k0} studies imputed on the {r.side}")
-        add("trim-and-fill (R0)", self.trim_and_fill_r0,
-            lambda r: f"{r.k0} studies imputed on the {r.side}")
-        add("selection model (3PSM)", self.selection_3psm,
-            lambda r: (f"omega = {r.omega:.2f}, LRT p = {r.lrt_p:.3f}, "
-                       f"{r.k_significant} significant / {r.k_nonsignificant} not"
-                       + ("" if r.converged else ", did not converge")
-                       + (f", {', '.join(r.at_bound)}" if r.at_bound else "")))
-        add("WAAP-WLS", self.waap_wls, lambda r: r.note)
-        return rows
+        return [m.row(self.results[m.key]) for m in self.methods if m.table_label]
+
+    def ladder(self) -> list[tuple]:
+        """(label, estimate, low, high) of every estimable method on the estimate ladder."""
+        rows = [m.rung(self.results[m.key]) for m in self.methods if m.ladder]
+        return [r for r in rows if r is not None]
+
+    def cited(self) -> list[str]:
+        """How the methods paragraph names each estimable method, with its source."""
+        return [f"{m.phrase} ({m.citation})" for m in self.methods
+                if m.phrase and estimable(self.results[m.key])]
 
     def to_dict(self) -> dict:
-        return to_jsonable({"egger": self.egger, "pet": self.pet, "peese": self.peese,
-                            "pet_peese": self.pet_peese, "trim_and_fill": self.trim_and_fill,
-                            "trim_and_fill_r0": self.trim_and_fill_r0,
-                            "selection_3psm": self.selection_3psm, "waap_wls": self.waap_wls,
-                            "selection_ratio": self.selection_ratio})
+        return to_jsonable({m.key: self.results[m.key] for m in self.methods})
 
     def to_frame(self):
         import pandas as pd
@@ -580,26 +786,22 @@ class BiasResult:
 
 
 def bias_suite(pooled, tau2_estimator=None, interval=None) -> BiasResult:
-    """Run every bias-sensitivity method on the units of a :class:`PooledResult`.
+    """Run every registered bias-sensitivity method on the studies of a
+    :class:`PooledResult`, in registry order.
 
     Examples
     --------
     >>> from pooler import read_sheet, convert, pool, demo_sheet_path
     >>> from pooler.bias import bias_suite
     >>> b = bias_suite(pool(convert(read_sheet(demo_sheet_path()))))
-    >>> sorted(b.adjusted())
-    ['PET-PEESE', 'WAAP-WLS', 'selection model', 'trim-and-fill']
+    >>> list(b.adjusted())
+    ['selection_3psm', 'pet_peese', 'trim_and_fill', 'waap_wls']
     """
-    y = np.array(pooled.effects)
-    v = np.array(pooled.variances)
-    est = tau2_estimator or pooled.estimator
-    itv = interval or pooled.interval
-    p, q = pet(y, v), peese(y, v)
-    return BiasResult(
-        metric=pooled.metric, k=len(y), egger=egger_test(y, v), pet=p, peese=q,
-        pet_peese=pet_peese(p, q),
-        trim_and_fill=trim_and_fill(y, v, estimator="L0", tau2_estimator=est, interval=itv),
-        trim_and_fill_r0=trim_and_fill(y, v, estimator="R0", tau2_estimator=est, interval=itv),
-        selection_3psm=selection_model(y, v) if len(y) >= 2 else NotEstimable("one study"),
-        waap_wls=waap_wls(y, v),
-        selection_ratio=selection_ratio(y, v, pooled.tau2))
+    done: dict[str, object] = {}
+    data = BiasData(np.array(pooled.effects), np.array(pooled.variances), pooled.tau2,
+                    tau2_estimator or pooled.estimator, interval or pooled.interval,
+                    pooled.metric, MappingProxyType(done))
+    registered = methods()
+    for m in registered:
+        done[m.key] = m.compute(data)
+    return BiasResult(pooled.metric, len(data.y), dict(done), registered)

@@ -11,7 +11,9 @@ import sys
 import click
 
 from ._threads import limit_before_numpy
-from .errors import PoolerError
+from .choices import (ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS, POWERS,
+                      AnalysisOptions)
+from .errors import OptionError, PoolerError
 
 # One BLAS thread for the whole command (the reason is in pooler/_threads.py); this must run
 # before numpy is first imported, which every command does lazily after this point.
@@ -25,8 +27,19 @@ class _Group(click.Group):
         try:
             return super().invoke(ctx)
         except PoolerError as exc:
-            click.echo(f"pooler: error: {exc}", err=True)
+            click.echo(f"pooler: error: {_for_the_user(ctx, exc)}", err=True)
             ctx.exit(2)
+
+
+def _for_the_user(ctx, exc) -> str:
+    """The error as the user should read it: library parameter names become the flags of the
+    command that ran (``safeguard_level`` -> ``--safeguard``)."""
+    cmd = ctx.command.get_command(ctx, ctx.invoked_subcommand or "")
+    if not isinstance(exc, OptionError) or cmd is None:
+        return str(exc)
+    flags = {p.name: max(p.opts, key=len) for p in cmd.params
+             if isinstance(p, click.Option) and p.name}
+    return exc.naming(flags)
 
 
 # ------------------------------------------------------------------ option checks
@@ -62,7 +75,7 @@ def _fraction(low: float, high: float, *, low_open: bool = True, high_open: bool
                 continue
             lo = ("(" if low_open else "[") + f"{low:g}"
             hi = f"{high:g}" + (")" if high_open else "]")
-            if percent and v > 1 and inside(v / 100):
+            if percent and 2 <= v <= 100 and inside(v / 100):
                 raise click.BadParameter(f"{v:g} looks like a percentage; give it as a "
                                          f"fraction: use {v / 100:g}", param=param)
             raise click.BadParameter(f"{v:g} is outside {lo}, {hi}"
@@ -90,7 +103,7 @@ _correlation = _fraction(-1, 1, hint="a correlation lies strictly between -1 and
 
 
 def _metric_option(f):
-    return click.option("--metric", type=click.Choice(["d", "r"]), default=None,
+    return click.option("--metric", type=click.Choice(list(METRICS)), default=None,
                         help="Common metric: d = Hedges' g, r = Fisher's z of the correlation. "
                              "[default: d; in plan, run and demo: r for the correlation and "
                              "regression-increment designs, d otherwise; a d planned on a "
@@ -99,15 +112,15 @@ def _metric_option(f):
 
 
 def _within_r_option(f):
-    return click.option("--within-r", type=float, default=0.5, show_default=True,
-                        callback=_correlation,
+    return click.option("--within-r", type=float, default=ANALYSIS_DEFAULTS["within_r"],
+                        show_default=True, callback=_correlation,
                         help="Correlation between repeated measures for within-subject rows "
                              "that do not give one (an assumption, printed).")(f)
 
 
 def _sample_r_option(f):
-    return click.option("--sample-r", type=float, default=0.5, show_default=True,
-                        callback=_correlation,
+    return click.option("--sample-r", type=float, default=ANALYSIS_DEFAULTS["sample_r"],
+                        show_default=True, callback=_correlation,
                         help="Assumed correlation between outcomes of rows that share a "
                              "'sample' (they are combined into one effect).")(f)
 
@@ -179,7 +192,7 @@ def convert(sheet, metric, within_r, sample_r, as_json):
       pooler convert my_literature.csv --metric r --json
     """
     from .report import effects_text
-    s, eff = _load(sheet, metric or "d", within_r, sample_r)
+    s, eff = _load(sheet, metric or ANALYSIS_DEFAULTS["metric"], within_r, sample_r)
     _echo_warnings(eff.warnings)
     if as_json:
         _print_json(eff.to_dict())
@@ -188,12 +201,12 @@ def convert(sheet, metric, within_r, sample_r, as_json):
 
 
 def _pooling_options(f):
-    f = click.option("--interval", type=click.Choice(["hksj", "wald"]), default="hksj",
-                     show_default=True,
+    f = click.option("--interval", type=click.Choice(list(INTERVALS)),
+                     default=ANALYSIS_DEFAULTS["interval"], show_default=True,
                      help="Interval for the mean: Hartung-Knapp-Sidik-Jonkman (t, k-1 df) "
                           "or Wald (normal).")(f)
-    f = click.option("--estimator", type=click.Choice(["reml", "ml", "pm", "dl"]),
-                     default="reml", show_default=True,
+    f = click.option("--estimator", type=click.Choice(list(ESTIMATORS)),
+                     default=ANALYSIS_DEFAULTS["estimator"], show_default=True,
                      help="Between-study variance estimator: REML, ML, Paule-Mandel, "
                           "DerSimonian-Laird.")(f)
     return f
@@ -207,14 +220,13 @@ def _scenario_options(f):
                           "the literature: the smallest effect that would matter in practice "
                           "or to your theory, or the effect the earlier studies could just "
                           "have detected (Lakens, Scheel & Isager 2018).")(f)
-    f = click.option("--safeguard", "safeguard_level", type=float, default=0.6,
-                     show_default=True, callback=_fraction(0, 1, percent=True,
-                                                       hint="a two-sided level, e.g. 0.6"),
+    f = click.option("--safeguard", "safeguard_level", type=float,
+                     default=ANALYSIS_DEFAULTS["safeguard_level"], show_default=True,
+                     callback=_fraction(0, 1, percent=True, hint="a two-sided level, e.g. 0.6"),
                      help="Two-sided level of the safeguard interval for the pessimistic "
                           "scenario (Perugini et al. 2014).")(f)
-    f = click.option("--adjuster", type=click.Choice(["default", "safeguard", "median", "3psm",
-                                                      "pet-peese", "trim-and-fill", "waap-wls"]),
-                     default="default", show_default=True,
+    f = click.option("--adjuster", type=click.Choice(list(ADJUSTERS)),
+                     default=ANALYSIS_DEFAULTS["adjuster"], show_default=True,
                      help="How the realistic scenario is chosen: the default Bayesian model "
                           "average over publication-bias models, the earlier safeguard rule, "
                           "the safeguard limit of the median of the adjusters, or one "
@@ -269,16 +281,16 @@ def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
       pooler pool my_literature.csv --sesoi 0.2 --adjuster median
     """
     from .report import bias_text, pooled_text, scenarios_text
-    a = _analyse(sheet, metric or "d", within_r, sample_r, estimator, interval, adjuster,
-                 safeguard_level, sesoi)
+    a = _analyse(sheet, metric or ANALYSIS_DEFAULTS["metric"], within_r, sample_r, estimator,
+                 interval, adjuster, safeguard_level, sesoi)
     if as_json:
         _print_json(a.pool_document())
     else:
         click.echo(pooled_text(a.pooled, a.effects))
         click.echo("")
-        click.echo(bias_text(a.bias, a.scenarios))
+        click.echo(bias_text(a.bias, a.audit))
         click.echo("")
-        click.echo(scenarios_text(a.scenarios))
+        click.echo(scenarios_text(a.scenarios, a.audit))
 
 
 def _planning_options(f):
@@ -444,7 +456,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     else:
         raise OptionError("give a SHEET of prior results or a planning --effect")
     p = make_plan(scen, des, metric=pmetric, alpha=alpha, tails=tails,
-                  powers=powers or (0.8, 0.9, 0.95), attrition=attrition, predictive=predictive,
+                  powers=powers or POWERS, attrition=attrition, predictive=predictive,
                   n_total=n_total, effect_label=label)
     if as_json:
         _print_json(p.to_dict())
@@ -456,7 +468,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     else:
         if analysis is not None:
             from .report import scenarios_text
-            click.echo(scenarios_text(analysis.scenarios).split("\n\nLiterature audit")[0])
+            click.echo(scenarios_text(analysis.scenarios))
             click.echo("")
         click.echo(plan_text(p))
 
@@ -510,12 +522,10 @@ def _whole_job(ctx, sheet, sheet_label, params):
                        p["exact_r"], p["fixed_covariates"])
     metric = _planning_metric(p["metric"], p["design"])
     _check_sesoi(p["sesoi"], metric)
-    analysis_options = {"metric": metric, "within_r": p["within_r"], "sample_r": p["sample_r"],
-                        "estimator": p["estimator"], "interval": p["interval"],
-                        "adjuster": p["adjuster"], "safeguard_level": p["safeguard_level"],
-                        "sesoi": p["sesoi"]}
+    analysis_options = AnalysisOptions(
+        **{k: p[k] for k in ANALYSIS_DEFAULTS if k != "metric"}, metric=metric)
     plan_options = {"alpha": p["alpha"], "tails": p["tails"],
-                    "powers": tuple(p["powers"] or (0.8, 0.9, 0.95)),
+                    "powers": tuple(p["powers"] or POWERS),
                     "attrition": p["attrition"], "n_total": p["n_total"]}
     from .outputs import check_out
     out = check_out(p["out_dir"], p["force"])   # before the work, so a refusal costs nothing
@@ -625,8 +635,9 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
     if calibration:
         cells, shapes = calibration_grid(), Shapes.generic()
     else:
-        a = _analyse(sheet, metric or "d", within_r, sample_r, "reml", "hksj", "default", 0.6,
-                     None)
+        d = ANALYSIS_DEFAULTS
+        a = _analyse(sheet, metric or d["metric"], within_r, sample_r, d["estimator"],
+                     d["interval"], d["adjuster"], d["safeguard_level"], d["sesoi"])
         cells, shapes = grid_around(a), Shapes.from_effects(a.effects)
     bar = None
     if sys.stderr.isatty():

@@ -169,7 +169,7 @@ def build_blocks(run) -> list[Block]:
         b.append(Block("p", "Selection ratio (Mathur & VanderWeele 2020): "
                        + "; ".join(f"eta = {e:g}: {m:.3f}" for e, m in zip(sr.eta, sr.estimates))
                        + f"; worst case {_num(sr.worst_case)}; S-value {_num(sr.s_value, 2)}."))
-    tes = sc.excess_significance
+    tes = a.audit.excess_significance
     if estimable(tes):
         b.append(Block("p", f"Excess significance (Ioannidis & Trikalinos 2007): {tes.observed} "
                             f"of {tes.k} studies significant, {tes.expected:.1f} expected at the "
@@ -189,7 +189,7 @@ def build_blocks(run) -> list[Block]:
                             f"{sc.realistic.se:.3f}); {100 * iv.level:g}% safeguard interval "
                             f"{_ci(iv)}, 95% interval {_ci(ci95)}."))
     b.append(Block("p", md_escape(sc.verdict)))
-    au = sc.audit
+    au = a.audit.literature
     if estimable(au):
         b.append(Block("p", f"Literature audit: at the realistic effect the prior studies had a "
                             f"median power of {au.median:.2f}; {100 * au.share_80:.0f}% had 80% "
@@ -313,17 +313,7 @@ def methods_paragraph(run) -> str:
             txt[-1] += (f"; the 95% prediction interval for the true effect of a new study was "
                         f"{_ci(pooled.prediction, 2)} (Higgins et al., 2009)")
         txt[-1] += "."
-    methods = []
-    if estimable(bias.egger):
-        methods.append("Egger's regression test (Egger et al., 1997)")
-    if estimable(bias.pet_peese):
-        methods.append("PET-PEESE (Stanley & Doucouliagos, 2014)")
-    if estimable(bias.trim_and_fill):
-        methods.append("trim-and-fill (Duval & Tweedie, 2000)")
-    if estimable(bias.selection_3psm):
-        methods.append("a three-parameter selection model (Vevea & Hedges, 1995)")
-    if estimable(bias.waap_wls):
-        methods.append("WAAP-WLS (Stanley et al., 2017)")
+    methods = bias.cited()
     if methods:
         txt.append("Because published effects are inflated by publication bias and low power, "
                    "we assessed small-study effects and selection with "

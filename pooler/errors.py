@@ -5,6 +5,8 @@ in one place (``pooler.cli``); library users catch :class:`PoolerError`.
 """
 from __future__ import annotations
 
+from collections.abc import Mapping
+
 
 class PoolerError(Exception):
     """Base class of all errors that pooler raises on purpose."""
@@ -50,7 +52,32 @@ class InputError(PoolerError):
 
 
 class OptionError(PoolerError):
-    """An option value that cannot be used (named in the message)."""
+    """An option value that cannot be used.
+
+    Parameters
+    ----------
+    message : str
+        What is wrong, naming the parameter in backticks as the library spells it
+        (```safeguard_level` must lie in (0, 1), not 1.5``).
+    parameter : str, optional
+        The parameter at fault; by default the backticked name the message starts with.
+        The command line uses it to name its own flag instead (:meth:`naming`).
+    """
+
+    def __init__(self, message: str, *, parameter: str | None = None):
+        if parameter is None and message.startswith("`"):
+            parameter = message[1:].partition("`")[0] or None
+        self.message = message
+        self.parameter = parameter
+        super().__init__(message)
+
+    def naming(self, flags: Mapping[str, str]) -> str:
+        """The message with each backticked parameter that has an entry in ``flags``
+        (parameter name -> what the user typed, e.g. ``"--safeguard"``) named that way."""
+        out = self.message
+        for name, flag in flags.items():
+            out = out.replace(f"`{name}`", flag)
+        return out
 
 
 class InputErrors(InputError):

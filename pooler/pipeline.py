@@ -1,4 +1,4 @@
-"""The stages chained: sheet → effects → pooled → bias → scenarios (→ plan).
+"""The stages chained: sheet → effects → pooled → bias → scenarios → audit (→ plan).
 
 A convenience for the CLI and for users who want everything at once; each stage is still
 its own pure function (see the modules named in the fields).
@@ -20,14 +20,17 @@ class Analysis:
     pooled: object     # pooler.pooling.PooledResult
     bias: object       # pooler.bias.BiasResult
     scenarios: object  # pooler.scenarios.Scenarios
+    audit: object      # pooler.audit.Audit, at the realistic effect
 
     def pool_document(self) -> dict:
         """The ``pooler.pool/1`` JSON document."""
         doc = {"schema": "pooler.pool/1", **self.pooled.to_dict()}
         bias = self.bias.to_dict()
-        bias["excess_significance"] = to_jsonable(self.scenarios.excess_significance)
+        # the JSON contract keeps the audit's two results where they have always been
+        bias["excess_significance"] = to_jsonable(self.audit.excess_significance)
         doc["bias"] = bias
-        doc["scenarios"] = self.scenarios.to_dict()
+        doc["scenarios"] = {**self.scenarios.to_dict(),
+                            "audit": to_jsonable(self.audit.literature)}
         if "model_average" in doc["scenarios"]:
             doc["model_average"] = doc["scenarios"].pop("model_average")
         weight = {}
@@ -55,6 +58,7 @@ def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="re
     ``progress``, if given, is called with a short message before each slow step.
     """
     say = progress or (lambda msg: None)
+    from .audit import audit_literature
     from .bias import bias_suite
     from .effects import convert
     from .pooling import pool
@@ -66,9 +70,10 @@ def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="re
     pooled = pool(effects, estimator, interval)
     say("bias-sensitivity suite (selection model from several starting points)")
     bias = bias_suite(pooled)
-    scen = make_scenarios(effects, pooled, bias, adjuster=adjuster,
+    scen = make_scenarios(pooled, bias, adjuster=adjuster,
                           safeguard_level=safeguard_level, sesoi=sesoi)
-    return Analysis(sheet, effects, pooled, bias, scen)
+    return Analysis(sheet, effects, pooled, bias, scen,
+                    audit_literature(pooled, scen.realistic.effect))
 
 
 @dataclass(frozen=True)
@@ -95,11 +100,16 @@ class RunResult:
 
 
 @single_threaded
-def run(sheet_path, *, design, analysis_options: dict, plan_options: dict,
+def run(sheet_path, *, design, analysis_options, plan_options: dict,
         command: str = "", progress=None) -> RunResult:
-    """The whole job on one sheet: analyse, then plan the scenarios for ``design``."""
+    """The whole job on one sheet: analyse, then plan the scenarios for ``design``.
+
+    ``analysis_options`` is a :class:`pooler.choices.AnalysisOptions` (or a dict of the same
+    keywords)."""
     from . import __version__
     from .planning import make_plan
+    if hasattr(analysis_options, "to_dict"):
+        analysis_options = analysis_options.to_dict()
     a = analyse(sheet_path, progress=progress, **analysis_options)
     sc = a.scenarios
     p = make_plan(sc.planning_effects(), design, metric=sc.planning_metric,

@@ -177,16 +177,8 @@ def ladder_rows(pooled, bias, scenarios):
         rows.append(("as published (random effects)", p.estimate, p.ci.low, p.ci.high, "pooled"))
     f = pooled.fixed
     rows.append(("common effect", f.estimate, f.ci.low, f.ci.high, "pooled"))
-    for name, res in (("PET", bias.pet), ("PEESE", bias.peese), ("PET-PEESE", bias.pet_peese),
-                      ("trim-and-fill", bias.trim_and_fill),
-                      ("selection model", bias.selection_3psm), ("WAAP-WLS", bias.waap_wls)):
-        if estimable(res):
-            ci = getattr(res, "ci", None)
-            lo, hi = (ci.low, ci.high) if ci is not None and estimable(ci) else (None, None)
-            rows.append((name, res.estimate, lo, hi, "adjusted"))
-    sr = bias.selection_ratio
-    if estimable(sr) and estimable(sr.worst_case):
-        rows.append(("worst-case selection", sr.worst_case, None, None, "adjusted"))
+    for name, est, lo, hi in bias.ladder():   # the registered bias methods, in suite order
+        rows.append((name, est, lo, hi, "adjusted"))
     if scenarios is not None:
         for s in (scenarios.optimistic, scenarios.realistic, scenarios.pessimistic):
             rows.append((f"{s.name} scenario", s.effect, None, None, s.name))

@@ -29,10 +29,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._results import Interval, NotEstimable, estimable, to_jsonable
+from .choices import ESTIMATORS, INTERVALS
 from .errors import OptionError
-
-ESTIMATORS = ("reml", "ml", "pm", "dl")
-INTERVALS = ("hksj", "wald")
 ESTIMATOR_NAMES = {"reml": "restricted maximum likelihood (REML)", "ml": "maximum likelihood",
                    "pm": "Paule-Mandel", "dl": "DerSimonian-Laird"}
 INTERVAL_NAMES = {"hksj": "Hartung-Knapp-Sidik-Jonkman", "wald": "Wald (normal)"}
@@ -653,6 +651,9 @@ class PooledResult:
         ``weights`` are random-effects weights as fractions summing to 1.
     leave_one_out, cumulative : tuple of InfluenceRow or NotEstimable
     subgroups : Subgroups, NotEstimable or None
+    studies : tuple of pooler.effects.Unit
+        The pooled studies themselves (effect, variance, n per group, design, within-r,
+        sheet rows), so later stages need nothing but this result.
     """
 
     metric: str
@@ -673,6 +674,7 @@ class PooledResult:
     cumulative: tuple[InfluenceRow, ...] | NotEstimable
     subgroups: Subgroups | NotEstimable | None
     notes: tuple[str, ...] = ()
+    studies: tuple = ()
 
     @property
     def tau2(self) -> float:
@@ -769,6 +771,15 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
     >>> res.k
     24
     """
+    return pool_studies(effects.units, effects.metric, estimator, interval, level,
+                        influence=influence, file=effects.file)
+
+
+def pool_studies(studies, metric, estimator="reml", interval="hksj", level=0.95, *,
+                 influence=True, file=None) -> PooledResult:
+    """Pool a sequence of :class:`pooler.effects.Unit` on ``metric`` ("g" or "z"): what
+    :func:`pool` does once it has the units of an ``Effects`` (the stress test calls it on
+    simulated studies)."""
     from scipy import special
     # validation
     if estimator not in ESTIMATORS:
@@ -777,12 +788,12 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
         raise OptionError(f"`interval` must be 'hksj' or 'wald', not {interval!r}")
     if not 0 < level < 1:
         raise OptionError(f"`level` must lie in (0, 1), not {level!r}")
-    units = effects.units
+    units = tuple(studies)
     k = len(units)
     if k == 0:
         from .errors import InputError
         raise InputError("no rows are left to pool (every row is excluded); remove an "
-                         "'exclude' mark or add studies", file=effects.file)
+                         "'exclude' mark or add studies", file=file)
     y = np.array([u.effect for u in units])
     v = np.array([u.variance for u in units])
     labels = tuple(u.label for u in units)
@@ -799,10 +810,10 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
         notes.append("one study: no pooling and no heterogeneity are possible; "
                      "the single study's estimate is shown")
         one = NotEstimable("only one study")
-        return PooledResult(effects.metric, 1, estimator, interval, level, one, fixed, one,
+        return PooledResult(metric, 1, estimator, interval, level, one, fixed, one,
                             NotEstimable("a prediction interval needs at least 3 studies"),
                             Tau2Fit(0.0, True, 0, "one study"), labels, tuple(y), tuple(v),
-                            (1.0,), one, one, None, tuple(notes))
+                            (1.0,), one, one, None, tuple(notes), units)
 
     fit = random_effects(y, v, estimator, interval, level)
     if not fit.tau2_fit.converged:
@@ -824,9 +835,10 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
     loo: tuple | NotEstimable
     if not influence:
         skip = NotEstimable("not requested")
-        return PooledResult(effects.metric, k, estimator, interval, level, pooled, fixed, het,
+        return PooledResult(metric, k, estimator, interval, level, pooled, fixed, het,
                             pred, fit.tau2_fit, labels, tuple(float(x) for x in y),
-                            tuple(float(x) for x in v), weights, skip, skip, None, tuple(notes))
+                            tuple(float(x) for x in v), weights, skip, skip, None, tuple(notes),
+                            units)
     if k >= 3:
         idx = np.arange(k)
         loo = _table([f"without {lab}" for lab in labels], y, v, _leave_one_out_sums,
@@ -851,9 +863,9 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
     subs = None
     if any(u.subgroup for u in units):
         subs = _subgroups(units, y, v, estimator, interval, level)
-    return PooledResult(effects.metric, k, estimator, interval, level, pooled, fixed, het, pred,
+    return PooledResult(metric, k, estimator, interval, level, pooled, fixed, het, pred,
                         fit.tau2_fit, labels, tuple(float(x) for x in y),
-                        tuple(float(x) for x in v), weights, loo, cum, subs, tuple(notes))
+                        tuple(float(x) for x in v), weights, loo, cum, subs, tuple(notes), units)
 
 
 def _subgroups(units, y, v, estimator, interval, level) -> Subgroups | NotEstimable:

@@ -262,7 +262,7 @@ def _influence_table(rows, sym, first="analysis") -> str:
 
 # ------------------------------------------------------------------ bias and scenarios
 
-def bias_text(bias, scen) -> str:
+def bias_text(bias, audit) -> str:
     """The bias table, the selection-ratio sensitivity and the excess-significance test."""
     from ._results import NotEstimable, estimable
     sym = "g" if bias.metric == "g" else "z"
@@ -284,7 +284,7 @@ def bias_text(bias, scen) -> str:
                    f"S-value: {_or_reason(sr.s_value)}")
     else:
         out.append(f"Selection ratio: {sr}")
-    tes = scen.excess_significance
+    tes = audit.excess_significance
     if estimable(tes):
         out.append(f"Excess significance at the realistic effect: {tes.observed} of {tes.k} "
                    f"significant, {tes.expected:.1f} expected; chi2(1) = {tes.chi2:.2f}, "
@@ -299,7 +299,9 @@ def _or_reason(x) -> str:
     return str(x) if isinstance(x, NotEstimable) else f"{x:.3f}"
 
 
-def scenarios_text(scen) -> str:
+def scenarios_text(scen, audit=None) -> str:
+    """The scenarios table, the realistic interval and the verdict; with ``audit`` (a
+    :class:`pooler.audit.Audit`) also the literature audit."""
     from ._results import estimable
     sym = "g" if scen.metric == "g" else "z"
     rows = []
@@ -318,7 +320,7 @@ def scenarios_text(scen) -> str:
                    f"{100 * iv.level:g}% safeguard interval {_ci(iv.low, iv.high)}, "
                    f"95% interval {_ci(ci.low, ci.high)}")
     out.append(scen.verdict)
-    a = scen.audit
+    a = audit.literature if audit is not None else None
     if estimable(a):
         out += ["", f"Literature audit: each study's power to detect the realistic {sym} = "
                     f"{a.effect:.3f} (two-sided alpha = .05): median {a.median:.2f}, "
@@ -365,10 +367,10 @@ def run_summary_text(run, paths) -> str:
     """The compact summary that ``pooler run`` and ``pooler demo`` print."""
     a = run.analysis
     head = pooled_text(a.pooled, a.effects).split("\n\nStudies:")[0]
-    scen = scenarios_text(a.scenarios)
+    scen = scenarios_text(a.scenarios, a.audit)
     scen_short, _, audit = scen.partition("\n\nLiterature audit")
     audit_line = ("Literature audit" + audit.split("\n")[0]) if audit else ""
-    out = [head, "", bias_text(a.bias, a.scenarios), "", scen_short]
+    out = [head, "", bias_text(a.bias, a.audit), "", scen_short]
     if audit_line:
         out.append(audit_line)
     out += ["", plan_text(run.plan)]
@@ -384,7 +386,8 @@ def run_summary_text(run, paths) -> str:
 
 def stress_text(res) -> str:
     """What ``pooler stress`` prints: true power per planning rule, estimator bias and RMSE."""
-    from .simulate import ESTIMATORS, RULES
+    from .simulate import RULES
+    estimators = list(res.cells[0].estimates) if res.cells else []
     out = [f"Stress test: {res.reps} simulated literatures per cell ({res.shapes}); "
            f"n planned for {100 * res.power:g}% power, {res.design}; seed {res.seed}",
            "True power reached by the n each rule recommends: median (10th percentile); "
@@ -408,9 +411,9 @@ def stress_text(res) -> str:
     for c in res.cells:
         s = c.summary()
         line = [c.cell.k, c.cell.delta, c.cell.tau, c.cell.pi]
-        for e in ESTIMATORS:
+        for e in estimators:
             v = s["estimators"][e]
             line.append("-" if v["bias"] is None else f"{v['bias']:+.3f} / {v['rmse']:.3f}")
         rows.append(line)
-    out.append(text_table(["k", "delta", "tau", "pi"] + list(ESTIMATORS), rows, digits=2))
+    out.append(text_table(["k", "delta", "tau", "pi"] + estimators, rows, digits=2))
     return "\n".join(out)

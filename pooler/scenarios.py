@@ -1,6 +1,11 @@
 """Stage 5: from the pooled estimate and the bias suite to three planning effects.
 
-The default rule (DEVELOPERS.md, "The planning-effect rule"):
+The default rule (``adjuster="default"``; :func:`posterior_rule`): optimistic = the
+random-effects estimate; realistic = the posterior median of the mean effect given a positive
+effect from the Bayesian model average over publication-bias models (:mod:`pooler.bma`);
+pessimistic = its 25th percentile, never below the SESOI, never above the realistic effect.
+
+The earlier rule (``adjuster="safeguard"``; DEVELOPERS.md, "The planning-effect rule"):
 
 - optimistic = the random-effects estimate (the literature taken as published);
 - realistic = the three-parameter selection model's estimate when the model is identified
@@ -18,7 +23,6 @@ References
 .. [PGC14] Perugini, M., Gallucci, M., & Costantini, G. (2014). Safeguard power as a
    protection against imprecise power estimates. *Perspectives on Psychological Science*,
    9(3), 319-332.
-.. [IT07] Ioannidis & Trikalinos (2007), test of excess significance (see pooler.bias).
 """
 from __future__ import annotations
 
@@ -29,16 +33,21 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._results import NotEstimable, estimable, to_jsonable
-from .bias import Z975
+from .bias import adjuster_choices, planning_methods
 from .errors import OptionError
 from .planning import PlanningEffect
 
-ADJUSTERS = ("default", "safeguard", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls")
-_ADJ_KEY = {"3psm": "selection model", "pet-peese": "PET-PEESE", "trim-and-fill": "trim-and-fill",
-            "waap-wls": "WAAP-WLS"}
 MIN_K_SELECTION = 20
-#: Adjusters that correct under publication selection (used by the default fallback).
-ROBUST = ("selection model", "PET-PEESE")
+
+
+def __getattr__(name):
+    # read from the bias-method registry each time, so a newly registered method is a choice
+    if name == "ADJUSTERS":
+        return adjuster_choices()
+    if name == "ROBUST":
+        #: Keys of the adjusters that correct under publication selection (default fallback).
+        return tuple(m.key for m in planning_methods() if m.robust)
+    raise AttributeError(name)
 
 
 @dataclass(frozen=True)
@@ -49,52 +58,15 @@ class Scenario:
     effect: float
     se: float | None
     basis: str
+    methods: tuple[str, ...] = ()  # keys of the bias methods it was computed from
 
     def to_dict(self) -> dict:
         return to_jsonable({"effect": self.effect, "se": self.se, "basis": self.basis})
 
 
 @dataclass(frozen=True)
-class StudyPower:
-    label: str
-    power: float
-    how: str
-
-
-@dataclass(frozen=True)
-class LiteratureAudit:
-    """Each prior study's power to detect the realistic effect with its own n and design."""
-
-    effect: float
-    rows: tuple[StudyPower, ...]
-    median: float
-    share_80: float
-
-    def to_dict(self) -> dict:
-        return to_jsonable({"effect": self.effect, "median_power": self.median,
-                            "share_adequate": self.share_80,
-                            "rows": [{"label": r.label, "power": r.power, "how": r.how}
-                                     for r in self.rows]})
-
-
-@dataclass(frozen=True)
-class ExcessSignificance:
-    """Ioannidis & Trikalinos (2007): observed vs expected significant studies."""
-
-    observed: int
-    expected: float
-    k: int
-    chi2: float
-    p: float
-
-    def to_dict(self) -> dict:
-        return to_jsonable({"observed": self.observed, "expected": self.expected, "k": self.k,
-                            "chi2": self.chi2, "p": self.p})
-
-
-@dataclass(frozen=True)
 class Scenarios:
-    """The three planning scenarios, their bases in words, and the audit at the realistic effect.
+    """The three planning scenarios and their bases in words.
 
     Attributes
     ----------
@@ -106,7 +78,6 @@ class Scenarios:
         The plain-language summary.
     predictive : (mean, sd) or NotEstimable
         Predictive distribution of a new study's true effect, for assurance.
-    audit, excess_significance : results at the realistic effect
     """
 
     metric: str
@@ -119,8 +90,6 @@ class Scenarios:
     supported: bool
     verdict: str
     predictive: tuple[float, float] | NotEstimable
-    audit: LiteratureAudit | NotEstimable
-    excess_significance: ExcessSignificance | NotEstimable
     #: the model-averaged posterior (pooler.bma.ModelAverage) behind the default rule
     posterior: object = None
     #: realistic and pessimistic effects under the wider priors (pooler.bma.WIDE_PRIORS)
@@ -186,8 +155,7 @@ class Scenarios:
                             "realistic_ci95": self.realistic_interval(0.95),
                             "predictive": ({"mean": self.predictive[0], "sd": self.predictive[1]}
                                            if isinstance(self.predictive, tuple)
-                                           else self.predictive),
-                            "audit": self.audit})
+                                           else self.predictive)})
 
     def to_frame(self):
         import pandas as pd
@@ -214,73 +182,21 @@ def selection_identified(sm, k) -> tuple[bool, str]:
     return True, ""
 
 
-def unit_powers(units, effect, metric, alpha=0.05):
-    """Power of each unit's own study to detect ``effect`` (two-sided ``alpha``), exact for its
-    design where n is known, otherwise from its SE by the normal approximation."""
-    from scipy.special import ndtr, ndtri
-    from .power import Design, power_at, to_design_effect
-    out = []
-    zc = float(ndtri(1 - alpha / 2))
-    for u in units:
-        if metric == "z" and u.n_total and u.n_total > 3:
-            r = max(-1 + 1e-12, min(1 - 1e-12, math.tanh(effect)))
-            p = float(power_at(r, u.n_total, "correlation", alpha))
-            how = f"correlation, n = {u.n_total:g}"
-        elif metric == "g" and u.design == "between" and u.n1 and u.n2:
-            p = float(power_at(effect, u.n1, Design("two-group", ratio=u.n2 / u.n1), alpha))
-            how = f"two groups, {u.n1:g} + {u.n2:g}"
-        elif metric == "g" and u.design == "between" and u.n_total and u.n_total > 3:
-            p = float(power_at(effect, u.n_total / 2, "two-group", alpha))
-            how = f"two groups, {u.n_total:g} in all"
-        elif metric == "g" and u.design == "within" and u.n_total and u.within_r is not None:
-            des = Design("paired", planned_r=u.within_r)
-            p = float(power_at(to_design_effect(effect, "d", des), u.n_total, des, alpha))
-            how = f"paired, n = {u.n_total:g}, r = {u.within_r:g}"
-        else:
-            lam = effect / u.se
-            p = float(ndtr(lam - zc) + ndtr(-lam - zc))
-            how = "from its SE (normal approximation)"
-        out.append(StudyPower(u.label, p, how))
-    return out
-
-
-def literature_audit(units, effect, metric) -> LiteratureAudit:
-    rows = unit_powers(units, effect, metric)
-    pw = [r.power for r in rows]
-    return LiteratureAudit(effect, tuple(rows), float(statistics.median(pw)),
-                           float(np.mean(np.array(pw) >= 0.8)))
-
-
-def excess_significance(units, powers) -> ExcessSignificance | NotEstimable:
-    """χ² = (O - E)²/E + (O - E)²/(k - E) on 1 df (Ioannidis & Trikalinos 2007), with O the
-    studies significant at two-sided .05 and E the sum of their powers."""
-    from scipy import stats
-    k = len(units)
-    if k < 2:
-        return NotEstimable("needs at least 2 studies")
-    o = int(sum(abs(u.effect / u.se) > Z975 for u in units))
-    e = float(sum(powers))
-    if not 0 < e < k:
-        return NotEstimable("the expected number of significant studies is 0 or k")
-    chi2 = (o - e) ** 2 / e + (o - e) ** 2 / (k - e)
-    return ExcessSignificance(o, e, k, float(chi2), float(stats.chi2.sf(chi2, 1)))
-
-
-def make_scenarios(effects, pooled, bias, *, adjuster="default", safeguard_level=0.6,
+def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
                    sesoi=None, pessimistic_quantile=0.25, priors=None,
                    sensitivity=True) -> Scenarios:
     """Derive the optimistic / realistic / pessimistic planning effects.
 
     Parameters
     ----------
-    effects : Effects
     pooled : PooledResult
+        With its studies (for the literature audit at the realistic effect).
     bias : BiasResult
     adjuster : {"default", "safeguard", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls"}
         ``default`` plans on the Bayesian model average (:func:`posterior_rule`);
         ``safeguard`` is the earlier rule above; ``median`` always uses the safeguard limit
-        of the median of all four adjusted estimates; a method name plans on that adjuster
-        alone.
+        of the median of all the adjusted estimates; a method's ``adjuster`` name (see
+        :func:`pooler.bias.adjuster_choices`) plans on that adjuster alone.
     safeguard_level : float
         Two-sided level of the safeguard interval (Perugini et al. 2014 use 0.60).
     sesoi : float or None
@@ -293,11 +209,21 @@ def make_scenarios(effects, pooled, bias, *, adjuster="default", safeguard_level
     sensitivity : bool
         Model-average rule: also report the realistic and pessimistic effects under
         :data:`pooler.bma.WIDE_PRIORS`.
+
+    Examples
+    --------
+    >>> from pooler import bias_suite, convert, demo_sheet_path, pool, read_sheet
+    >>> from pooler.scenarios import make_scenarios
+    >>> pooled = pool(convert(read_sheet(demo_sheet_path())))
+    >>> sc = make_scenarios(pooled, bias_suite(pooled))
+    >>> sc.optimistic.effect >= sc.realistic.effect >= sc.pessimistic.effect
+    True
     """
     from scipy.special import ndtri
     # validation
-    if adjuster not in ADJUSTERS:
-        raise OptionError(f"`adjuster` must be one of {', '.join(ADJUSTERS)}, not {adjuster!r}")
+    choices = adjuster_choices()
+    if adjuster not in choices:
+        raise OptionError(f"`adjuster` must be one of {', '.join(choices)}, not {adjuster!r}")
     if not 0 < safeguard_level < 1:
         raise OptionError(f"`safeguard_level` must lie in (0, 1), not {safeguard_level!r}")
     if sesoi is not None and not (sesoi > 0 and (pooled.metric == "g" or sesoi < 1)):
@@ -316,7 +242,7 @@ def make_scenarios(effects, pooled, bias, *, adjuster="default", safeguard_level
                           f"random-effects estimate of {k} stud{'y' if k == 1 else 'ies'}, "
                           "as published")
     if adjuster == "default":
-        return posterior_rule(effects, pooled, optimistic, sesoi_m=sesoi_m, sesoi=sesoi,
+        return posterior_rule(pooled, optimistic, sesoi_m=sesoi_m, sesoi=sesoi,
                               safeguard_level=safeguard_level,
                               pessimistic_quantile=pessimistic_quantile, priors=priors,
                               sensitivity=sensitivity)
@@ -325,27 +251,32 @@ def make_scenarios(effects, pooled, bias, *, adjuster="default", safeguard_level
     sm = bias.selection_3psm
     ok, why_not = selection_identified(sm, k)
     tau2 = pooled.tau2
-    if adjuster in _ADJ_KEY:
-        key = _ADJ_KEY[adjuster]
-        if key not in adjusted:
-            raise OptionError(f"--adjuster {adjuster}: that method is not estimable here "
-                              f"({_reason(bias, adjuster)}); choose another or the default rule")
-        est, se = adjusted[key]
-        basis = f"{key} alone (chosen with --adjuster)"
-        if key == "selection model":
-            tau2 = sm.tau2
+    chosen = {m.adjuster: m for m in bias.methods if m.can_plan}.get(adjuster)
+    if chosen is not None:
+        if chosen.key not in adjusted:
+            raise OptionError(f"`adjuster` {adjuster}: that method is not estimable here "
+                              f"({_reason(bias, chosen.key)}); choose another or the default "
+                              "rule", parameter="adjuster")
+        est, se = adjusted[chosen.key]
+        basis = f"{chosen.label} alone (chosen with --adjuster)"
+        used = (chosen.key,)
+        if chosen.own_tau2:
+            tau2 = bias[chosen.key].tau2
     elif adjuster == "safeguard" and ok:
         est, se = sm.estimate, sm.se
         tau2 = sm.tau2
         basis = (f"selection model, {k} studies, {sm.k_nonsignificant} non-significant "
                  f"(omega = {sm.omega:.2f})")
+        used = ("selection_3psm",)
     else:
         # the fallback plans on the selection-robust adjusters only (the selection model, when
         # it can be fitted at all, and PET-PEESE); trim-and-fill and WAAP-WLS barely correct
         # under selection (see the calibration in the README) and are used only when neither
         # of those can be computed; --adjuster median uses all four
-        robust = {kk: vv for kk, vv in adjusted.items() if kk in ROBUST}
+        robust = {kk: vv for kk, vv in adjusted.items() if bias.method(kk).robust}
         pool_of = adjusted if adjuster == "median" or not robust else robust
+        used = tuple(pool_of)
+        names = ", ".join(bias.method(kk).label for kk in pool_of)
         if not pool_of:
             est, se = opt_est, opt_se
             basis = "no bias adjustment could be computed: the random-effects estimate"
@@ -357,14 +288,14 @@ def make_scenarios(effects, pooled, bias, *, adjuster="default", safeguard_level
             what = (f"{len(pool_of)} adjusted estimates" if len(pool_of) > 1
                     else "the adjusted estimate")
             basis = (f"{lead}safeguard limit ({100 * safeguard_level:g}%) of the median of "
-                     f"{what} ({', '.join(pool_of)}; median {sym} = {est_med:.3f})"
+                     f"{what} ({names}; median {sym} = {est_med:.3f})"
                      if len(pool_of) > 1 else
                      f"{lead}safeguard limit ({100 * safeguard_level:g}%) of {what} "
-                     f"({', '.join(pool_of)}: {sym} = {est_med:.3f})")
+                     f"({names}: {sym} = {est_med:.3f})")
     if est > opt_est:
         basis += "; capped at the optimistic estimate"
         est = opt_est
-    realistic = Scenario("realistic", float(est), float(se), basis)
+    realistic = Scenario("realistic", float(est), float(se), basis, used)
 
     pess = est - z * se
     pbasis = (f"lower limit of a {100 * safeguard_level:g}% safeguard interval around the "
@@ -395,21 +326,18 @@ def make_scenarios(effects, pooled, bias, *, adjuster="default", safeguard_level
     sd = math.sqrt(se ** 2 + tau2) if se is not None else float("nan")
     predictive = ((realistic.effect, sd) if math.isfinite(sd) and sd > 0
                   else NotEstimable("no SE for the realistic effect"))
-    audit = literature_audit(effects.units, realistic.effect, metric)
-    tes = excess_significance(effects.units, [r.power for r in audit.rows])
     return Scenarios(metric, optimistic, realistic, pessimistic, adjuster, safeguard_level, sesoi,
-                     supported, verdict, predictive, audit, tes)
+                     supported, verdict, predictive)
 
 
-def _reason(bias, adjuster) -> str:
-    res = {"3psm": bias.selection_3psm, "pet-peese": bias.pet_peese,
-           "trim-and-fill": bias.trim_and_fill, "waap-wls": bias.waap_wls}[adjuster]
+def _reason(bias, key) -> str:
+    res = bias[key]
     return res.reason if isinstance(res, NotEstimable) else "no standard error"
 
 
 # ------------------------------------------------------------------ the model-average rule
 
-def posterior_rule(effects, pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
+def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
                    pessimistic_quantile=0.25, priors=None, sensitivity=True) -> Scenarios:
     """The default rule: realistic and pessimistic effects from the Bayesian model average
     over publication-bias models (:mod:`pooler.bma`; Bartoš et al. 2023).
@@ -424,8 +352,8 @@ def posterior_rule(effects, pooled, optimistic, *, sesoi_m, sesoi, safeguard_lev
     metric = pooled.metric
     sym = "g" if metric == "g" else "z"
     k = pooled.k
-    y = np.array([u.effect for u in effects.units], float)
-    v = np.array([u.variance for u in effects.units], float)
+    y = np.array([u.effect for u in pooled.studies], float)
+    v = np.array([u.variance for u in pooled.studies], float)
     pr = DEFAULT_PRIORS if priors is None else priors
     avg = model_average(y, v, metric, pr)
     if avg.p_positive <= 0:
@@ -496,10 +424,8 @@ def posterior_rule(effects, pooled, optimistic, *, sesoi_m, sesoi, safeguard_lev
     mean = float(np.dot(nodes, probs))
     sd = float(math.sqrt(max(np.dot(probs, (nodes - mean) ** 2), 0.0)))
     predictive = ((mean, sd) if sd > 0 else NotEstimable("the predictive distribution has no spread"))
-    audit = literature_audit(effects.units, realistic.effect, metric)
-    tes = excess_significance(effects.units, [r.power for r in audit.rows])
     return Scenarios(metric, optimistic, realistic, pessimistic, "default", safeguard_level, sesoi,
-                     supported, verdict, predictive, audit, tes, posterior=avg,
+                     supported, verdict, predictive, posterior=avg,
                      sensitivity=sens, predictive_table=(nodes, probs))
 
 

@@ -26,9 +26,16 @@ from ._results import estimable, to_jsonable
 from ._threads import single_threaded
 from .errors import OptionError
 
-#: Estimators whose bias and RMSE are reported.
-ESTIMATORS = ("random effects", "selection model", "PET-PEESE", "trim-and-fill", "WAAP-WLS",
-              "median of adjusters", "realistic", "pessimistic")
+
+def estimator_names() -> tuple[str, ...]:
+    """Estimators whose bias and RMSE are reported: the random-effects estimate, every
+    registered bias method that can set the planning effect (by its label, the column name of
+    ``pooler.stress/1``), the median of those, and the two adjusted planning scenarios."""
+    from .bias import planning_methods
+    return (("random effects",) + tuple(m.label for m in planning_methods())
+            + ("median of adjusters", "realistic", "pessimistic"))
+
+
 #: Planning rules whose recommended n is evaluated.
 RULES = ("random effects", "median of adjusters", "realistic", "pessimistic")
 CHUNK = 20
@@ -115,18 +122,17 @@ def simulate_literature(rng, cell: Cell, shapes: Shapes):
     raise RuntimeError("selection so strong that no literature could be completed")
 
 
-def _effects_for(y, v, idx, shapes):
-    from .effects import Effects, Unit
-    units = tuple(Unit(label=f"sim{j}", effect=float(a), variance=float(b),
-                       n_total=float(shapes.n1[i] if shapes.within[i]
-                                     else shapes.n1[i] + shapes.n2[i]),
-                       n1=None if shapes.within[i] else float(shapes.n1[i]),
-                       n2=None if shapes.within[i] else float(shapes.n2[i]),
-                       design="within" if shapes.within[i] else "between", rows=(j + 2,),
-                       within_r=float(shapes.r[i]) if shapes.within[i] else None)
-                  for j, (a, b, i) in enumerate(zip(y, v, idx)))
-    return Effects(metric="g", rows=(), units=units, assumptions=(), warnings=(), file="simulated",
-                   sha256="", within_r=0.5, sample_r=0.5)
+def _studies_for(y, v, idx, shapes):
+    """The simulated literature as the studies a pooled result carries (their n and design)."""
+    from .effects import Unit
+    return tuple(Unit(label=f"sim{j}", effect=float(a), variance=float(b),
+                      n_total=float(shapes.n1[i] if shapes.within[i]
+                                    else shapes.n1[i] + shapes.n2[i]),
+                      n1=None if shapes.within[i] else float(shapes.n1[i]),
+                      n2=None if shapes.within[i] else float(shapes.n2[i]),
+                      design="within" if shapes.within[i] else "between", rows=(j + 2,),
+                      within_r=float(shapes.r[i]) if shapes.within[i] else None)
+                 for j, (a, b, i) in enumerate(zip(y, v, idx)))
 
 
 def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0.8,
@@ -137,22 +143,20 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
     counted as "no positive planning effect".
     """
     from .bias import bias_suite
-    from .pooling import pool
+    from .bias import planning_methods
+    from .pooling import pool_studies
     from .power import n_for_power, power_at
     from .scenarios import make_scenarios
-    eff = _effects_for(y, v, idx, shapes)
-    pooled = pool(eff, influence=False)
+    pooled = pool_studies(_studies_for(y, v, idx, shapes), "g", influence=False, file="simulated")
     bias = bias_suite(pooled)
-    sc = make_scenarios(eff, pooled, bias, sensitivity=False)
+    sc = make_scenarios(pooled, bias, sensitivity=False)
     adj = bias.adjusted()
-    est = {"random effects": pooled.mu,
-           "selection model": adj.get("selection model", (math.nan,))[0],
-           "PET-PEESE": adj.get("PET-PEESE", (math.nan,))[0],
-           "trim-and-fill": adj.get("trim-and-fill", (math.nan,))[0],
-           "WAAP-WLS": adj.get("WAAP-WLS", (math.nan,))[0],
-           "median of adjusters": statistics.median(e for e, _ in adj.values()) if adj
-           else pooled.mu,
-           "realistic": sc.realistic.effect, "pessimistic": sc.pessimistic.effect}
+    est = {"random effects": pooled.mu}
+    for m in planning_methods():
+        est[m.label] = adj.get(m.key, (math.nan,))[0]
+    est.update({"median of adjusters": statistics.median(e for e, _ in adj.values()) if adj
+                else pooled.mu,
+                "realistic": sc.realistic.effect, "pessimistic": sc.pessimistic.effect})
     plan_eff = np.array([est[r] for r in RULES])
     res = n_for_power(np.where(plan_eff > 0, plan_eff, 0.0), power, design, alpha)
     true = np.where(res.reachable, power_at(delta, np.maximum(res.n, 2), design, alpha), np.nan)
@@ -163,12 +167,12 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
 def _run_chunk(args):
     cell, shapes, reps, seed_seq, design, power = args
     rng = np.random.default_rng(seed_seq)
-    ests = {e: [] for e in ESTIMATORS}
+    ests = {e: [] for e in estimator_names()}
     pows = {r: [] for r in RULES}
     for _ in range(reps):
         y, v, idx = simulate_literature(rng, cell, shapes)
         est, pw = evaluate_literature(y, v, idx, shapes, cell.delta, design=design, power=power)
-        for kname in ESTIMATORS:
+        for kname in ests:
             ests[kname].append(est[kname])
         for r in RULES:
             pows[r].append(pw[r])
@@ -282,7 +286,7 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
     out = []
     for ci, cell in enumerate(cells):
         ests = {e: np.concatenate([np.array(ch[0][e], float) for ch in results[ci]])
-                for e in ESTIMATORS}
+                for e in results[ci][0][0]}
         pows = {r: np.concatenate([np.array(ch[1][r], float) for ch in results[ci]])
                 for r in RULES}
         out.append(CellResult(cell, ests, pows))
@@ -295,11 +299,14 @@ def grid_around(analysis, scale=(0.5, 1.0, 1.5), pis=(1.0, 0.2, 0.05)) -> list[C
     no selection to strong selection, k = the user's number of samples."""
     sc, bias, pooled = analysis.scenarios, analysis.bias, analysis.pooled
     if analysis.pooled.metric != "g":
-        raise OptionError("the stress test simulates standardised mean differences: use --metric d")
+        raise OptionError("`metric` must be 'd' for the stress test: it simulates standardised "
+                          "mean differences", parameter="metric")
     r = sc.realistic.effect
     deltas = [round(s * r, 3) for s in scale] if r > 0 else [0.1, 0.2, 0.3]
-    sm = bias.selection_3psm
-    tau2 = sm.tau2 if estimable(sm) and "selection model" in sc.realistic.basis else pooled.tau2
+    # τ² of the method the realistic effect was computed from, when it has its own
+    own = [bias[key] for key in sc.realistic.methods
+           if bias.method(key).own_tau2 and estimable(bias[key])]
+    tau2 = own[0].tau2 if own else pooled.tau2
     tau = round(math.sqrt(max(tau2, 0.0)), 3)
     return [Cell(max(pooled.k, 2), d, tau, p) for d in deltas for p in pis]
 

@@ -14,11 +14,12 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import integrate, stats
 
+from pooler.audit import excess_significance, unit_powers
 from pooler.bias import (Z975, _k0, bias_suite, egger_test, eta_adjusted, pet, peese,
                          pet_peese, selection_loglik, selection_model, selection_ratio,
                          trim_and_fill, waap_wls)
 from pooler.pooling import pool, random_effects
-from pooler.scenarios import excess_significance, make_scenarios, unit_powers
+from pooler.scenarios import make_scenarios
 
 from test_pooling import make_effects
 
@@ -262,7 +263,7 @@ def scenario_inputs(k, **kw):
 
 def test_scenarios_use_identified_selection_model():
     eff, pooled, bias = scenario_inputs(40, delta=0.2, publish_ns=0.2, seed=13)
-    sc = make_scenarios(eff, pooled, bias, adjuster="safeguard")  # the earlier rule
+    sc = make_scenarios(pooled, bias, adjuster="safeguard")  # the earlier rule
     assert "selection model" in sc.realistic.basis
     assert sc.realistic.effect == min(bias.selection_3psm.estimate, pooled.mu)
     z = stats.norm.ppf(0.8)   # 60 % two-sided safeguard (Perugini et al. 2014)
@@ -275,8 +276,8 @@ def test_scenarios_fall_back_to_robust_median_safeguard_below_20_studies():
     # default fallback: the safeguard limit (Perugini et al. 2014) of the median of the
     # selection-robust adjusters (selection model, PET-PEESE)
     eff, pooled, bias = scenario_inputs(12, delta=0.3, publish_ns=0.3, seed=14)
-    sc = make_scenarios(eff, pooled, bias, adjuster="safeguard")  # the earlier rule
-    adj = {k: v for k, v in bias.adjusted().items() if k in ("selection model", "PET-PEESE")}
+    sc = make_scenarios(pooled, bias, adjuster="safeguard")  # the earlier rule
+    adj = {k: v for k, v in bias.adjusted().items() if k in ("selection_3psm", "pet_peese")}
     assert len(adj) == 2
     med = np.median([e for e, _ in adj.values()])
     se = np.median([s for _, s in adj.values()])
@@ -285,7 +286,7 @@ def test_scenarios_fall_back_to_robust_median_safeguard_below_20_studies():
     assert "median of 2 adjusted estimates (selection model, PET-PEESE" in sc.realistic.basis
     assert_allclose(sc.realistic.effect, expect, rtol=1e-12)
     # --adjuster median: all four adjusted estimates
-    allm = make_scenarios(eff, pooled, bias, adjuster="median")
+    allm = make_scenarios(pooled, bias, adjuster="median")
     a4 = bias.adjusted()
     med4 = np.median([e for e, _ in a4.values()])
     se4 = np.median([s for _, s in a4.values()])
@@ -296,20 +297,20 @@ def test_scenarios_fall_back_to_robust_median_safeguard_below_20_studies():
 
 def test_sesoi_floor_and_unsupported_verdict():
     eff, pooled, bias = scenario_inputs(40, delta=0.2, publish_ns=0.2, seed=13)
-    sc = make_scenarios(eff, pooled, bias, sesoi=0.15)
+    sc = make_scenarios(pooled, bias, sesoi=0.15)
     assert sc.pessimistic.effect >= 0.15
     eff0, pooled0, bias0 = scenario_inputs(30, delta=-0.1, tau=0.0, publish_ns=0.05, seed=15)
-    sc0 = make_scenarios(eff0, pooled0, bias0, adjuster="pet-peese")
+    sc0 = make_scenarios(pooled0, bias0, adjuster="pet-peese")
     assert sc0.realistic.effect <= 0      # a null literature under strong selection (seed 15)
     assert not sc0.supported and "--sesoi" in sc0.verdict
-    sc1 = make_scenarios(eff0, pooled0, bias0, adjuster="pet-peese", sesoi=5.0)
+    sc1 = make_scenarios(pooled0, bias0, adjuster="pet-peese", sesoi=5.0)
     assert not sc1.supported
     assert sc1.realistic.effect == 5.0 == sc1.pessimistic.effect
 
 
 def test_single_adjuster_option():
     eff, pooled, bias = scenario_inputs(25, delta=0.3, publish_ns=0.3, seed=16)
-    sc = make_scenarios(eff, pooled, bias, adjuster="trim-and-fill")
+    sc = make_scenarios(pooled, bias, adjuster="trim-and-fill")
     assert sc.realistic.effect == min(bias.trim_and_fill.estimate, pooled.mu)
     assert "trim-and-fill alone" in sc.realistic.basis
 
@@ -372,7 +373,7 @@ def test_realistic_interval_is_the_safeguard_interval():
     # Perugini, Gallucci & Costantini (2014): the pessimistic value is the lower limit of the
     # two-sided safeguard interval (60 %) around the realistic estimate
     eff, pooled, bias = scenario_inputs(40, delta=0.2, publish_ns=0.2, seed=13)
-    sc = make_scenarios(eff, pooled, bias, adjuster="safeguard")  # the earlier rule
+    sc = make_scenarios(pooled, bias, adjuster="safeguard")  # the earlier rule
     iv = sc.realistic_interval()
     z = stats.norm.ppf(0.8)
     assert_allclose([iv.low, iv.high], [sc.realistic.effect - z * sc.realistic.se,

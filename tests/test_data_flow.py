@@ -1,0 +1,52 @@
+"""Each stage takes the stage before it and nothing older: the pooled result carries its
+studies; the scenarios need only (pooled, bias); the audit only (pooled, effect)."""
+from __future__ import annotations
+
+import inspect
+import json
+
+import numpy as np
+
+from pooler.audit import Audit, audit_literature, excess_significance, unit_powers
+from pooler.bias import bias_suite
+from pooler.pooling import pool
+from pooler.scenarios import make_scenarios
+
+from test_pooling import make_effects
+
+Y = np.array([0.52, 0.31, 0.44, 0.12, 0.65, 0.28, 0.05, 0.39])
+V = np.array([0.040, 0.025, 0.050, 0.010, 0.080, 0.030, 0.012, 0.045])
+
+
+def test_pooled_result_carries_its_studies():
+    eff = make_effects(Y, V)
+    pooled = pool(eff)
+    assert pooled.studies == eff.units
+    assert [s.effect for s in pooled.studies] == list(pooled.effects)
+    assert pool(eff, influence=False).studies == eff.units
+
+
+def test_later_stages_take_only_the_stage_before():
+    assert list(inspect.signature(make_scenarios).parameters)[:2] == ["pooled", "bias"]
+    assert list(inspect.signature(audit_literature).parameters) == ["pooled", "effect"]
+
+
+def test_audit_stage_is_the_studies_power_at_the_realistic_effect():
+    eff = make_effects(Y, V)
+    pooled = pool(eff)
+    sc = make_scenarios(pooled, bias_suite(pooled))
+    au = audit_literature(pooled, sc.realistic.effect)
+    assert isinstance(au, Audit) and au.effect == sc.realistic.effect
+    powers = [r.power for r in unit_powers(eff.units, sc.realistic.effect, "g")]
+    assert [r.power for r in au.literature.rows] == powers
+    assert au.excess_significance == excess_significance(eff.units, powers)
+    json.dumps(au.to_dict(), allow_nan=False)
+
+
+def test_pool_document_keeps_the_audit_where_the_contract_puts_it(run_cli, write_sheet):
+    rows = [{"study": f"Invented {i}", "stat": "d", "value": y, "n1": 40, "n2": 40}
+            for i, y in enumerate(Y)]
+    doc = json.loads(run_cli("pool", write_sheet(rows), "--json").stdout)
+    assert list(doc["bias"])[-1] == "excess_significance"
+    assert list(doc["scenarios"])[-1] == "audit"
+    assert {"effect", "median_power", "share_adequate", "rows"} <= set(doc["scenarios"]["audit"])
