@@ -216,7 +216,11 @@ def _pooling_options(f):
 def _scenario_options(f):
     f = click.option("--sesoi", type=float, default=None, callback=_positive,
                      help="Smallest effect size of interest (d, or r): the pessimistic scenario "
-                          "never goes below it.")(f)
+                          "never goes below it, and it is the plan when the literature's "
+                          "posterior favours no positive effect. Choose it before looking at "
+                          "the literature: the smallest effect that would matter in practice "
+                          "or to your theory, or the effect the earlier studies could just "
+                          "have detected (Lakens, Scheel & Isager 2018).")(f)
     f = click.option("--safeguard", "safeguard_level", type=float,
                      default=ANALYSIS_DEFAULTS["safeguard_level"], show_default=True,
                      callback=_fraction(0, 1, percent=True, hint="a two-sided level, e.g. 0.6"),
@@ -224,8 +228,10 @@ def _scenario_options(f):
                           "scenario (Perugini et al. 2014).")(f)
     f = click.option("--adjuster", type=click.Choice(list(ADJUSTERS)),
                      default=ANALYSIS_DEFAULTS["adjuster"], show_default=True,
-                     help="How the realistic scenario is chosen: the default rule, the "
-                          "safeguard limit of the median of the adjusters, or one adjuster.")(f)
+                     help="How the realistic scenario is chosen: the default Bayesian model "
+                          "average over publication-bias models, the earlier safeguard rule, "
+                          "the safeguard limit of the median of the adjusters, or one "
+                          "adjuster.")(f)
     return f
 
 
@@ -428,7 +434,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
                             safeguard_level, sesoi)
         sc = analysis.scenarios
         scen = sc.planning_effects()
-        predictive = sc.predictive if isinstance(sc.predictive, tuple) else None
+        predictive = sc.assurance_density()
         pmetric = sc.planning_metric
         label = "g" if pmetric == "d" else "r"
     elif effects:

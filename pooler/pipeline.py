@@ -31,6 +31,8 @@ class Analysis:
         doc["bias"] = bias
         doc["scenarios"] = {**self.scenarios.to_dict(),
                             "audit": to_jsonable(self.audit.literature)}
+        if "model_average" in doc["scenarios"]:
+            doc["model_average"] = doc["scenarios"].pop("model_average")
         weight = {}
         for u, w in zip(self.effects.units, self.pooled.weights):
             for r in u.rows:
@@ -112,7 +114,7 @@ def run(sheet_path, *, design, analysis_options, plan_options: dict,
     a = analyse(sheet_path, progress=progress, **analysis_options)
     sc = a.scenarios
     p = make_plan(sc.planning_effects(), design, metric=sc.planning_metric,
-                  predictive=sc.predictive if isinstance(sc.predictive, tuple) else None,
+                  predictive=sc.assurance_density(),
                   effect_label="g" if sc.planning_metric == "d" else "r", **plan_options)
     opts = {**analysis_options, **plan_options, "design": design.to_dict()
             if hasattr(design, "to_dict") else design}

@@ -149,7 +149,7 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
     from .scenarios import make_scenarios
     pooled = pool_studies(_studies_for(y, v, idx, shapes), "g", influence=False, file="simulated")
     bias = bias_suite(pooled)
-    sc = make_scenarios(pooled, bias)
+    sc = make_scenarios(pooled, bias, sensitivity=False)
     adj = bias.adjusted()
     est = {"random effects": pooled.mu}
     for m in planning_methods():
