@@ -216,7 +216,11 @@ def _pooling_options(f):
 def _scenario_options(f):
     f = click.option("--sesoi", type=float, default=None, callback=_positive,
                      help="Smallest effect size of interest (d, or r): the pessimistic scenario "
-                          "never goes below it.")(f)
+                          "never goes below it, and it is the plan when the literature's "
+                          "posterior favours no positive effect. Choose it before looking at "
+                          "the literature: the smallest effect that would matter in practice "
+                          "or to your theory, or the effect the earlier studies could just "
+                          "have detected (Lakens, Scheel & Isager 2018).")(f)
     f = click.option("--safeguard", "safeguard_level", type=float,
                      default=ANALYSIS_DEFAULTS["safeguard_level"], show_default=True,
                      callback=_fraction(0, 1, percent=True, hint="a two-sided level, e.g. 0.6"),
@@ -224,8 +228,10 @@ def _scenario_options(f):
                           "scenario (Perugini et al. 2014).")(f)
     f = click.option("--adjuster", type=click.Choice(list(ADJUSTERS)),
                      default=ANALYSIS_DEFAULTS["adjuster"], show_default=True,
-                     help="How the realistic scenario is chosen: the default rule, the "
-                          "safeguard limit of the median of the adjusters, or one adjuster.")(f)
+                     help="How the realistic scenario is chosen: the default Bayesian model "
+                          "average over publication-bias models, the earlier safeguard rule, "
+                          "the safeguard limit of the median of the adjusters, or one "
+                          "adjuster.")(f)
     return f
 
 
@@ -428,7 +434,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
                             safeguard_level, sesoi)
         sc = analysis.scenarios
         scen = sc.planning_effects()
-        predictive = sc.predictive if isinstance(sc.predictive, tuple) else None
+        predictive = sc.assurance_density()
         pmetric = sc.planning_metric
         label = "g" if pmetric == "d" else "r"
     elif effects:
@@ -684,6 +690,7 @@ def template(path, force):
 # ---- pooler paths: simulated power for mediation and moderation (pooler.simdesign) ----------
 
 @main.command("paths")
+@click.argument("sheet", required=False, type=click.Path(dir_okay=False))
 @click.option("--design", "design_name", required=True,
               type=click.Choice(["simple-mediation", "parallel-mediation", "serial-mediation",
                                  "moderation"]),
@@ -727,6 +734,10 @@ def template(path, force):
               help="The values in --paths-file are correlations between the named variables "
                    "(X-M1, M1-Y, X-Y, M1-M2, ...; every pair), e.g. pooled from literatures; "
                    "the paths are the standardized coefficients they imply. Mediation only.")
+@click.option("--pair", "pair_values", multiple=True, metavar="PAIR=R",
+              help="With a SHEET: the correlation of a pair that has no rows, e.g. "
+                   "--pair X-M2=0.2 (any pair of the model; repeatable; used in every "
+                   "scenario).")
 @click.option("--test", "test_name", default=None,
               type=click.Choice(["joint", "monte-carlo", "bootstrap", "sobel"]),
               help="Test of the indirect effects [default: monte-carlo]; sobel only for "
@@ -757,14 +768,19 @@ def template(path, force):
 @click.option("--force", is_flag=True, help="Write into --out even if it is not empty and "
               "pooler did not write it (a folder pooler wrote is replaced by a rerun).")
 @_json_option
-def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
+def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
               interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
-              binary_moderator, paths_file, as_correlations, test_name, fixed_n, powers, alpha, reps, draws,
+              binary_moderator, paths_file, as_correlations, pair_values, test_name, fixed_n, powers, alpha, reps, draws,
               resamples, seed, workers, scheduler, out_dir, fmt, force, as_json):
     """Sample size (or power) for mediation and moderation, by simulation.
 
     Give the standardized paths as options, or several scenarios of them in
-    --paths-file. The table shows, for each indirect effect (and for the
+    --paths-file, or a SHEET of reported results with a 'path' column naming the pair of
+    variables each row links (X-M1, M1-Y, X-Y, M1-M2, ...): each pair is then pooled from its
+    own rows, its optimistic / realistic / pessimistic correlations form one correlation
+    matrix per scenario, and each scenario is planned on the standardized paths that matrix
+    implies. With a SHEET, --a, --b, --direct and --m1-m2 give the correlation of a pair
+    that has no literature (X-Mi, Mi-Y, X-Y, M1-M2), the same in every scenario. The table shows, for each indirect effect (and for the
     total and for "all indirect effects significant" with several mediators), the n that
     reaches each target power, a 95 % Monte Carlo interval for that n, and the power
     confirmed at n with its Monte Carlo SE. Moderation plans for the interaction.
@@ -778,6 +794,7 @@ def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect
       pooler paths --design moderation --slope-high 0.375 --slope-low 0.225 \\
           --z-effect 0.3 --x-reliability 0.8 --z-reliability 0.8
       pooler paths --design parallel-mediation --paths-file my_paths.csv --direct 0.1
+      pooler paths demo_literature/garden_paths.csv --design parallel-mediation --out garden
     """
     from .errors import OptionError
     from .pathsreport import methods_paragraph, plan_text, power_text, render_files
@@ -828,7 +845,56 @@ def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect
              "M2-Y": "--b twice: M1-Y, then M2-Y",
              "X-Y": "--x-effect, or --slope-high and --slope-low",
              "XZ-Y": "--interaction, or --slope-high and --slope-low"}
-    if as_correlations:
+    ps = None
+    if pair_values and not sheet:
+        raise OptionError("--pair gives a pair's correlation for a SHEET of path literatures; "
+                          "without one, give the paths with --a, --b, --direct, ...")
+    if sheet:
+        from .pathsheet import pool_paths
+        if design_name == "moderation":
+            raise OptionError("a SHEET of path literatures feeds the mediation designs; give "
+                              "a moderation's paths as options")
+        if paths_file or as_correlations:
+            raise OptionError("give the paths either in SHEET or in --paths-file, not both")
+        if mediator_r:
+            raise OptionError("--mediator-r does not apply with a SHEET: the mediators' "
+                              "residual correlation follows from their correlation (rows "
+                              "for M1-M2, or --m1-m2)")
+        pairs, names = {}, {}
+        a_, b_ = list(a_paths), list(b_paths)
+        if design_name == "simple-mediation":
+            if len(a_) > 1 or len(b_) > 1:
+                raise OptionError("simple mediation takes one --a and one --b")
+            med = ["M"]
+        else:
+            med = [f"M{i}" for i in range(1, max(len(a_), len(b_), 2) + 1)]
+        for i, v in enumerate(a_):
+            pairs[f"X-{med[i]}"], names[f"X-{med[i]}"] = v, f"--a #{i + 1} (r of X and {med[i]})"
+        for i, v in enumerate(b_):
+            pairs[f"{med[i]}-Y"], names[f"{med[i]}-Y"] = v, f"--b #{i + 1} (r of {med[i]} and Y)"
+        if direct is not None:
+            pairs["X-Y"], names["X-Y"] = direct, "--direct (r of X and Y)"
+        if m1_m2 is not None:
+            pairs["M1-M2"], names["M1-M2"] = m1_m2, "--m1-m2 (r of M1 and M2)"
+        from .pathsheet import split_path
+        for text in pair_values:
+            key, eq, val = text.partition("=")
+            pr = split_path(key)
+            try:
+                r = float(val) if eq else None
+            except ValueError:
+                r = None
+            if pr is None or r is None:
+                raise OptionError(f"--pair {text!r}: write a pair and its correlation, "
+                                  "e.g. --pair X-M2=0.2")
+            k = "-".join(pr)
+            if k in pairs or "-".join(pr[::-1]) in pairs:
+                raise OptionError(f"--pair {text!r}: the pair {k} is given twice")
+            pairs[k], names[k] = r, f"--pair {text}"
+        ps = pool_paths(sheet, design_name, pairs, option_names=names)
+        _echo_warnings(ps.warnings)
+        scenarios = dict(ps.designs)
+    elif as_correlations:
         if not paths_file:
             raise OptionError("--correlations reads the correlations from --paths-file")
         if design_name == "moderation":
@@ -870,10 +936,16 @@ def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect
         res = [sd.simulate_power(d, fixed_n, reps=reps, stream=i, **common)
                for i, d in enumerate(scenarios.values())]
         if as_json:
-            _print_json({"schema": "pooler.paths-power/1",
-                         "scenarios": [dict(r.to_dict(), scenario=lab)
-                                       for lab, r in zip(scenarios, res)]})
+            doc = {"schema": "pooler.paths-power/1",
+                   "scenarios": [dict(r.to_dict(), scenario=lab)
+                                 for lab, r in zip(scenarios, res)]}
+            if ps is not None:
+                doc["paths"] = ps.to_dict()
+            _print_json(doc)
         else:
+            if ps is not None:
+                from .pathsreport import paths_sheet_text
+                click.echo(paths_sheet_text(ps))
             click.echo("\n".join((f"{lab}: " if lab else "") + power_text(r)
                                   for lab, r in zip(scenarios, res)) + note, nl=bool(note))
         return
@@ -886,15 +958,28 @@ def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect
     methods = methods_paragraph(results, search_reps, draws, resamples)
     options = {"design": design_name, "test": test_used, "alpha": alpha, "reps": search_reps,
                "draws": draws, "resamples": resamples, "seed": seed,
-               "paths_file": paths_file}
+               "paths_file": paths_file, "sheet": sheet}
     if out_dir:
         from .outputs import write
-        paths = write(render_files(results, options, methods, fmt), out_dir, force=force)
+        if ps is not None:
+            from .pathsreport import render_sheet_files
+            files = render_sheet_files(results, ps, options, methods, fmt)
+        else:
+            files = render_files(results, options, methods, fmt)
+        paths = write(files, out_dir, force=force)
     if as_json:
         from .pathsreport import SCHEMA
-        _print_json({"schema": SCHEMA, "scenarios": [r.to_dict() for r in results],
-                     "options": options, "methods": methods})
+        doc = {"schema": SCHEMA, "scenarios": [r.to_dict() for r in results],
+               "options": options, "methods": methods}
+        if ps is not None:
+            from .pathsreport import sheet_methods_paragraph
+            doc["paths"] = ps.to_dict()
+            doc["methods"] = sheet_methods_paragraph(ps) + " " + methods
+        _print_json(doc)
     else:
+        if ps is not None:
+            from .pathsreport import paths_sheet_text
+            click.echo(paths_sheet_text(ps))
         click.echo(plan_text(results, note))
         if out_dir:
             click.echo(f"Written to {out_dir}/: " + ", ".join(p.name for p in paths))

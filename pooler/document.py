@@ -207,8 +207,11 @@ def build_blocks(run) -> list[Block]:
     asr = plan.assurance
     if asr is not None:
         if estimable(asr):
-            b.append(Block("p", f"Assurance over Normal({asr.mean:.3f}, {asr.sd:.3f}^2) "
-                                f"(ceiling {asr.ceiling:.3f}):"))
+            dist = (f"Normal({asr.mean:.3f}, {asr.sd:.3f}^2)"
+                    if getattr(asr, "form", "normal") == "normal" else
+                    f"the model-averaged posterior predictive (mean {asr.mean:.3f}, "
+                    f"SD {asr.sd:.3f})")
+            b.append(Block("p", f"Assurance over {dist} (ceiling {asr.ceiling:.3f}):"))
             arows, why = [], []
             for t, n, nt, ach in zip(asr.targets, asr.n, asr.n_total, asr.achieved):
                 if isinstance(n, NotEstimable):

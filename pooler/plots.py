@@ -278,7 +278,6 @@ def save(fig, path, fmt: str) -> None:
 def stress_plot(res, *, ax=None):
     """Median true power (marker) and its 10th percentile (line end) of the n each planning
     rule recommends, per simulation cell, with the target power drawn."""
-    from .simulate import RULES
     colours = {"random effects": SKY, "median of adjusters": GREEN, "realistic": BLUE,
                "pessimistic": VERMILION}
     fig = None
@@ -287,8 +286,8 @@ def stress_plot(res, *, ax=None):
     else:
         fig = ax.figure
     cells = res.cells
-    offs = np.linspace(-0.27, 0.27, len(RULES))
-    for off, rule in zip(offs, RULES):
+    offs = np.linspace(-0.27, 0.27, len(res.rules))
+    for off, rule in zip(offs, res.rules):
         xs, med, p10 = [], [], []
         for i, c in enumerate(cells):
             a = c.true_power[rule]
