@@ -264,8 +264,8 @@ def _analysis_options(f):
 def _check_sesoi(sesoi, metric):
     if sesoi is not None and metric == "r" and not sesoi < 1:
         from .errors import OptionError
-        raise OptionError(f"--smallest-effect {sesoi:g} is not a correlation; with the r metric the "
-                          "smallest effect of interest must lie below 1")
+        raise OptionError(f"--smallest-effect {sesoi:g} is not a correlation; with the r metric "
+                          "the smallest effect of interest must lie below 1")
 
 
 def _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster, safeguard_level,
@@ -614,9 +614,9 @@ def demo_cmd(ctx, **params):
 @main.command()
 @click.argument("sheet", type=click.Path(dir_okay=False), required=False)
 @click.option("--calibration", is_flag=True,
-              help="Run the general calibration grid (k 10/20/40, delta 0.1/0.2/0.4, tau "
-                   "0/0.1/0.2, pi 1/0.2/0.05; two-group studies, 20-100 per group) instead of "
-                   "a grid around SHEET.")
+              help="Run the general calibration grid (k 5/10/20/40, delta 0.1/0.2/0.4, tau "
+                   "0/0.1/0.2, pi 1/0.2/0.05; two-group studies of 10-60 per group and a "
+                   "quarter paired studies of 10-60) instead of a grid around SHEET.")
 @click.option("--reps", type=click.IntRange(min=1), default=60, show_default=True,
               help="Simulated literatures per grid cell.")
 @click.option("--seed", type=int, default=2026, show_default=True, help="Random seed.")
@@ -659,7 +659,7 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
         from .outputs import check_out
         check_out(out_dir, force)
     if calibration:
-        cells, shapes = calibration_grid(), Shapes.generic()
+        cells, shapes = calibration_grid(), Shapes.calibration()
     else:
         d = ANALYSIS_DEFAULTS
         a = _analyse(sheet, metric or d["metric"], within_r, sample_r, d["estimator"],
