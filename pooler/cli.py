@@ -196,6 +196,15 @@ def main():
     """
 
 
+def _cpus() -> int:
+    """The CPUs this process may use (the default number of worker processes)."""
+    import os
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on every platform
+        return os.cpu_count() or 1
+
+
 @main.command()
 @_sheet_argument
 @_conversion_options
@@ -620,7 +629,8 @@ def demo_cmd(ctx, **params):
 @click.option("--reps", type=click.IntRange(min=1), default=60, show_default=True,
               help="Simulated literatures per grid cell.")
 @click.option("--seed", type=int, default=2026, show_default=True, help="Random seed.")
-@click.option("--workers", type=click.IntRange(min=1), default=2, show_default=True,
+@click.option("--workers", type=click.IntRange(min=1), default=_cpus,
+              show_default="the CPUs this process may use",
               help="Processes to spread the work over (results do not depend on it).")
 @click.option("--power", "target", type=float, default=0.8, show_default=True,
               callback=_fraction(0, 1, percent=True, hint="a target power such as 0.8"),
@@ -783,7 +793,8 @@ def template(path, force):
 @click.option("--resamples", type=click.IntRange(min=100), default=1000, show_default=True,
               help="Bootstrap resamples per replication (bootstrap test).")
 @click.option("--seed", type=int, default=2026, show_default=True, help="Random seed.")
-@click.option("--workers", type=click.IntRange(min=1), default=2, show_default=True,
+@click.option("--workers", type=click.IntRange(min=1), default=_cpus,
+              show_default="the CPUs this process may use",
               help="Local processes (results do not depend on it).")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) "

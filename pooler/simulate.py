@@ -297,6 +297,8 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
         results[key[0]][key[1]] = value
         if progress:
             progress(done, len(tasks))
+    if progress:  # show the bar from the start, before the first chunk is done
+        progress(0, len(tasks))
     if workers == 1:
         for done, (key, args) in enumerate(tasks, start=1):
             finished(key, _run_chunk(args), done)

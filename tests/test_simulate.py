@@ -74,3 +74,15 @@ def test_calibration_grid_and_shapes_cover_small_literatures():
     assert set(sh.r[sh.within]) == {0.5} and set(sh.r[~sh.within]) == {0.0}
     y, v, idx = simulate_literature(np.random.default_rng(3), Cell(5, 0.3, 0.0, 1.0), sh)
     assert len(y) == 5 and np.all(v > 0)
+
+
+def test_stress_figure_shows_the_share_without_a_plan():
+    from pooler.plots import stress_plot
+    from pooler.simulate import Cell, Shapes, stress_test
+    res = stress_test([Cell(5, 0.05, 0.0, 0.05)], Shapes.generic(), reps=20, seed=5, workers=1)
+    fig = stress_plot(res)
+    texts = [t.get_text() for t in fig.axes[0].texts]
+    shares = {r: 1 - np.isfinite(res.cells[0].true_power[r]).mean() for r in res.rules}
+    expected = {r for r, s in shares.items() if s >= 0.05}
+    assert expected  # the cell is chosen so that some rule has no plan in some literatures
+    assert len([t for t in texts if t.endswith("% no plan")]) == len(expected)
