@@ -1,6 +1,6 @@
 """Speed figures for pooler (issue 17), each with its goal and the ratio measured in this run.
 
-Run:  python tests/benchmarks/bench.py            (about three minutes; add --quick to skip
+Run:  python tests/benchmarks/bench.py            (about six minutes; add --quick to skip
                                                    the model-average and mediation scripts)
 
 Whole-process timings are medians of repeated runs, interleaved with their reference so that
