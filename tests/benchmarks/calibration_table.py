@@ -47,5 +47,32 @@ def main(path):
               f"{s[len(s) // 2]:.2f}")
 
 
+def summary(doc):
+    """The issue's summary: per k, the median over cells of the median true power under
+    strong selection (pi <= 0.2) and without selection (pi = 1), and the share of literatures
+    with delta >= 0.2 that got no positive planning effect."""
+    import statistics
+    ks = sorted({c["cell"]["k"] for c in doc["cells"]})
+    print("\n| rule | strong selection (π ≤ 0.2), k = " + " / ".join(map(str, ks))
+          + " | no selection (π = 1), k = " + " / ".join(map(str, ks))
+          + " | no plan, δ ≥ 0.2 (mean / worst cell) |")
+    print("|---|---|---|---|")
+    for r in RULES:
+        strong, free = [], []
+        for k in ks:
+            cs = [c for c in doc["cells"] if c["cell"]["k"] == k]
+            st = [c["rules"][r]["median_power"] for c in cs if c["cell"]["pi"] <= 0.2
+                  and c["rules"][r]["median_power"] is not None]
+            fr = [c["rules"][r]["median_power"] for c in cs if c["cell"]["pi"] == 1
+                  and c["rules"][r]["median_power"] is not None]
+            strong.append(f"{statistics.median(st):.2f}" if st else "–")
+            free.append(f"{statistics.median(fr):.2f}" if fr else "–")
+        nop = [c["rules"][r]["share_no_positive_effect"] for c in doc["cells"]
+               if c["cell"]["delta"] >= 0.2]
+        print(f"| {r} | {' / '.join(strong)} | {' / '.join(free)} | "
+              f"{100 * statistics.mean(nop):.0f} % / {100 * max(nop):.0f} % |")
+
+
 if __name__ == "__main__":
     main(sys.argv[1])
+    summary(json.load(open(sys.argv[1])))
