@@ -29,7 +29,8 @@ CAUTION = (
 
 @dataclass(frozen=True)
 class Block:
-    kind: str            # "h1", "h2", "p", "table", "list", "figure", "code", "key"
+    kind: str            # "h1", "h2", "p", "table", "list", "figure", "code", "key",
+    #                      "begin" / "end" (a named section: text is its id; HTML only)
     text: str = ""
     headers: tuple = ()
     rows: tuple = ()
@@ -69,6 +70,98 @@ def _ci(ci, d=3) -> str:
 
 # ------------------------------------------------------------------ building
 
+def decision_blocks(run) -> list[Block]:
+    """The decision, first in the terminal summary, ``report.md`` and ``report.html``: the
+    verdict in one sentence; for each scenario the planning effect and the whole people to
+    recruit (per group and in total, after attrition) at the first target power; and what a
+    feasible N buys when that is too many. Written once, rendered by every output."""
+    from .planning import recruit_sizes
+    from ._results import plural
+    from .report import sizes_and_total
+    a, plan = run.analysis, run.plan
+    sc, des = a.scenarios, plan.design
+    lab, first = plan.effect_label, plan.powers[0]
+    pw = f"{100 * first:g}%"
+    real = plan.row("realistic", first)
+    opt = plan.row("optimistic", first)
+
+    def recruit(row):
+        if not isinstance(row.n_per_group, int):
+            return None
+        groups, total = sizes_and_total(row.n_per_group, des, plan.attrition)
+        kept = (f"{row.n_total:,} analysed after {100 * plan.attrition:g}% attrition"
+                if plan.attrition else "")
+        inner = "; ".join(x for x in (groups, kept) if x)
+        return plural(total, "participant") + (f" ({inner})" if inner else "")
+
+    lost = ""
+    who = recruit(real)
+    sesoi = sc.sesoi
+    if who is not None and sc.supported:
+        verdict = (f"Recruit {who}{lost} for {pw} power at the realistic {lab} = "
+                   f"{real.effect:.2f}, the effect the literature supports once publication "
+                   f"bias is allowed for (as published: {opt.effect:.2f}).")
+    elif who is not None and sesoi is not None:
+        verdict = (f"The literature does not support an effect of at least the smallest "
+                   f"effect of interest ({lab} = {real.effect:.2f}), so the plan rests on that "
+                   f"smallest effect: recruit {who}{lost} for {pw} power.")
+    elif not sc.supported:
+        verdict = (f"The literature does not support a positive effect (realistic {lab} = "
+                   f"{real.effect:.2f}), so it cannot justify a sample size: choose the "
+                   "smallest effect that would matter and plan on it (--sesoi).")
+    else:
+        verdict = (f"No sample size reaches {pw} power at the realistic {lab} = "
+                   f"{real.effect:.2f}: {real.n_total.reason}.")
+    out = [Block("begin", "decision"), Block("h2", "The decision"),
+           Block("p", "**" + md_escape(verdict) + "**")]
+
+    grouped = des.name in ("two-group", "ancova", "interaction-2x2")
+    unit = "per cell" if des.name == "interaction-2x2" else "per group"
+    heads = ["scenario", f"planning {lab}"]
+    if grouped:
+        heads += [f"analysed {unit}", "analysed in total"]
+        if plan.attrition:
+            heads += [f"recruit {unit}", "recruit in total"]
+    else:
+        heads += ["N analysed"] + (["N to recruit"] if plan.attrition else [])
+    rows = []
+    for s in plan.scenarios:
+        r = plan.row(s.scenario, first)
+        line = [s.scenario, f"{r.effect:.2f}"]
+        if not isinstance(r.n_per_group, int):
+            line += ["cannot be reached"] + [""] * (len(heads) - 3)
+        else:
+            for attr in (0.0, plan.attrition) if plan.attrition else (0.0,):
+                sizes, total = recruit_sizes(r.n_per_group, des, attr)
+                each = " + ".join(f"{x:,}" for x in dict.fromkeys(sizes[:2]))
+                line += [each, f"{total:,}"] if grouped else [f"{total:,}"]
+        rows.append(tuple(line))
+    out.append(Block("p", f"Numbers for {pw} power, {'two' if plan.tails == 2 else 'one'}-"
+                          f"tailed alpha = {plan.alpha:g}; {md_escape(des.describe())}:"))
+    out.append(Block("table", headers=tuple(heads), rows=tuple(rows)))
+
+    fx = plan.fixed_n
+    if fx is not None:
+        groups, used = sizes_and_total(fx.n_per_group, des)
+        inner = "; ".join(x for x in (groups, f"--n {fx.n_total:,} asked for; whole groups "
+                                               f"use {used:,}" if used != fx.n_total else "")
+                          if x)
+        powers = ", ".join(f"{p:.2f} {name}" for name, _, p in fx.power)
+        det = next(((t, e) for t, _, e in fx.detectable if t == first), None)
+        txt = (f"If that is not feasible: with N = {used:,} analysed"
+               + (f" ({inner})" if inner else "") + ", the power is " + powers)
+        if det is not None and estimable(det[1]):
+            txt += (f"; the smallest effect it detects with {pw} power is {lab} = "
+                    f"{det[1]:.2f}")
+        out.append(Block("p", txt + "."))
+    else:
+        out.append(Block("p", "If that is not feasible: rerun with --n and the largest N you "
+                              "can recruit; the report then gives the power it buys under "
+                              "each scenario and the smallest effect it can detect."))
+    out.append(Block("end", "decision"))
+    return out
+
+
 def build_blocks(run) -> list[Block]:
     """The report, as blocks, from a :class:`pooler.pipeline.RunResult`."""
     a, plan = run.analysis, run.plan
@@ -76,6 +169,8 @@ def build_blocks(run) -> list[Block]:
     sym = "g" if pooled.metric == "g" else "z"
     b: list[Block] = []
     b.append(Block("h1", "Sample-size justification from prior studies"))
+    b += decision_blocks(run)
+    b.append(Block("h2", "What this report is"))
     b.append(Block("p", (
         f"This report turns the statistics reported by {eff.n_used + eff.n_excluded} results "
         f"in {md_escape(a.sheet.name)} into a planning effect and a sample size for a "
@@ -266,7 +361,7 @@ def key_numbers(run) -> list[tuple[str, str]]:
                 ("random-effects CI high", _num(pooled.pooled.ci.high))]
     if estimable(pooled.heterogeneity):
         out += [("tau^2", _num(pooled.heterogeneity.tau2, 4)),
-                ("I^2", _num(pooled.heterogeneity.i2))]
+                ("I^2", f"{100 * pooled.heterogeneity.i2:.1f}%")]
     out += [("optimistic effect", _num(sc.optimistic.effect)),
             ("realistic effect", _num(sc.realistic.effect)),
             ("pessimistic effect", _num(sc.pessimistic.effect))]
@@ -384,19 +479,53 @@ def to_markdown(blocks, figure_ext: str) -> str:
     return "\n".join(out)
 
 
+def to_text(blocks, width: int = 100) -> str:
+    """The blocks as plain terminal text (headings underlined, tables aligned, Markdown
+    escapes removed)."""
+    import textwrap
+
+    from ._results import text_table
+
+    def plain(t):
+        t = re.sub(r"(?<!\\)\*\*(.+?)(?<!\\)\*\*", r"\1", str(t))
+        t = re.sub(r"`([^`]*)`", r"\1", t)
+        t = re.sub(r"\\([\\`*_\[\]|#!])", r"\1", t)
+        return html.unescape(t)
+    out = []
+    for b in blocks:
+        if b.kind in ("h1", "h2"):
+            out += ["", plain(b.text), ("=" if b.kind == "h1" else "-") * len(plain(b.text))]
+        elif b.kind == "p":
+            out += (textwrap.wrap(plain(b.text), width) or [""]) + [""]
+        elif b.kind == "list":
+            for i in b.items:
+                out += textwrap.wrap(plain(i), width, initial_indent="  - ",
+                                     subsequent_indent="    ")
+        elif b.kind in ("table", "key"):
+            out += [text_table([plain(h) for h in b.headers],
+                               [[plain(c) for c in r] for r in b.rows]), ""]
+        elif b.kind == "code":
+            out.append(b.text)
+    return "\n".join(out).strip("\n")
+
+
 _CSS = """body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;max-width:58rem;
 margin:2rem auto;padding:0 1rem;line-height:1.45;color:#1d1d1d}h1{font-size:1.6rem}
 h2{font-size:1.2rem;border-bottom:1px solid #ddd;padding-bottom:.2rem;margin-top:2rem}
 table{border-collapse:collapse;font-size:.85rem;margin:.6rem 0}td,th{padding:.2rem .5rem;
 border-bottom:1px solid #eee;text-align:left}th{background:#f4f4f4}
 figure{margin:1rem 0}figure img{max-width:100%}figcaption{font-size:.85rem;color:#555}
-code,pre{background:#f6f6f6;padding:.1rem .3rem}pre{padding:.6rem;overflow-x:auto}"""
+code,pre{background:#f6f6f6;padding:.1rem .3rem}pre{padding:.6rem;overflow-x:auto}
+h1{margin:1rem 0 .6rem}section.decision{border-left:4px solid #2a6f97;background:#f3f8fb;
+padding:.1rem 1rem .4rem;margin:0 0 1.5rem}section.decision h2{margin-top:.6rem;border:0}
+section.decision p{margin:.5rem 0}"""
 
 
 def _inline_md(text: str) -> str:
     """The few Markdown constructs our blocks use, to HTML (text is already entity-escaped
     by :func:`md_escape` where it is user text)."""
     text = re.sub(r"`([^`]*)`", r"<code>\1</code>", text)
+    text = re.sub(r"(?<!\\)\*\*(.+?)(?<!\\)\*\*", r"<strong>\1</strong>", text)
     text = re.sub(r"\\([\\`*_\[\]|#!])", r"\1", text)
     return text
 
@@ -426,6 +555,10 @@ def to_html(blocks, figures_png: dict[str, bytes], title: str) -> str:
                        f"{html.escape(b.text)}</figcaption></figure>")
         elif b.kind == "code":
             out.append(f"<pre><code>{html.escape(b.text)}</code></pre>")
+        elif b.kind == "begin":
+            out.append(f'<section id="{html.escape(b.text)}" class="{html.escape(b.text)}">')
+        elif b.kind == "end":
+            out.append("</section>")
     out.append("</body></html>")
     return "\n".join(out)
 

@@ -145,6 +145,34 @@ def _recruit(n_total: int, attrition: float) -> int:
     return int(math.ceil(n_total / (1 - attrition) - 1e-9))
 
 
+def recruit_sizes(n: int, design, attrition: float) -> tuple[tuple[int, ...], int]:
+    """Whole people to recruit in each group (cell) so that each keeps its planned size
+    after losing the fraction ``attrition``, and their total.
+
+    Each group is inflated on its own, n / (1 - attrition) rounded up, so two equal groups
+    give an even total and an allocation keeps its ratio; for an ungrouped design it is
+    the total.
+
+    Examples
+    --------
+    >>> recruit_sizes(409, "two-group", 0.2)
+    ((512, 512), 1024)
+    >>> recruit_sizes(40, Design("two-group", ratio=2.0), 0.1)
+    ((45, 89), 134)
+    >>> recruit_sizes(100, "paired", 0.2)
+    ((125,), 125)
+    """
+    des = _design(design)
+    n = int(n)
+    if des.name in ("two-group", "ancova"):
+        sizes = (_recruit(n, attrition), _recruit(int(des.n2(n)), attrition))
+    elif des.name == "interaction-2x2":
+        sizes = (_recruit(n, attrition),) * 4
+    else:
+        sizes = (_recruit(n, attrition),)
+    return sizes, int(sum(sizes))
+
+
 def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
               powers=(0.8, 0.9, 0.95), attrition=0.0, predictive=None, assurance_targets=None,
               n_total=None, effect_label=None) -> Plan:
@@ -210,7 +238,8 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
             if grid.reachable[i, j]:
                 n, nt = int(grid.n[i, j]), int(grid.n_total[i, j])
                 rows.append(PlanRow(s.scenario, float(effects[i]), float(deff[i]), p, n, nt,
-                                    float(grid.power[i, j]), _recruit(nt, attrition)))
+                                    float(grid.power[i, j]),
+                                    recruit_sizes(n, des, attrition)[1]))
             else:
                 why = NotEstimable(grid.reason[i, j])
                 rows.append(PlanRow(s.scenario, float(effects[i]), float(deff[i]), p,

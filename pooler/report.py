@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import math
 
-from ._results import NotEstimable, csv_safe, text_table
+from ._results import NotEstimable, csv_safe, p_text, plural, text_table
 
 
 def _reported(row, sheet_rec) -> str:
@@ -60,6 +60,30 @@ def _n(x: float):
 
 
 # ------------------------------------------------------------------ planning table
+
+def group_sizes_text(design, sizes) -> str:
+    """Whole groups in words: "512 per group", "40 in group 1 and 80 in group 2",
+    "30 per cell (4 cells)"; empty for a design counted in total."""
+    if design.name in ("two-group", "ancova"):
+        a, b = sizes
+        return f"{a:,} per group" if a == b else f"{a:,} in group 1 and {b:,} in group 2"
+    if design.name == "interaction-2x2":
+        return f"{sizes[0]:,} per cell (4 cells)"
+    return ""
+
+
+def sizes_and_total(n, design, attrition: float = 0.0) -> tuple[str, int]:
+    """``n`` per group (per cell, or in total) as whole groups in words and their total,
+    after inflating each group for ``attrition``."""
+    from .planning import recruit_sizes
+    sizes, total = recruit_sizes(n, design, attrition)
+    return group_sizes_text(design, sizes), total
+
+
+def people(total: int, groups: str) -> str:
+    """ "1,024 participants (512 per group)" """
+    return plural(total, "participant") + (f" ({groups})" if groups else "")
+
 
 def _pct(p: float) -> str:
     return f"{100 * p:g}%"
@@ -128,8 +152,11 @@ def plan_text(plan) -> str:
                 out.append(f"  {w}")
     f = plan.fixed_n
     if f is not None:
-        unit = "per group" if des.grouped else "in all"
-        out += ["", f"With a fixed total N = {f.n_total} ({f.n_per_group} {unit}):"]
+        groups, used = sizes_and_total(f.n_per_group, des)
+        out += ["", f"With a fixed total N = {f.n_total:,}"
+                    + (f" ({groups})" if groups else "")
+                    + (f", of which {used:,} are used (whole groups)" if used != f.n_total else "")
+                    + ":"]
         out.append(text_table(["scenario", f"planning {plan.effect_label}", "power"],
                               [[s, e, p] for s, e, p in f.power]))
         out.append("")
@@ -168,7 +195,7 @@ def plan_markdown(plan) -> str:
 # ------------------------------------------------------------------ pooling
 
 def _p(p: float) -> str:
-    return "p < .001" if p < 0.001 else f"p = {p:.3f}".replace("0.", ".")
+    return p_text(p)
 
 
 def _ci(lo, hi, digits=3) -> str:
@@ -328,12 +355,15 @@ def scenarios_text(scen, audit=None) -> str:
 
 def run_summary_text(run, paths) -> str:
     """The compact summary that ``pooler run`` and ``pooler demo`` print."""
+    from .document import decision_blocks, to_text
     a = run.analysis
+    decision = to_text(decision_blocks(run))
     head = pooled_text(a.pooled, a.effects).split("\n\nStudies:")[0]
     scen = scenarios_text(a.scenarios, a.audit)
     scen_short, _, audit = scen.partition("\n\nLiterature audit")
     audit_line = ("Literature audit" + audit.split("\n")[0]) if audit else ""
-    out = [head, "", bias_text(a.bias, a.audit), "", scen_short]
+    out = [decision, "", "How it was reached", "-" * 18, head, "", bias_text(a.bias, a.audit),
+           "", scen_short]
     if audit_line:
         out.append(audit_line)
     out += ["", plan_text(run.plan)]
