@@ -11,7 +11,7 @@ import html
 import re
 from dataclasses import dataclass
 
-from ._results import NotEstimable, estimable, fmt
+from ._results import NotEstimable, estimable, fmt, plural
 from .report import _p
 
 CAUTION = (
@@ -187,8 +187,8 @@ def build_blocks(run) -> list[Block]:
     b.append(Block("list", items=(
         f"file: {md_escape(a.sheet.name)}",
         f"SHA-256: `{a.sheet.sha256}`",
-        f"rows read: {len(eff.rows)}; used: {eff.n_used}; excluded: {eff.n_excluded}; "
-        f"independent samples pooled: {eff.k}",
+        f"rows read: {len(eff.rows):,}; used: {eff.n_used:,}; excluded: {eff.n_excluded:,}; "
+        f"independent samples pooled: {eff.k:,}",
     )))
     excluded = [r for r in eff.rows if r.status == "excluded"]
     if excluded:
@@ -267,8 +267,12 @@ def build_blocks(run) -> list[Block]:
     tes = a.audit.excess_significance
     if estimable(tes):
         b.append(Block("p", f"Excess significance (Ioannidis & Trikalinos 2007): {tes.observed} "
-                            f"of {tes.k} studies significant, {tes.expected:.1f} expected at the "
-                            f"realistic effect; chi2(1) = {tes.chi2:.2f}, {_p(tes.p)}."))
+                            f"of {plural(tes.k, 'study', 'studies')} significant, "
+                            f"{tes.expected:.1f} expected at the realistic effect; chi2(1) = "
+                            f"{tes.chi2:.2f}, {_p(tes.p)}."))
+    else:
+        b.append(Block("p", "Excess significance (Ioannidis & Trikalinos 2007): "
+                            + md_escape(tes.reason) + "."))
     b.append(Block("figure", text="Contour-enhanced funnel plot: shaded regions mark "
                    "significance; hollow markers are studies imputed by trim-and-fill.",
                    src="funnel"))
@@ -285,7 +289,9 @@ def build_blocks(run) -> list[Block]:
                             f"{_ci(iv)}, 95% interval {_ci(ci95)}."))
     b.append(Block("p", md_escape(sc.verdict)))
     au = a.audit.literature
-    if estimable(au):
+    if not estimable(au):
+        b.append(Block("p", md_escape(f"Literature audit: {au.reason}.")))
+    else:
         b.append(Block("p", f"Literature audit: at the realistic effect the prior studies had a "
                             f"median power of {au.median:.2f}; {100 * au.share_80:.0f}% had 80% "
                             "or more."))
@@ -333,20 +339,32 @@ def build_blocks(run) -> list[Block]:
     b.append(Block("p", methods_paragraph(run)))
 
     b.append(Block("h2", "Reproducibility"))
-    b.append(Block("list", items=(f"pooler version {run.version}",
-                                  "options: " + md_escape(", ".join(
-                                      f"{k} = {v}" for k, v in sorted(_flat(run.options).items()))))))
+    b.append(Block("p", f"Made with pooler {md_escape(run.version)} from {md_escape(a.sheet.name)} "
+                        f"(SHA-256 `{a.sheet.sha256}`). This command, run on the same sheet, "
+                        "repeats it; options it does not name were at their defaults, and "
+                        "results.json lists every setting:"))
     b.append(Block("code", text=run.command))
+    b.append(Block("list", items=tuple(md_escape(x) for x in settings_in_words(run))))
     return b
 
 
-def _flat(options: dict) -> dict:
-    out = {}
-    for k, v in options.items():
-        if isinstance(v, dict):
-            out.update({f"{k}.{kk}": vv for kk, vv in v.items()})
-        else:
-            out[k] = v
+def settings_in_words(run) -> list[str]:
+    """The settings the numbers depend on, in words (not Python values)."""
+    a, plan = run.analysis, run.plan
+    pooled, sc = a.pooled, a.scenarios
+    from .pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
+    out = [f"design: {plan.design.describe()}",
+           f"test: {'two' if plan.tails == 2 else 'one'}-tailed, alpha = {plan.alpha:g}; "
+           "target power " + ", ".join(f"{100 * p:g}%" for p in plan.powers),
+           "attrition: " + (f"{100 * plan.attrition:g}%" if plan.attrition else "none assumed"),
+           f"pooling: {ESTIMATOR_NAMES[pooled.estimator]} tau^2, "
+           f"{INTERVAL_NAMES[pooled.interval]} {100 * pooled.level:g}% interval",
+           f"realistic effect chosen by the '{sc.rule}' rule; safeguard level "
+           f"{100 * sc.safeguard_level:g}%",
+           "smallest effect size of interest: " + ("none given" if sc.sesoi is None
+                                                    else f"{sc.sesoi:g}")]
+    if plan.fixed_n is not None:
+        out.append(f"feasible N examined: {plan.fixed_n.n_total:,}")
     return out
 
 
@@ -388,22 +406,27 @@ def methods_paragraph(run) -> str:
     from .pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
     metric = "Hedges' g" if pooled.metric == "g" else "Fisher's z-transformed correlations"
     sym = "g" if pooled.metric == "g" else "z"
-    txt = [f"To justify the sample size we meta-analysed {eff.k} independent samples "
-           f"({eff.n_used} reported results; {eff.n_excluded} excluded with reasons) from prior "
+    txt = [f"To justify the sample size we meta-analysed "
+           f"{plural(eff.k, 'independent sample')} "
+           f"({plural(eff.n_used, 'reported result')}; {eff.n_excluded:,} excluded with "
+           f"reasons) from prior "
            f"studies, converted to {metric} (Hedges, 1981; Borenstein et al., 2009)"
            + (", putting within-subject results on the between-subject scale (Morris & DeShon, "
               "2002)" if any(u.design == "within" for u in eff.units) else "") + "."]
     if estimable(pooled.pooled):
         p = pooled.pooled
         txt.append(f"A random-effects model ({ESTIMATOR_NAMES[pooled.estimator]} estimate of "
-                   f"tau^2; {INTERVAL_NAMES[pooled.interval]} confidence interval; Hartung & "
-                   f"Knapp, 2001) gave {sym} = {p.estimate:.2f}, 95% CI {_ci(p.ci, 2)}")
+                   f"tau^2; {INTERVAL_NAMES[pooled.interval]} confidence interval"
+                   + ("; Hartung & Knapp, 2001" if pooled.interval == "hksj" else "")
+                   + f") gave {sym} = {p.estimate:.2f}, {100 * pooled.level:g}% CI "
+                   f"{_ci(p.ci, 2)}")
         h = pooled.heterogeneity
         if estimable(h):
             txt[-1] += f", with tau^2 = {h.tau2:.3f} and I^2 = {100 * h.i2:.0f}% (Higgins & Thompson, 2002)"
         if estimable(pooled.prediction):
-            txt[-1] += (f"; the 95% prediction interval for the true effect of a new study was "
-                        f"{_ci(pooled.prediction, 2)} (Higgins et al., 2009)")
+            txt[-1] += (f"; the {100 * pooled.level:g}% prediction interval for the true "
+                        f"effect of a new study was {_ci(pooled.prediction, 2)} (Higgins et "
+                        "al., 2009)")
         txt[-1] += "."
     methods = bias.cited()
     if methods:
@@ -411,33 +434,51 @@ def methods_paragraph(run) -> str:
                    "we assessed small-study effects and selection with "
                    + _join(methods) + ".")
     r, ps = sc.realistic, sc.pessimistic
-    txt.append(f"We planned on a realistic effect of {sym} = {r.effect:.2f} ({r.basis}) "
-               f"rather than the published estimate of {sc.optimistic.effect:.2f}, and checked "
-               f"a pessimistic value of {ps.effect:.2f}, the {ps.basis} (Perugini et al., 2014).")
     first = plan.powers[0]
     row = plan.row("realistic", first)
     pes = plan.row("pessimistic", first)
+    lab = plan.effect_label
+    eff_r, eff_p, eff_o = (plan.row(n, first).effect
+                           for n in ("realistic", "pessimistic", "optimistic"))
+    safeguard = "safeguard" in ps.basis
+    if sc.supported:
+        txt.append(f"We planned on a realistic effect of {lab} = {eff_r:.2f} ({r.basis}) "
+                   f"rather than the published estimate of {eff_o:.2f}, and checked a "
+                   f"pessimistic value of {eff_p:.2f}, the {ps.basis}"
+                   + (" (Perugini et al., 2014)" if safeguard else "") + ".")
+    elif sc.sesoi is not None:
+        txt.append(f"The literature does not support an effect of at least the smallest effect "
+                   f"size of interest, {lab} = {eff_r:.2f}, which we set before seeing these "
+                   "results as the smallest effect that would matter; we therefore planned on "
+                   "that value rather than on an estimate from the literature (published "
+                   f"estimate {eff_o:.2f}).")
+    else:
+        txt.append(f"The literature does not support a positive effect (realistic estimate "
+                   f"{lab} = {eff_r:.2f}, {r.basis}; published estimate {eff_o:.2f}), so it "
+                   "cannot justify a sample size; a smallest effect size of interest has to be "
+                   "chosen on substantive grounds.")
     tails = "two-tailed" if plan.tails == 2 else "one-tailed"
     if isinstance(row.n_total, int):
-        unit = ("per group" if plan.design.name in ("two-group", "ancova") else
-                "per cell" if plan.design.name == "interaction-2x2" else "")
-        n_txt = (f"{row.n_per_group} {unit} ({row.n_total} in total)" if unit
-                 else f"N = {row.n_total}")
+        from .report import sizes_and_total
+        groups, _ = sizes_and_total(row.n_per_group, plan.design)
+        n_txt = f"{groups} ({row.n_total:,} in total)" if groups else f"N = {row.n_total:,}"
         s = (f"For a {tails} test at alpha = {plan.alpha:g} with {100 * first:g}% power, the "
              f"planned {plan.design.describe()} study needs {n_txt}, computed with "
              f"{_power_basis(plan.design)}")
         if plan.attrition:
+            rgroups, rtotal = sizes_and_total(row.n_per_group, plan.design, plan.attrition)
             s += (f"; allowing for {100 * plan.attrition:g}% attrition we will recruit "
-                  f"{row.n_total_recruit}")
+                  f"{rtotal:,}" + (f" ({rgroups})" if rgroups else ""))
         s += "."
-        if isinstance(pes.n_total, int):
+        if isinstance(pes.n_total, int) and (sc.supported or sc.sesoi is None):
             s += f" Under the pessimistic effect, N = {pes.n_total:,} would be needed."
         txt.append(s)
-    else:
+    elif sc.supported:
         txt.append(f"No sample size reaches {100 * first:g}% power for the realistic effect: "
                    f"{row.n_total.reason}.")
     asr = plan.assurance
-    if asr is not None and estimable(asr) and isinstance(asr.n[0], int):
+    if (sc.supported and asr is not None and estimable(asr)
+            and isinstance(asr.n[0], int)):
         txt.append(f"Allowing for uncertainty in the true effect, N = {asr.n_total[0]:,} gives an "
                    f"assurance (expected power) of {100 * asr.targets[0]:g}% (O'Hagan et al., "
                    "2005).")

@@ -45,8 +45,8 @@ def effects_text(eff, sheet) -> str:
                      f"[{ci.low:.3f}, {ci.high:.3f}]" if ci else "",
                      None if r.n_total is None else _n(r.n_total),
                      r.status, r.reason or "; ".join(r.notes)])
-    out = [f"{sheet.name}: {len(eff.rows)} rows read, {eff.n_used} used, "
-           f"{eff.n_excluded} excluded; {eff.k} independent samples to pool "
+    out = [f"{sheet.name}: {plural(len(eff.rows), 'row')} read, {eff.n_used:,} used, "
+           f"{eff.n_excluded:,} excluded; {plural(eff.k, 'independent sample')} to pool "
            f"(metric: {metric})", "", text_table(headers, rows)]
     if eff.assumptions:
         out += ["", "Assumptions:"] + [f"  - {a}" for a in eff.assumptions]
@@ -167,17 +167,21 @@ def plan_text(plan) -> str:
 
 
 def plan_csv(plan) -> str:
-    """The planning table as CSV text (one row per scenario × target power)."""
+    """The planning table as CSV text (one row per scenario × target power). Numeric
+    columns hold only numbers: a value that cannot be reached is left empty and the reason is
+    in the last column."""
     import csv
     import io
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(["scenario", "effect", "design_effect", "target_power", "n_per_group", "n_total",
-                "achieved_power", "n_total_recruit"])
+                "achieved_power", "n_total_recruit", "not_reached_because"])
     for r in plan.rows:
+        cells = (r.n_per_group, r.n_total, r.achieved_power, r.n_total_recruit)
+        why = next((v.reason for v in cells if isinstance(v, NotEstimable)), "")
         w.writerow([csv_safe(r.scenario), repr(r.effect), repr(r.design_effect), r.power,
-                    *[str(v) if isinstance(v, NotEstimable) else v
-                      for v in (r.n_per_group, r.n_total, r.achieved_power, r.n_total_recruit)]])
+                    *["" if isinstance(v, NotEstimable) else v for v in cells],
+                    csv_safe(why)])
     return buf.getvalue()
 
 
@@ -247,8 +251,9 @@ def pooled_text(res, eff) -> str:
     from pathlib import Path
     from ._results import estimable
     sym = "g" if res.metric == "g" else "z"
-    out = [f"{Path(eff.file).name}: k = {res.k} independent samples ({eff.n_used} rows used, "
-           f"{eff.n_excluded} excluded); metric {eff.metric_label}"]
+    out = [f"{Path(eff.file).name}: k = {plural(res.k, 'independent sample')} "
+           f"({plural(eff.n_used, 'row')} used, {eff.n_excluded:,} excluded); "
+           f"metric {eff.metric_label}"]
     if res.metric == "z":
         out.append("  estimates on the Fisher z scale; r = tanh(z) in brackets")
     out += pooled_summary(res)
@@ -256,7 +261,7 @@ def pooled_text(res, eff) -> str:
     rows = []
     for lab, y, v, w in zip(res.labels, res.effects, res.variances, res.weights):
         se = math.sqrt(v)
-        rows.append([lab, y, _ci(y - 1.96 * se, y + 1.96 * se), 100 * w])
+        rows.append([lab, y, _ci(y - 1.96 * se, y + 1.96 * se), f"{100 * w:.1f}"])
     out += ["", "Studies:", text_table(["sample", sym, "95% CI", "weight %"], rows)]
     for title, tab in (("Leave one out:", res.leave_one_out),
                        ("Cumulative, by year:", res.cumulative)):
@@ -315,7 +320,7 @@ def bias_text(bias, audit) -> str:
                    f"significant, {tes.expected:.1f} expected; chi2(1) = {tes.chi2:.2f}, "
                    f"{_p(tes.p)}")
     else:
-        out.append(f"Excess significance: {tes}")
+        out.append(f"Excess significance: {tes.reason}")
     return "\n".join(out)
 
 
@@ -344,6 +349,8 @@ def scenarios_text(scen, audit=None) -> str:
                    f"95% interval {_ci(ci.low, ci.high)}")
     out.append(scen.verdict)
     a = audit.literature if audit is not None else None
+    if a is not None and not estimable(a):
+        out += ["", f"Literature audit: {a.reason}"]
     if estimable(a):
         out += ["", f"Literature audit: each study's power to detect the realistic {sym} = "
                     f"{a.effect:.3f} (two-sided alpha = .05): median {a.median:.2f}, "
