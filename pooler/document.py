@@ -325,7 +325,12 @@ def build_blocks(run) -> list[Block]:
             b.append(Block("p", f"Assurance: {asr}"))
     fx = plan.fixed_n
     if fx is not None:
-        b.append(Block("p", f"With a fixed total N = {fx.n_total}:"))
+        from .report import sizes_and_total
+        groups, used = sizes_and_total(fx.n_per_group, plan.design)
+        b.append(Block("p", f"With a fixed total N = {fx.n_total:,}"
+                            + (f" ({groups})" if groups else "")
+                            + (f", of which {used:,} are used (whole groups)"
+                               if used != fx.n_total else "") + ":"))
         b.append(Block("table", headers=("scenario", "power"),
                        rows=tuple((s, _num(pw)) for s, _, pw in fx.power)))
         b.append(Block("table", headers=("target power", f"smallest {plan.design.effect_label}"),

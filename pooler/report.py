@@ -285,9 +285,10 @@ def pooled_text(res, eff) -> str:
 
 def _influence_table(rows, sym, first="analysis") -> str:
     from ._results import NotEstimable
-    return text_table([first, "k", sym, "95% CI", "tau^2", "I^2 %"],
+    return text_table([first, "k", sym, "95% CI", "tau^2", "I^2"],
                       [[r.label, r.k, r.estimate, _ci(r.ci_low, r.ci_high), r.tau2,
-                        None if isinstance(r.i2, NotEstimable) else 100 * r.i2] for r in rows])
+                        None if isinstance(r.i2, NotEstimable) else f"{100 * r.i2:.1f}%"]
+                       for r in rows])
 
 
 # ------------------------------------------------------------------ bias and scenarios
