@@ -660,8 +660,9 @@ def planning_methods() -> tuple[BiasMethod, ...]:
 
 
 def adjuster_choices() -> tuple[str, ...]:
-    """Every value ``--adjuster`` accepts: the two rules, then one per planning method."""
-    return ("default", "median") + tuple(m.adjuster for m in planning_methods())
+    """Every value ``--adjuster`` accepts: the three rules (the model average, the earlier
+    safeguard rule, the median of the adjusters), then one per planning method."""
+    return ("default", "safeguard", "median") + tuple(m.adjuster for m in planning_methods())
 
 
 def _egger_row(e) -> tuple:

@@ -14,9 +14,10 @@ METRICS = ("d", "r")
 ESTIMATORS = ("reml", "ml", "pm", "dl")
 #: ``--interval``: Hartung-Knapp-Sidik-Jonkman or Wald.
 INTERVALS = ("hksj", "wald")
-#: ``--adjuster``: the default rule, the median rule, then one value per bias method that can
+#: ``--adjuster``: the default rule (the model average), the earlier safeguard rule, the median
+#: rule, then one value per bias method that can
 #: set the planning effect, in planning order (``pooler.bias.adjuster_choices()``).
-ADJUSTERS = ("default", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls")
+ADJUSTERS = ("default", "safeguard", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls")
 
 
 

@@ -13,6 +13,7 @@ import click
 from ._threads import limit_before_numpy
 from .choices import (ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS, POWERS,
                       AnalysisOptions)
+from .design_choices import DESIGN_OPTIONS, PLANNED_DESIGNS, used_by
 from .errors import OptionError, PoolerError
 
 # One BLAS thread for the whole command (the reason is in pooler/_threads.py); this must run
@@ -215,7 +216,11 @@ def _pooling_options(f):
 def _scenario_options(f):
     f = click.option("--sesoi", type=float, default=None, callback=_positive,
                      help="Smallest effect size of interest (d, or r): the pessimistic scenario "
-                          "never goes below it.")(f)
+                          "never goes below it, and it is the plan when the literature's "
+                          "posterior favours no positive effect. Choose it before looking at "
+                          "the literature: the smallest effect that would matter in practice "
+                          "or to your theory, or the effect the earlier studies could just "
+                          "have detected (Lakens, Scheel & Isager 2018).")(f)
     f = click.option("--safeguard", "safeguard_level", type=float,
                      default=ANALYSIS_DEFAULTS["safeguard_level"], show_default=True,
                      callback=_fraction(0, 1, percent=True, hint="a two-sided level, e.g. 0.6"),
@@ -223,8 +228,10 @@ def _scenario_options(f):
                           "scenario (Perugini et al. 2014).")(f)
     f = click.option("--adjuster", type=click.Choice(list(ADJUSTERS)),
                      default=ANALYSIS_DEFAULTS["adjuster"], show_default=True,
-                     help="How the realistic scenario is chosen: the default rule, the "
-                          "safeguard limit of the median of the adjusters, or one adjuster.")(f)
+                     help="How the realistic scenario is chosen: the default Bayesian model "
+                          "average over publication-bias models, the earlier safeguard rule, "
+                          "the safeguard limit of the median of the adjusters, or one "
+                          "adjuster.")(f)
     return f
 
 
@@ -289,7 +296,7 @@ def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
 
 def _planning_options(f):
     opts = [
-        click.option("--design", type=click.Choice(list(_DESIGNS)), default="two-group",
+        click.option("--design", type=click.Choice(list(PLANNED_DESIGNS)), default="two-group",
                      show_default=True, help="The planned study's design."),
         click.option("--alpha", type=float, default=0.05, show_default=True,
                      callback=_fraction(0, 0.5, percent=True,
@@ -312,28 +319,30 @@ def _planning_options(f):
                           "smallest detectable effect."),
         click.option("--ratio", type=float, default=1.0, show_default=True,
                      callback=_positive,
-                     help="two-group, ancova: allocation n2/n1."),
+                     help=f"{used_by('ratio')}: allocation n2/n1."),
         click.option("--planned-r", type=float, default=0.5, show_default=True,
                      callback=_correlation,
-                     help="paired: planned correlation between the repeated measures "
-                          "(d_z = d / sqrt(2(1 - r)); at 0.5, d_z = d)."),
+                     help=f"{used_by('planned_r')}: planned correlation between the repeated "
+                          "measures (d_z = d / sqrt(2(1 - r)); at 0.5, d_z = d)."),
         click.option("--covariate-r", type=float, default=0.5, show_default=True,
                      callback=_correlation,
-                     help="ancova: correlation between covariate (pre-test) and outcome."),
+                     help=f"{used_by('covariate_r')}: correlation between covariate (pre-test) "
+                          "and outcome."),
         click.option("--attenuation", type=float, default=0.5, show_default=True,
                      callback=_fraction(0, 2, high_open=False,
                                         hint="1 = the effect vanishes, 2 = full crossover"),
-                     help="interaction-2x2: share of the simple effect that disappears at the "
-                          "other moderator level (1 = vanishes, 2 = full crossover)."),
+                     help=f"{used_by('attenuation')}: share of the simple effect that disappears "
+                          "at the other moderator level (1 = vanishes, 2 = full crossover)."),
         click.option("--predictors-added", type=click.IntRange(min=1), default=1,
-                     show_default=True, help="regression-increment: predictors tested."),
+                     show_default=True, help=f"{used_by('predictors_added')}: predictors tested."),
         click.option("--predictors-total", type=click.IntRange(min=1), default=None,
-                     help="regression-increment: predictors in the full model "
+                     help=f"{used_by('predictors_total')}: predictors in the full model "
                           "[default: the added ones]."),
         click.option("--exact-r", is_flag=True,
-                     help="correlation: use the exact distribution of r, not Fisher's z."),
+                     help=f"{used_by('exact_r')}: use the exact distribution of r, not "
+                          "Fisher's z."),
         click.option("--fixed-covariates", is_flag=True,
-                     help="ancova, regression-increment: hold the covariate / predictor values "
+                     help=f"{used_by('fixed_covariates')}: hold the covariate / predictor values "
                           "fixed (right when the design sets them) instead of averaging the "
                           "power over normally distributed ones; for sampled values this "
                           "overstates the power slightly."),
@@ -343,10 +352,9 @@ def _planning_options(f):
     return f
 
 
-# the same tuple as pooler.power.DESIGNS, repeated so that --help need not import numpy
-# (tests/test_cli_plan.py checks the two agree)
-_DESIGNS = ("two-group", "paired", "one-sample", "correlation", "ancova", "interaction-2x2",
-            "regression-increment")
+# the planned designs' names, from the light list so that --help need not import numpy
+# (tests/test_designs.py checks it against the registry, pooler.designs)
+_DESIGNS = PLANNED_DESIGNS
 
 
 def _planning_metric(metric, design):
@@ -359,18 +367,19 @@ def _planning_metric(metric, design):
     return design_metric(design)
 
 
-def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
-                 predictors_total, exact_r, fixed_covariates=False):
+def _make_design(design, options):
+    """The Design from --design and the design options (a mapping holding every name of
+    pooler.design_choices.DESIGN_OPTIONS, as click passes them)."""
     from .errors import OptionError
-    if predictors_total is not None and predictors_total < predictors_added:
-        raise OptionError(f"--predictors-total {predictors_total} is smaller than "
-                          f"--predictors-added {predictors_added}; the full model contains the "
+    opts = {k: options[k] for k in DESIGN_OPTIONS}
+    added, total = opts["predictors_added"], opts["predictors_total"]
+    if total is not None and total < added:
+        raise OptionError(f"--predictors-total {total} is smaller than "
+                          f"--predictors-added {added}; the full model contains the "
                           "added predictors")
+    opts["predictors_total"] = total or added
     from .power import Design
-    return Design(design, ratio=ratio, planned_r=planned_r, covariate_r=covariate_r,
-                  attenuation=attenuation, predictors_added=predictors_added,
-                  predictors_total=predictors_total or predictors_added, exact_r=exact_r,
-                  fixed_covariates=fixed_covariates)
+    return Design(design, **opts)
 
 
 @main.command()
@@ -390,9 +399,8 @@ def _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_
               help="How to print the planning table (csv: one row per scenario x power).")
 @_json_option
 def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, interval, adjuster,
-         safeguard_level, sesoi, design, alpha, tails, powers, attrition, n_total, ratio,
-         planned_r, covariate_r, attenuation, predictors_added, predictors_total, exact_r,
-         fixed_covariates, table_format, as_json):
+         safeguard_level, sesoi, design, alpha, tails, powers, attrition, n_total, table_format,
+         as_json, **design_options):
     """Sample size for a planned study, from a SHEET of prior results or a given effect.
 
     From SHEET: the optimistic, realistic and pessimistic planning effects (as in
@@ -413,8 +421,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     from .errors import OptionError
     from .planning import PlanningEffect, make_plan
     from .report import plan_text
-    des = _make_design(design, ratio, planned_r, covariate_r, attenuation, predictors_added,
-                       predictors_total, exact_r, fixed_covariates)
+    des = _make_design(design, design_options)
     analysis = None
     if sheet and effects:
         raise OptionError("give either SHEET or --effect, not both")
@@ -427,14 +434,14 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
                             safeguard_level, sesoi)
         sc = analysis.scenarios
         scen = sc.planning_effects()
-        predictive = sc.predictive if isinstance(sc.predictive, tuple) else None
+        predictive = sc.assurance_density()
         pmetric = sc.planning_metric
         label = "g" if pmetric == "d" else "r"
     elif effects:
         pmetric = metric
         bad = [e for e in effects if pmetric == "r" and not -1 < e < 1]
         if bad:
-            own = design in ("correlation", "regression-increment")
+            own = des.metric == "r"
             why = (f"on the r metric, the default of the {design} design," if own
                    else "with --metric r")
             raise OptionError(f"--effect {bad[0]:g} is not a correlation ({why} a planning "
@@ -511,9 +518,7 @@ def _whole_job(ctx, sheet, sheet_label, params):
     from .pipeline import run
     from .report import run_summary_text
     p = dict(params)
-    des = _make_design(p["design"], p["ratio"], p["planned_r"], p["covariate_r"],
-                       p["attenuation"], p["predictors_added"], p["predictors_total"],
-                       p["exact_r"], p["fixed_covariates"])
+    des = _make_design(p["design"], p)
     metric = _planning_metric(p["metric"], p["design"])
     _check_sesoi(p["sesoi"], metric)
     analysis_options = AnalysisOptions(
@@ -685,6 +690,7 @@ def template(path, force):
 # ---- pooler paths: simulated power for mediation and moderation (pooler.simdesign) ----------
 
 @main.command("paths")
+@click.argument("sheet", required=False, type=click.Path(dir_okay=False))
 @click.option("--design", "design_name", required=True,
               type=click.Choice(["simple-mediation", "parallel-mediation", "serial-mediation",
                                  "moderation"]),
@@ -728,6 +734,10 @@ def template(path, force):
               help="The values in --paths-file are correlations between the named variables "
                    "(X-M1, M1-Y, X-Y, M1-M2, ...; every pair), e.g. pooled from literatures; "
                    "the paths are the standardized coefficients they imply. Mediation only.")
+@click.option("--pair", "pair_values", multiple=True, metavar="PAIR=R",
+              help="With a SHEET: the correlation of a pair that has no rows, e.g. "
+                   "--pair X-M2=0.2 (any pair of the model; repeatable; used in every "
+                   "scenario).")
 @click.option("--test", "test_name", default=None,
               type=click.Choice(["joint", "monte-carlo", "bootstrap", "sobel"]),
               help="Test of the indirect effects [default: monte-carlo]; sobel only for "
@@ -758,14 +768,19 @@ def template(path, force):
 @click.option("--force", is_flag=True, help="Write into --out even if it is not empty and "
               "pooler did not write it (a folder pooler wrote is replaced by a rerun).")
 @_json_option
-def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
+def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
               interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
-              binary_moderator, paths_file, as_correlations, test_name, fixed_n, powers, alpha, reps, draws,
+              binary_moderator, paths_file, as_correlations, pair_values, test_name, fixed_n, powers, alpha, reps, draws,
               resamples, seed, workers, scheduler, out_dir, fmt, force, as_json):
     """Sample size (or power) for mediation and moderation, by simulation.
 
     Give the standardized paths as options, or several scenarios of them in
-    --paths-file. The table shows, for each indirect effect (and for the
+    --paths-file, or a SHEET of reported results with a 'path' column naming the pair of
+    variables each row links (X-M1, M1-Y, X-Y, M1-M2, ...): each pair is then pooled from its
+    own rows, its optimistic / realistic / pessimistic correlations form one correlation
+    matrix per scenario, and each scenario is planned on the standardized paths that matrix
+    implies. With a SHEET, --a, --b, --direct and --m1-m2 give the correlation of a pair
+    that has no literature (X-Mi, Mi-Y, X-Y, M1-M2), the same in every scenario. The table shows, for each indirect effect (and for the
     total and for "all indirect effects significant" with several mediators), the n that
     reaches each target power, a 95 % Monte Carlo interval for that n, and the power
     confirmed at n with its Monte Carlo SE. Moderation plans for the interaction.
@@ -779,6 +794,7 @@ def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect
       pooler paths --design moderation --slope-high 0.375 --slope-low 0.225 \\
           --z-effect 0.3 --x-reliability 0.8 --z-reliability 0.8
       pooler paths --design parallel-mediation --paths-file my_paths.csv --direct 0.1
+      pooler paths demo_literature/garden_paths.csv --design parallel-mediation --out garden
     """
     from .errors import OptionError
     from .pathsreport import methods_paragraph, plan_text, power_text, render_files
@@ -829,7 +845,56 @@ def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect
              "M2-Y": "--b twice: M1-Y, then M2-Y",
              "X-Y": "--x-effect, or --slope-high and --slope-low",
              "XZ-Y": "--interaction, or --slope-high and --slope-low"}
-    if as_correlations:
+    ps = None
+    if pair_values and not sheet:
+        raise OptionError("--pair gives a pair's correlation for a SHEET of path literatures; "
+                          "without one, give the paths with --a, --b, --direct, ...")
+    if sheet:
+        from .pathsheet import pool_paths
+        if design_name == "moderation":
+            raise OptionError("a SHEET of path literatures feeds the mediation designs; give "
+                              "a moderation's paths as options")
+        if paths_file or as_correlations:
+            raise OptionError("give the paths either in SHEET or in --paths-file, not both")
+        if mediator_r:
+            raise OptionError("--mediator-r does not apply with a SHEET: the mediators' "
+                              "residual correlation follows from their correlation (rows "
+                              "for M1-M2, or --m1-m2)")
+        pairs, names = {}, {}
+        a_, b_ = list(a_paths), list(b_paths)
+        if design_name == "simple-mediation":
+            if len(a_) > 1 or len(b_) > 1:
+                raise OptionError("simple mediation takes one --a and one --b")
+            med = ["M"]
+        else:
+            med = [f"M{i}" for i in range(1, max(len(a_), len(b_), 2) + 1)]
+        for i, v in enumerate(a_):
+            pairs[f"X-{med[i]}"], names[f"X-{med[i]}"] = v, f"--a #{i + 1} (r of X and {med[i]})"
+        for i, v in enumerate(b_):
+            pairs[f"{med[i]}-Y"], names[f"{med[i]}-Y"] = v, f"--b #{i + 1} (r of {med[i]} and Y)"
+        if direct is not None:
+            pairs["X-Y"], names["X-Y"] = direct, "--direct (r of X and Y)"
+        if m1_m2 is not None:
+            pairs["M1-M2"], names["M1-M2"] = m1_m2, "--m1-m2 (r of M1 and M2)"
+        from .pathsheet import split_path
+        for text in pair_values:
+            key, eq, val = text.partition("=")
+            pr = split_path(key)
+            try:
+                r = float(val) if eq else None
+            except ValueError:
+                r = None
+            if pr is None or r is None:
+                raise OptionError(f"--pair {text!r}: write a pair and its correlation, "
+                                  "e.g. --pair X-M2=0.2")
+            k = "-".join(pr)
+            if k in pairs or "-".join(pr[::-1]) in pairs:
+                raise OptionError(f"--pair {text!r}: the pair {k} is given twice")
+            pairs[k], names[k] = r, f"--pair {text}"
+        ps = pool_paths(sheet, design_name, pairs, option_names=names)
+        _echo_warnings(ps.warnings)
+        scenarios = dict(ps.designs)
+    elif as_correlations:
         if not paths_file:
             raise OptionError("--correlations reads the correlations from --paths-file")
         if design_name == "moderation":
@@ -871,10 +936,16 @@ def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect
         res = [sd.simulate_power(d, fixed_n, reps=reps, stream=i, **common)
                for i, d in enumerate(scenarios.values())]
         if as_json:
-            _print_json({"schema": "pooler.paths-power/1",
-                         "scenarios": [dict(r.to_dict(), scenario=lab)
-                                       for lab, r in zip(scenarios, res)]})
+            doc = {"schema": "pooler.paths-power/1",
+                   "scenarios": [dict(r.to_dict(), scenario=lab)
+                                 for lab, r in zip(scenarios, res)]}
+            if ps is not None:
+                doc["paths"] = ps.to_dict()
+            _print_json(doc)
         else:
+            if ps is not None:
+                from .pathsreport import paths_sheet_text
+                click.echo(paths_sheet_text(ps))
             click.echo("\n".join((f"{lab}: " if lab else "") + power_text(r)
                                   for lab, r in zip(scenarios, res)) + note, nl=bool(note))
         return
@@ -887,15 +958,28 @@ def paths_cmd(design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect
     methods = methods_paragraph(results, search_reps, draws, resamples)
     options = {"design": design_name, "test": test_used, "alpha": alpha, "reps": search_reps,
                "draws": draws, "resamples": resamples, "seed": seed,
-               "paths_file": paths_file}
+               "paths_file": paths_file, "sheet": sheet}
     if out_dir:
         from .outputs import write
-        paths = write(render_files(results, options, methods, fmt), out_dir, force=force)
+        if ps is not None:
+            from .pathsreport import render_sheet_files
+            files = render_sheet_files(results, ps, options, methods, fmt)
+        else:
+            files = render_files(results, options, methods, fmt)
+        paths = write(files, out_dir, force=force)
     if as_json:
         from .pathsreport import SCHEMA
-        _print_json({"schema": SCHEMA, "scenarios": [r.to_dict() for r in results],
-                     "options": options, "methods": methods})
+        doc = {"schema": SCHEMA, "scenarios": [r.to_dict() for r in results],
+               "options": options, "methods": methods}
+        if ps is not None:
+            from .pathsreport import sheet_methods_paragraph
+            doc["paths"] = ps.to_dict()
+            doc["methods"] = sheet_methods_paragraph(ps) + " " + methods
+        _print_json(doc)
     else:
+        if ps is not None:
+            from .pathsreport import paths_sheet_text
+            click.echo(paths_sheet_text(ps))
         click.echo(plan_text(results, note))
         if out_dir:
             click.echo(f"Written to {out_dir}/: " + ", ".join(p.name for p in paths))

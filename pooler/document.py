@@ -94,17 +94,22 @@ def decision_blocks(run) -> list[Block]:
         inner = "; ".join(x for x in (groups, kept) if x)
         return plural(total, "participant") + (f" ({inner})" if inner else "")
 
-    lost = ""
     who = recruit(real)
     sesoi = sc.sesoi
-    if who is not None and sc.supported:
-        verdict = (f"Recruit {who}{lost} for {pw} power at the realistic {lab} = "
+    post = getattr(sc, "posterior", None)
+    if who is not None and sc.supported and post is not None:
+        verdict = (f"Recruit {who} for {pw} power at the realistic {lab} = {real.effect:.2f}, "
+                   "the model-averaged estimate once publication bias is allowed for, given "
+                   f"a positive effect (P(effect > 0) = {post.p_positive:.2f}; as published: "
+                   f"{opt.effect:.2f}).")
+    elif who is not None and sc.supported:
+        verdict = (f"Recruit {who} for {pw} power at the realistic {lab} = "
                    f"{real.effect:.2f}, the effect the literature supports once publication "
                    f"bias is allowed for (as published: {opt.effect:.2f}).")
     elif who is not None and sesoi is not None:
         verdict = (f"The literature does not support an effect of at least the smallest "
                    f"effect of interest ({lab} = {real.effect:.2f}), so the plan rests on that "
-                   f"smallest effect: recruit {who}{lost} for {pw} power.")
+                   f"smallest effect: recruit {who} for {pw} power.")
     elif not sc.supported:
         verdict = (f"The literature does not support a positive effect (realistic {lab} = "
                    f"{real.effect:.2f}), so it cannot justify a sample size: choose the "
@@ -115,8 +120,8 @@ def decision_blocks(run) -> list[Block]:
     out = [Block("begin", "decision"), Block("h2", "The decision"),
            Block("p", "**" + md_escape(verdict) + "**")]
 
-    grouped = des.name in ("two-group", "ancova", "interaction-2x2")
-    unit = "per cell" if des.name == "interaction-2x2" else "per group"
+    grouped = des.unit is not None
+    unit = f"per {des.unit}"
     heads = ["scenario", f"planning {lab}"]
     if grouped:
         heads += [f"analysed {unit}", "analysed in total"]
@@ -283,7 +288,12 @@ def build_blocks(run) -> list[Block]:
                    rows=tuple((s.name, _num(s.effect), md_escape(s.basis))
                               for s in (sc.optimistic, sc.realistic, sc.pessimistic))))
     iv, ci95 = sc.realistic_interval(), sc.realistic_interval(0.95)
-    if estimable(iv):
+    if getattr(sc, "posterior", None) is not None:
+        from .report import model_average_lines
+        b.append(Block("p", "Posterior of the model average (the default planning rule); the "
+                            "bias-sensitivity table above is its frequentist counterpart:"))
+        b.append(Block("list", items=tuple(_safe_md(x) for x in model_average_lines(sc))))
+    elif estimable(iv):
         b.append(Block("p", f"Realistic {sym} = {sc.realistic.effect:.3f} (SE "
                             f"{sc.realistic.se:.3f}); {100 * iv.level:g}% safeguard interval "
                             f"{_ci(iv)}, 95% interval {_ci(ci95)}."))
@@ -308,8 +318,11 @@ def build_blocks(run) -> list[Block]:
     asr = plan.assurance
     if asr is not None:
         if estimable(asr):
-            b.append(Block("p", f"Assurance over Normal({asr.mean:.3f}, {asr.sd:.3f}^2) "
-                                f"(ceiling {asr.ceiling:.3f}):"))
+            dist = (f"Normal({asr.mean:.3f}, {asr.sd:.3f}^2)"
+                    if getattr(asr, "form", "normal") == "normal" else
+                    f"the model-averaged posterior predictive (mean {asr.mean:.3f}, "
+                    f"SD {asr.sd:.3f})")
+            b.append(Block("p", f"Assurance over {dist} (ceiling {asr.ceiling:.3f}):"))
             arows, why = [], []
             for t, n, nt, ach in zip(asr.targets, asr.n, asr.n_total, asr.achieved):
                 if isinstance(n, NotEstimable):
@@ -395,13 +408,9 @@ def key_numbers(run) -> list[tuple[str, str]]:
 
 def _power_basis(design) -> str:
     """How the planning power was computed, in words: the Fisher z test and covariates held
-    fixed are approximations; the design description says which covariate model was used."""
-    if design.name == "correlation":
-        return "the exact distribution of r" if design.exact_r else "the Fisher z approximation"
-    if design.name in ("ancova", "regression-increment") and design.fixed_covariates:
-        kind = "covariate" if design.name == "ancova" else "predictor"
-        return f"noncentral distributions (an approximation when the {kind} values are sampled)"
-    return "exact noncentral distributions"
+    fixed are approximations; the design description says which covariate model was used.
+    Each design's wording is in its registry entry (:mod:`pooler.designs`)."""
+    return design.power_basis()
 
 
 def methods_paragraph(run) -> str:
@@ -446,22 +455,25 @@ def methods_paragraph(run) -> str:
     eff_r, eff_p, eff_o = (plan.row(n, first).effect
                            for n in ("realistic", "pessimistic", "optimistic"))
     safeguard = "safeguard" in ps.basis
-    if sc.supported:
+    post = getattr(sc, "posterior", None)
+    if post is not None:
+        txt.append(_posterior_methods(sc, post, lab, eff_r, eff_p, eff_o))
+    elif sc.supported:
         txt.append(f"We planned on a realistic effect of {lab} = {eff_r:.2f} ({r.basis}) "
                    f"rather than the published estimate of {eff_o:.2f}, and checked a "
                    f"pessimistic value of {eff_p:.2f}, the {ps.basis}"
                    + (" (Perugini et al., 2014)" if safeguard else "") + ".")
     elif sc.sesoi is not None:
         txt.append(f"The literature does not support an effect of at least the smallest effect "
-                   f"size of interest, {lab} = {eff_r:.2f}, which we set before seeing these "
-                   "results as the smallest effect that would matter; we therefore planned on "
+                   f"size of interest, {lab} = {eff_r:.2f}, which we set as the smallest effect "
+                   "that would matter (Lakens, Scheel & Isager, 2018); we therefore planned on "
                    "that value rather than on an estimate from the literature (published "
                    f"estimate {eff_o:.2f}).")
     else:
         txt.append(f"The literature does not support a positive effect (realistic estimate "
                    f"{lab} = {eff_r:.2f}, {r.basis}; published estimate {eff_o:.2f}), so it "
                    "cannot justify a sample size; a smallest effect size of interest has to be "
-                   "chosen on substantive grounds.")
+                   "chosen on substantive grounds (Lakens, Scheel & Isager, 2018).")
     tails = "two-tailed" if plan.tails == 2 else "one-tailed"
     if isinstance(row.n_total, int):
         from .report import sizes_and_total
@@ -488,6 +500,36 @@ def methods_paragraph(run) -> str:
                    f"assurance (expected power) of {100 * asr.targets[0]:g}% (O'Hagan et al., "
                    "2005).")
     return " ".join(txt)
+
+
+def _posterior_methods(sc, post, lab, eff_r, eff_p, eff_o) -> str:
+    """The planning-effect sentences of the methods paragraph under the model-average rule."""
+    models = (f"a Bayesian model average over {len(post.models)} publication-bias models "
+              "(selection models, PET and PEESE, with and without an effect and "
+              "heterogeneity; Maier, Bartoš & Wagenmakers, 2023; Bartoš et al., 2023)")
+    bf = post.inclusion_bf["effect"]
+    bf_txt = f"{bf:.2f}" if isinstance(bf, float) else "beyond the computable range"
+    odds = f"P(effect > 0) = {post.p_positive:.2f}; inclusion Bayes factor for an effect {bf_txt}"
+    frequentist = ("The frequentist adjustments above are reported beside it as sensitivity "
+                   "analyses.")
+    if sc.supported:
+        iv = sc.realistic_interval(0.95)
+        ci = f", 95% credible interval {_ci(iv, 2)}" if estimable(iv) else ""
+        return (f"The planning effect comes from {models}: we planned on the posterior median "
+                f"of the mean effect given a positive effect, {lab} = {eff_r:.2f}{ci} ({odds}), "
+                f"rather than the published estimate of {eff_o:.2f}, and checked a pessimistic "
+                f"value of {eff_p:.2f}, the {sc.pessimistic.basis}. " + frequentist)
+    if sc.sesoi is not None:
+        return (f"In {models}, the posterior did not support an effect of at least the "
+                f"smallest effect size of interest ({odds}); we therefore planned on that "
+                f"smallest effect, {lab} = {eff_r:.2f}, which we set as the smallest effect "
+                "that would matter (Lakens, Scheel & Isager, 2018), rather than on an "
+                f"estimate from the literature (published estimate {eff_o:.2f}). "
+                + frequentist)
+    return (f"In {models}, the posterior favoured no positive effect ({odds}; published "
+            f"estimate {eff_o:.2f}), so the literature cannot justify a sample size; a "
+            "smallest effect size of interest has to be chosen on substantive grounds "
+            "(Lakens, Scheel & Isager, 2018). " + frequentist)
 
 
 def _safe_md(text: str) -> str:

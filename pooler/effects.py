@@ -19,6 +19,15 @@ References
    diagnostic tests. *Psychological Bulletin*, 117(1), 167-178.
 .. [F] Fisher, R. A. (1921). On the "probable error" of a coefficient of correlation
    deduced from a small sample. *Metron*, 1, 3-32.
+.. [F24] Fisher, R. A. (1924). The distribution of the partial correlation coefficient.
+   *Metron*, 3, 329-332. (A partial correlation controlling for q variables is distributed
+   as a zero-order correlation from n - q cases.)
+.. [AB12] Aloe, A. M., & Becker, B. J. (2012). An effect size for regression predictors in
+   meta-analysis. *Journal of Educational and Behavioral Statistics*, 37(2), 278-297.
+.. [A14] Aloe, A. M. (2014). An empirical investigation of partial effect sizes in
+   meta-analysis of correlational data. *Journal of General Psychology*, 141(1), 47-64.
+.. [PB05] Peterson, R. A., & Brown, S. P. (2005). On the use of beta coefficients in
+   meta-analysis. *Journal of Applied Psychology*, 90(1), 175-181.
 """
 from __future__ import annotations
 
@@ -127,6 +136,20 @@ def fisher_z(r: float, var_r: float | None = None, n: float | None = None) -> tu
     z = math.atanh(r)
     v = 1 / (n - 3) if var_r is None else var_r / (1 - r * r) ** 2
     return z, v
+
+
+def partial_r_from_t(t: float, df: float) -> float:
+    """Partial correlation of a regression coefficient from its t and the residual df:
+    ``r_p = t / sqrt(t^2 + df)`` (the partial correlation of the predictor with the outcome,
+    controlling for the model's other predictors; used as a meta-analytic effect size by
+    Aloe & Becker 2012 and Aloe 2014). With one predictor it is the zero-order correlation.
+
+    Examples
+    --------
+    >>> round(partial_r_from_t(3.0, 91.0), 4)
+    0.3
+    """
+    return t / math.sqrt(t * t + df)
 
 
 def log_or_to_d(log_or: float, var: float) -> tuple[float, float]:
@@ -302,6 +325,9 @@ class _Raw:
     design: str
     within_r: float | None = None
     notes: list[str] = field(default_factory=list)
+    #: for a partial correlation: the n of the zero-order correlation with the same
+    #: sampling distribution, n - q (Fisher 1924); Fisher z's variance is 1/(this - 3)
+    n_fisher: float | None = None
 
     @property
     def a(self) -> float:
@@ -578,6 +604,113 @@ def _r_raw(r, n, n1, n2, notes) -> _Raw:
     return _Raw("r", r, None, n, n1, n2, n - 2, "between", notes=notes)
 
 
+def _model_df(ctx: _Ctx, rec: Record, what: str, notes: list[str]) -> tuple[float, float | None]:
+    """Residual df of the regression a coefficient comes from, and its n when known:
+    ``df`` as given, or ``n - predictors - 1``."""
+    df, n, p = rec.get("df"), rec.get("n"), rec.get("predictors")
+    if df is None:
+        if n is None or p is None:
+            raise ctx.err(rec, "df" if n is not None else "n",
+                          f"{what} needs the residual df of its regression in 'df', or the "
+                          "sample size in 'n' and the number of predictors in 'predictors'")
+        df = n - p - 1
+        if not df > 1:
+            raise ctx.err(rec, "n", f"n = {n:g} with {p:g} predictors leaves {df:g} residual "
+                                    "df; it needs more than 1")
+        notes.append(f"residual df = n - predictors - 1 = {df:g}")
+    elif not df > 1:
+        raise ctx.err(rec, "df", f"df = {df:g}; the variance needs df > 1")
+    elif n is not None and p is not None and abs(n - p - 1 - df) > 1e-9:
+        raise ctx.err(rec, "df", f"df = {df:g} but n - predictors - 1 = {n - p - 1:g}; fix one "
+                                 "of them or leave one empty")
+    if n is None and p is not None:
+        n = df + p + 1
+    return df, n
+
+
+def _partial_raw(ctx: _Ctx, rec: Record, r: float, df: float, n: float | None,
+                 notes: list[str]) -> _Raw:
+    """A partial correlation with residual df: Fisher z variance 1/(df - 1), since with
+    q = predictors - 1 controls n - q - 3 = df - 1 (Fisher 1924)."""
+    p = rec.get("predictors")
+    if p == 1:
+        notes.append("one predictor: the partial correlation is the zero-order correlation "
+                     "of the pair")
+    elif p is None:
+        notes.append("ASSUMED: read as the correlation of the pair; it is the association "
+                     "controlling for the model's other predictors (if any; say how many in "
+                     "'predictors'), which equals the zero-order correlation only when they "
+                     "are uncorrelated with the pair (Aloe 2014)")
+    else:
+        notes.append(f"ASSUMED: read as the correlation of the pair; it controls for the "
+                     f"model's {p - 1:g} other predictor(s), so it equals the zero-order "
+                     "correlation only when they are uncorrelated with the pair (Aloe 2014)")
+    if n is None:
+        notes.append(f"n unknown: df + 2 = {df + 2:g} stands for it (the variance needs only "
+                     "the df)")
+    n_tot = n if n is not None else df + 2
+    return _Raw("r", r, None, n_tot, None, None, None, "between", notes=notes,
+                n_fisher=df + 2)
+
+
+def _from_coef_t(ctx: _Ctx, rec: Record) -> _Raw:
+    """t of a regression coefficient with its residual df: the partial correlation
+    ``r_p = t / sqrt(t^2 + df)`` (Aloe & Becker 2012; Aloe 2014), Fisher z variance
+    1/(df - 1) (Fisher 1924)."""
+    t = ctx.need(rec, "value", "for the t of a coefficient")
+    if _design(ctx, rec) == "within":
+        raise ctx.err(rec, "design", "a regression coefficient's t is not a within-subject "
+                                     "contrast; leave 'design' empty")
+    t *= _sign(ctx, rec, t, required=False)
+    notes: list[str] = []
+    df, n = _model_df(ctx, rec, "the t of a coefficient", notes)
+    r = partial_r_from_t(t, df)
+    notes.insert(0, f"coefficient t = {t:g} on {df:g} df read as the partial correlation "
+                    f"t / sqrt(t^2 + df) = {r:.4f}")
+    return _partial_raw(ctx, rec, r, df, n, notes)
+
+
+def _from_partial_r(ctx: _Ctx, rec: Record) -> _Raw:
+    """A reported partial correlation with its regression's residual df (or n and the
+    number of predictors); Fisher z variance 1/(df - 1) (Fisher 1924)."""
+    r = ctx.need(rec, "value", "for a partial correlation")
+    if not -1 < r < 1:
+        raise ctx.err(rec, "value", f"partial r = {r:g} is impossible; it lies strictly "
+                                    "between -1 and 1")
+    r *= _sign(ctx, rec, r, required=False)
+    notes: list[str] = []
+    df, n = _model_df(ctx, rec, "a partial correlation", notes)
+    return _partial_raw(ctx, rec, r, df, n, notes)
+
+
+def _from_std_coef(ctx: _Ctx, rec: Record) -> _Raw:
+    """A standardized regression coefficient: the pair's correlation only when it is the
+    model's sole predictor (then beta = r); otherwise it is refused, because it depends on
+    the other predictors (Peterson & Brown 2005 impute r from beta only approximately, and
+    pooler does not)."""
+    beta = ctx.need(rec, "value", "for a standardized coefficient")
+    p = rec.get("predictors")
+    if p is None:
+        raise ctx.err(rec, "predictors", "a standardized coefficient (std_coef) is the pair's "
+                      "correlation only when it is the model's only predictor; say how many "
+                      "predictors the model had in 'predictors'")
+    if p != 1:
+        raise ctx.err(rec, "stat", f"a standardized coefficient from a model with {p:g} "
+                      "predictors is not the correlation of the pair (it controls for the "
+                      "others); give the pair's zero-order correlation instead (stat r; papers "
+                      "often print it in a correlation table), or the coefficient's t with its "
+                      "df (stat coef_t, read as a partial correlation)")
+    if not -1 < beta < 1:
+        raise ctx.err(rec, "value", f"beta = {beta:g} with one predictor is a correlation, so "
+                                    "it must lie strictly between -1 and 1")
+    beta *= _sign(ctx, rec, beta, required=False)
+    notes = ["standardized coefficient of the only predictor: beta = r"]
+    n, n1, n2 = _r_groups(ctx, rec, notes)
+    if not n > 3:
+        raise ctx.err(rec, "n", f"n = {n:g}; a correlation needs n > 3 for a variance")
+    return _r_raw(beta, n, None, None, notes)
+
+
 def _from_chi2(ctx: _Ctx, rec: Record) -> _Raw:
     """χ²(1) with N: phi = sqrt(χ²/N), signed by ``direction``, then as a correlation."""
     x = ctx.need(rec, "value", "for a chi-square")
@@ -657,6 +790,7 @@ CONVERTERS: dict[str, Callable[[_Ctx, Record], _Raw]] = {
     "t": _from_t, "F": _from_f, "p": _from_p, "r": _from_r, "chi2": _from_chi2,
     "d": _from_d, "g": lambda ctx, rec: _from_d(ctx, rec, is_g=True),
     "means": _from_means, "counts": _from_counts, "odds_ratio": _from_odds_ratio,
+    "coef_t": _from_coef_t, "partial_r": _from_partial_r, "std_coef": _from_std_coef,
 }
 
 
@@ -664,13 +798,13 @@ def _to_metric(raw: _Raw, metric: str) -> tuple[float, float]:
     """Put a converted value on the target metric (g or Fisher z)."""
     if metric == "g":
         if raw.kind == "r":
-            d, vd = r_to_d(raw.est, r_variance(raw.est, raw.n_total), raw.a)
+            d, vd = r_to_d(raw.est, r_variance(raw.est, raw.n_fisher or raw.n_total), raw.a)
         else:
             d, vd = raw.est, raw.var
         j = hedges_j(raw.df_j) if raw.df_j and raw.df_j > 1 else 1.0
         return j * d, j * j * vd  # Borenstein et al. (2009) eqs. 4.23-4.24
     if raw.kind == "r":
-        return fisher_z(raw.est, n=raw.n_total)
+        return fisher_z(raw.est, n=raw.n_fisher or raw.n_total)
     r, vr = d_to_r(raw.est, raw.var, raw.a)
     return fisher_z(r, var_r=vr)
 

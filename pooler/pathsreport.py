@@ -170,3 +170,158 @@ def render_files(results, options: dict, methods: str, fmt_: str = "png") -> dic
     files["report.md"] = ("\n".join(md) + "\n").encode()
     return files
 
+
+
+# --------------------------------------------------------------------------------------------
+# Paths pooled from a sheet (pooler.pathsheet)
+# --------------------------------------------------------------------------------------------
+
+def paths_sheet_text(ps) -> str:
+    """Per path of a :class:`~pooler.pathsheet.PathSheet`: where it comes from, k, the pooled
+    correlation with its 95 % CI, and the optimistic / realistic / pessimistic correlations;
+    then the standardized paths each scenario's matrix implies."""
+    from .pathsheet import SCENARIOS
+    rows = []
+    for p in ps.paths:
+        src = f"rows {_rows(p.rows)}" if p.source == "sheet" else p.option
+        ci = f"[{p.ci.low:.3f}, {p.ci.high:.3f}]" if p.ci else ""
+        rows.append([p.path, src, p.k, p.pooled, ci] + [p.values[s] for s in SCENARIOS])
+    out = [f"Paths of {ps.design_name} pooled from {ps.file} (correlations of each pair; "
+           "each path pooled alone on Fisher's z)",
+           text_table(["pair", "from", "k", "pooled r", "95% CI"] + list(SCENARIOS), rows), ""]
+    out.append("How each path's realistic value was chosen:")
+    out += [f"  {p.path}: {p.bases['realistic']}" for p in ps.paths if p.source == "sheet"]
+    out.append("")
+    out.append("Standardized paths implied by each scenario's correlation matrix:")
+    out += [f"  {s}: {ps.designs[s].describe()}" for s in SCENARIOS]
+    for n in ps.notes:
+        out.append(f"Note: {n}")
+    return "\n".join(out) + "\n"
+
+
+def _rows(rows) -> str:
+    rows = list(rows)
+    if len(rows) > 4:
+        return f"{rows[0]}-{rows[-1]} ({len(rows)})" if rows == list(range(rows[0], rows[-1] + 1)) \
+            else ", ".join(map(str, rows[:3])) + f", ... ({len(rows)})"
+    return ", ".join(map(str, rows))
+
+
+def sheet_methods_paragraph(ps) -> str:
+    """How the paths were pooled and turned into each scenario's design."""
+    from_sheet = [p for p in ps.paths if p.source == "sheet"]
+    given = [p for p in ps.paths if p.source == "option"]
+    a = from_sheet[0].analysis if from_sheet else None
+    how = ""
+    if a is not None:
+        how = (f" (Fisher's z metric, {a.pooled.estimator.upper()} between-study variance, "
+               f"{a.pooled.interval.upper()} interval)")
+    text = (
+        f"The correlation of each pair of variables of the model was pooled separately from "
+        f"its own rows of {ps.file.split('/')[-1]} "
+        f"({', '.join(f'{p.path}: k = {p.k}' for p in from_sheet)}) with the same "
+        f"random-effects pooling{how}, publication-bias sensitivity suite and "
+        f"optimistic / realistic / pessimistic planning rule as a single literature. Rows "
+        f"that reported the t of a regression coefficient were read as partial correlations, "
+        f"r_p = t / sqrt(t^2 + df) (Aloe & Becker, 2012), with the sampling variance of a "
+        f"correlation from df + 2 cases (Fisher, 1924); a partial correlation from a model with "
+        f"other predictors was treated as the pair's correlation, which it equals only when "
+        f"those predictors are unrelated to the pair. Standardized coefficients were accepted "
+        f"only from one-predictor models, where they equal the correlation. ")
+    if given:
+        text += ("The pairs " + ", ".join(f"{p.path} = {p.values['realistic']:.3g}"
+                                          for p in given)
+                 + " had no literature and were fixed at the values given, in every scenario. ")
+    text += ("For each scenario, the scenario's value of every pair formed one correlation "
+             "matrix, which was checked to be positive definite; the standardized paths were the "
+             "regression coefficients it implies, as in meta-analytic path analysis "
+             "(Viswesvaran & Ones, 1995).")
+    return text
+
+
+def diagram_figure(ps, *, ax=None):
+    """A path diagram: boxes for X, the mediators and Y; an arrow for every path of the
+    model and a dashed line for a correlation between parallel mediators, each labelled
+    with the pair's pooled and realistic correlation. Returns the Figure."""
+    from matplotlib.patches import FancyArrowPatch, FancyBboxPatch
+    if ax is None:
+        from matplotlib.figure import Figure
+        fig = Figure(figsize=(6.6, 4.0), layout="constrained")
+        ax = fig.add_subplot()
+    else:
+        fig = ax.figure
+    variables = ps.variables
+    meds = [v for v in variables if v not in ("X", "Y")]
+    pos = {"X": (0.08, 0.18), "Y": (0.92, 0.18)}
+    if ps.design_name == "serial-mediation":
+        pos.update({"M1": (0.33, 0.78), "M2": (0.67, 0.78)})
+    else:
+        top, bottom = 0.9, (0.5 if len(meds) > 1 else 0.9)
+        for i, m in enumerate(meds):
+            y = top - (top - bottom) * (i / max(1, len(meds) - 1))
+            pos[m] = (0.5, y)
+    vals = {p.path: p for p in ps.paths}
+
+    def label(p):
+        if p.source == "option":
+            return f"r = {p.values['realistic']:.2f} (given)"
+        return f"r {p.pooled:.2f} pooled\n{p.values['realistic']:.2f} realistic (k={p.k})"
+
+    w, h = 0.11, 0.09
+    for v, (x, y) in pos.items():
+        ax.add_patch(FancyBboxPatch((x - w / 2, y - h / 2), w, h,
+                                    boxstyle="round,pad=0.01,rounding_size=0.02",
+                                    fc="#eef3f7" if v in meds else "#dde6ee", ec="#34495e",
+                                    lw=1.0))
+        ax.text(x, y, v, ha="center", va="center", fontsize=10, weight="bold",
+                color="#1f2d3a")
+    for key, p in vals.items():
+        a, b = key.split("-")
+        (x0, y0), (x1, y1) = pos[a], pos[b]
+        arrow = not (a.startswith("M") and b.startswith("M")) or \
+            ps.design_name == "serial-mediation"
+        bend = 0.0
+        if a.startswith("M") and b.startswith("M") and ps.design_name != "serial-mediation":
+            bend = 0.6
+        ax.add_patch(FancyArrowPatch((x0, y0), (x1, y1), arrowstyle="-|>" if arrow else "-",
+                                     mutation_scale=12, lw=1.1, color="#4a5a6a",
+                                     ls="-" if arrow else "--", shrinkA=24, shrinkB=24,
+                                     connectionstyle=f"arc3,rad={bend}"))
+        mx, my = (x0 + x1) / 2, (y0 + y1) / 2
+        if bend:  # correlations among parallel mediators: labelled in the corner
+            n_side = sum(1 for k in vals if k.split("-")[0].startswith("M")
+                         and k.split("-")[1].startswith("M") and k < key)
+            ax.text(0.0, 0.97 - 0.1 * n_side, f"{key} (dashed): " + label(p).replace("\n", ", "),
+                    ha="left", va="top", fontsize=7, color="#1f2d3a")
+            continue
+        ax.text(mx, my, label(p), ha="center", va="center", fontsize=7, color="#1f2d3a",
+                bbox=dict(boxstyle="round,pad=0.2", fc="white", ec="none", alpha=0.9))
+    ax.set_xlim(-0.02, 1.02)
+    ax.set_ylim(0.0, 1.0)
+    ax.axis("off")
+    ax.set_title(f"{ps.design_name}: correlations of each pair, pooled and realistic",
+                 fontsize=9, loc="left")
+    return fig
+
+
+def render_sheet_files(results, ps, options: dict, methods: str, fmt_: str = "png") -> dict:
+    """:func:`render_files` plus what a path sheet adds: every path's pooling in
+    results.json, the per-path table and a pooling paragraph in report.md, and the path
+    diagram."""
+    from .plots import save
+    files = render_files(results, options, methods, fmt_)
+    doc = json.loads(files["results.json"])
+    doc["paths"] = ps.to_dict()
+    files["results.json"] = (json.dumps(to_jsonable(doc), indent=2, allow_nan=False,
+                                        ensure_ascii=False) + "\n").encode()
+    fig = diagram_figure(ps)
+    buf = io.BytesIO()
+    save(fig, buf, fmt_)
+    files[f"path_diagram.{fmt_}"] = buf.getvalue()
+    md = files["report.md"].decode()
+    head, _, rest = md.partition("\n\n")
+    section = ("## Paths pooled from the literature\n\n```\n" + paths_sheet_text(ps).rstrip()
+               + "\n```\n\n" + sheet_methods_paragraph(ps) + "\n\n"
+               + f"![path diagram](path_diagram.{fmt_})\n\n")
+    files["report.md"] = (head + "\n\n" + section + rest).encode()
+    return files

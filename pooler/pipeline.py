@@ -31,6 +31,8 @@ class Analysis:
         doc["bias"] = bias
         doc["scenarios"] = {**self.scenarios.to_dict(),
                             "audit": to_jsonable(self.audit.literature)}
+        if "model_average" in doc["scenarios"]:
+            doc["model_average"] = doc["scenarios"].pop("model_average")
         weight = {}
         for u, w in zip(self.effects.units, self.pooled.weights):
             for r in u.rows:
@@ -61,8 +63,9 @@ def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="re
     from .effects import convert
     from .pooling import pool
     from .scenarios import make_scenarios
-    from .sheet import read_sheet
-    sheet = read_sheet(sheet_path)
+    from .sheet import Sheet, read_sheet
+    # a Sheet already read (e.g. one path's rows of a path sheet) is analysed as it is
+    sheet = sheet_path if isinstance(sheet_path, Sheet) else read_sheet(sheet_path)
     effects = convert(sheet, metric, within_r=within_r, sample_r=sample_r)
     say("pooling (with leave-one-out)")
     pooled = pool(effects, estimator, interval)
@@ -111,7 +114,7 @@ def run(sheet_path, *, design, analysis_options, plan_options: dict,
     a = analyse(sheet_path, progress=progress, **analysis_options)
     sc = a.scenarios
     p = make_plan(sc.planning_effects(), design, metric=sc.planning_metric,
-                  predictive=sc.predictive if isinstance(sc.predictive, tuple) else None,
+                  predictive=sc.assurance_density(),
                   effect_label="g" if sc.planning_metric == "d" else "r", **plan_options)
     opts = {**analysis_options, **plan_options, "design": design.to_dict()
             if hasattr(design, "to_dict") else design}

@@ -162,15 +162,28 @@ def recruit_sizes(n: int, design, attrition: float) -> tuple[tuple[int, ...], in
     >>> recruit_sizes(100, "paired", 0.2)
     ((125,), 125)
     """
+    sizes = tuple(_recruit(g, attrition) for g in unit_sizes(n, design))
+    return sizes, int(sum(sizes))
+
+
+def unit_sizes(n: int, design) -> tuple[int, ...]:
+    """The whole groups (cells) a design has for ``n`` per unit, from the design registry:
+    with an allocation ratio (n1, n2 = ceil(ratio n1)); equal units otherwise; the total
+    alone for a design counted in all.
+
+    Examples
+    --------
+    >>> unit_sizes(30, Design("two-group", ratio=2.0)), unit_sizes(25, "interaction-2x2")
+    ((30, 60), (25, 25, 25, 25))
+    """
     des = _design(design)
     n = int(n)
-    if des.name in ("two-group", "ancova"):
-        sizes = (_recruit(n, attrition), _recruit(int(des.n2(n)), attrition))
-    elif des.name == "interaction-2x2":
-        sizes = (_recruit(n, attrition),) * 4
-    else:
-        sizes = (_recruit(n, attrition),)
-    return sizes, int(sum(sizes))
+    if des.unit is None:
+        return (n,)
+    total = int(des.n_total(n))
+    if "ratio" in des.spec.parameters:
+        return (n, total - n)
+    return (n,) * max(total // n, 1)
 
 
 def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
@@ -265,9 +278,9 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
         fixed = _fixed_n(int(n_total), scenarios, effects, deff, des, metric, alpha, alternative,
                          powers)
         if fixed.n_total_used != fixed.n_total:
-            unit = "per cell" if des.name == "interaction-2x2" else "per group"
             notes.append(f"a total N of {fixed.n_total} does not split into whole groups as "
-                         f"planned: the fixed-N figures are for {fixed.n_per_group} {unit}, "
+                         f"planned: the fixed-N figures are for {fixed.n_per_group} "
+                         f"per {des.unit}, "
                          f"{fixed.n_total_used} in all")
     return Plan(design=des, metric=metric, alpha=alpha, tails=tails, powers=powers,
                 attrition=attrition, scenarios=scenarios, rows=tuple(rows), assurance=assurance,
@@ -275,14 +288,10 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
                 notes=tuple(notes))
 
 
-#: designs whose test is on a correlation (their own metric is r); the others test a d
-CORRELATIONAL = ("correlation", "regression-increment")
-
-
 def design_metric(design) -> str:
     """The metric a design plans on when the user does not choose one: r for the
-    correlational designs, d otherwise."""
-    return "r" if _design(design).name in CORRELATIONAL else "d"
+    correlational designs, d otherwise (the registry's ``metric``, :mod:`pooler.designs`)."""
+    return _design(design).metric
 
 
 def conversion_note(metric: str, design) -> str | None:
@@ -304,24 +313,19 @@ def conversion_note(metric: str, design) -> str | None:
     if metric == design_metric(des):
         return None
     if metric == "d":
-        then = ("" if des.name == "correlation"
-                else ", then f^2 = r^2 / (1 - r^2)")
         return (f"the planning effects are d, and the {des.name} design tests a correlation: "
                 "each d is converted to r = d / sqrt(d^2 + 4), the correlation of the outcome "
                 "with membership of one of two equal groups (Borenstein et al. 2009, eq. 7.7)"
-                f"{then}; give --metric r to plan on a correlation directly")
+                f"{des.spec.r_note}; give --metric r to plan on a correlation directly")
     return (f"the planning effects are correlations, and the {des.name} design tests a "
             "standardised mean difference: each r is converted to d = 2 r / sqrt(1 - r^2), "
             "as if it compared two equal groups (Borenstein et al. 2009, eq. 7.5)")
 
 
 def per_group(n_total: int, design: Design) -> int:
-    """n per group (per cell) that a total N allows, rounding down."""
-    if design.name in ("two-group", "ancova"):
-        return int(math.floor(n_total / (1 + design.ratio) + 1e-9))
-    if design.name == "interaction-2x2":
-        return n_total // 4
-    return n_total
+    """n per group (per cell) that a total N allows, rounding down (the registry's
+    ``per_unit``, :mod:`pooler.designs`)."""
+    return _design(design).per_unit(n_total)
 
 
 def _fixed_n(n_total, scenarios, effects, deff, des, metric, alpha, alternative, powers):

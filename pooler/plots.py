@@ -256,10 +256,10 @@ def power_curves(plan, *, ax=None, n_max=None):
         ax.plot(chosen.n_total, chosen.achieved_power, "o", color="black", ms=5, zorder=4)
         each = ""
         if des.grouped:
-            unit = "per cell" if des.name == "interaction-2x2" else "per group"
-            n2 = int(des.n2(chosen.n_per_group)) if des.name in ("two-group", "ancova") else None
-            each = (f" ({chosen.n_per_group:,} {unit})" if n2 in (None, chosen.n_per_group)
-                    else f" ({chosen.n_per_group:,} + {n2:,})")
+            from .planning import unit_sizes
+            sizes = unit_sizes(chosen.n_per_group, des)
+            each = (f" ({sizes[0]:,} per {des.unit})" if len(set(sizes)) == 1
+                    else " (" + " + ".join(f"{x:,}" for x in sizes) + ")")
         ax.annotate(f"realistic: N = {chosen.n_total:,}{each}",
                     (chosen.n_total, chosen.achieved_power), xytext=(6, -14),
                     textcoords="offset points", fontsize=7.5)
@@ -287,7 +287,6 @@ def save(fig, path, fmt: str) -> None:
 def stress_plot(res, *, ax=None):
     """Median true power (marker) and its 10th percentile (line end) of the n each planning
     rule recommends, per simulation cell, with the target power drawn."""
-    from .simulate import RULES
     colours = {"random effects": SKY, "median of adjusters": GREEN, "realistic": BLUE,
                "pessimistic": VERMILION}
     fig = None
@@ -296,8 +295,8 @@ def stress_plot(res, *, ax=None):
     else:
         fig = ax.figure
     cells = res.cells
-    offs = np.linspace(-0.27, 0.27, len(RULES))
-    for off, rule in zip(offs, RULES):
+    offs = np.linspace(-0.27, 0.27, len(res.rules))
+    for off, rule in zip(offs, res.rules):
         xs, med, p10 = [], [], []
         for i, c in enumerate(cells):
             a = c.true_power[rule]

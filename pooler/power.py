@@ -4,7 +4,9 @@ Only numpy and ``scipy.special`` are imported at module level, so that a quick
 ``pooler plan --effect 0.3`` starts fast. Everything is vectorised over numpy arrays:
 a whole planning grid (effects × powers × alphas) costs about one call per search step.
 
-Designs and the test each is planned for (λ is the noncentrality):
+Designs and the test each is planned for (λ is the noncentrality); each design's power
+function, units, labels and description are its entry in the registry
+:mod:`pooler.designs`, which :class:`Design` and the functions below read:
 
 ============================  ====================================================  ==========
 design                        test                                                   effect
@@ -54,10 +56,12 @@ import numpy as np
 from scipy import special as sp
 
 from ._results import NotEstimable, to_jsonable
+from .design_choices import PLANNED_DESIGNS
 from .errors import OptionError
 
-DESIGNS = ("two-group", "paired", "one-sample", "correlation", "ancova", "interaction-2x2",
-           "regression-increment")
+#: The built-in planned designs; each is an entry of the registry :mod:`pooler.designs`,
+#: which holds everything a design needs (its test, units, labels and description).
+DESIGNS = PLANNED_DESIGNS
 ALTERNATIVES = ("two-sided", "greater")
 N_MAX = 10_000_000  # per group (or total): beyond this we say "cannot be reached"
 
@@ -69,7 +73,7 @@ class Design:
     Parameters
     ----------
     name : str
-        One of :data:`DESIGNS`.
+        A design registered in :mod:`pooler.designs` (the built-in ones: :data:`DESIGNS`).
     ratio : float
         Allocation n2 / n1 for ``two-group`` and ``ancova`` (default 1).
     planned_r : float
@@ -105,8 +109,7 @@ class Design:
 
     def __post_init__(self):
         # validation
-        if self.name not in DESIGNS:
-            raise OptionError(f"`design` must be one of {', '.join(DESIGNS)}, not {self.name!r}")
+        self.spec   # an unknown name raises OptionError, listing the registered ones
         if not (0 < self.ratio < math.inf):
             raise OptionError(f"`ratio` (n2/n1) must be a positive number, not {self.ratio!r}")
         if not -1 < self.planned_r < 1:
@@ -121,21 +124,34 @@ class Design:
                               f"{self.predictors_total!r}")
 
     @property
+    def spec(self):
+        """This design's entry in the registry (:class:`pooler.designs.PlannedDesign`)."""
+        from .designs import get
+        return get(self.name)
+
+    @property
     def grouped(self) -> bool:
         """True when n is counted per group (or per cell), False when it is the total."""
-        return self.name in ("two-group", "ancova", "interaction-2x2")
+        return self.spec.unit is not None
+
+    @property
+    def unit(self) -> str | None:
+        """What n counts: "group", "cell", or None when n is the total."""
+        return self.spec.unit
+
+    @property
+    def metric(self) -> str:
+        """The literature metric the design plans on by default: "r" when its test is on a
+        correlation, else "d"."""
+        return self.spec.metric
 
     @property
     def n_min(self) -> int:
-        return {"two-group": 2, "paired": 2, "one-sample": 2, "ancova": 2,
-                "interaction-2x2": 2, "correlation": 4,
-                "regression-increment": self.predictors_total + 2}[self.name]
+        return self.spec.n_min(self)
 
     @property
     def effect_label(self) -> str:
-        return {"two-group": "d", "paired": "d_z", "one-sample": "d", "correlation": "r",
-                "ancova": "d", "interaction-2x2": "d (simple effect)",
-                "regression-increment": "f²"}[self.name]
+        return self.spec.effect_label
 
     def n2(self, n1):
         """Size of the second group for ``n1`` in the first (``two-group``, ``ancova``).
@@ -149,33 +165,20 @@ class Design:
 
     def n_total(self, n):
         """Total participants for n per group (per cell for the 2x2)."""
-        n = np.asarray(n)
-        if self.name in ("two-group", "ancova"):
-            return n + self.n2(n)
-        if self.name == "interaction-2x2":
-            return 4 * n
-        return n
+        return self.spec.total(self, np.asarray(n))
+
+    def per_unit(self, n_total: int) -> int:
+        """n per group (per cell) that a total N allows, rounding down (the total itself
+        for designs counted in all)."""
+        return self.spec.per_unit(self, n_total)
 
     def describe(self) -> str:
-        extra = {"two-group": "" if self.ratio == 1 else f"allocation n2/n1 = {self.ratio:g}",
-                 "paired": f"planned correlation between measures {self.planned_r:g}",
-                 "one-sample": "", "correlation": "exact distribution of r" if self.exact_r
-                 else "Fisher z test",
-                 "ancova": f"covariate-outcome correlation {self.covariate_r:g}, "
-                           f"allocation {self.ratio:g}, " + self._covariate_basis(),
-                 "interaction-2x2": f"attenuation {self.attenuation:g} "
-                                    "(1 = effect vanishes, 2 = full crossover)",
-                 "regression-increment": f"{self.predictors_added} of "
-                                         f"{self.predictors_total} predictors tested, "
-                                         + self._covariate_basis()}[self.name]
+        extra = self.spec.details(self)
         return self.name + (f" ({extra})" if extra else "")
 
-    def _covariate_basis(self) -> str:
-        ancova = self.name == "ancova"
-        if self.fixed_covariates:
-            kind = "covariate" if ancova else "predictor"
-            return f"{kind} values held fixed (approximate if sampled)"
-        return "power averaged over " + ("a normal covariate" if ancova else "normal predictors")
+    def power_basis(self) -> str:
+        """How the power is computed, in words, saying whether it is exact."""
+        return self.spec.power_basis(self)
 
     def to_dict(self) -> dict:
         return {"name": self.name, "ratio": self.ratio, "planned_r": self.planned_r,
@@ -211,23 +214,21 @@ def to_design_effect(effect, metric: str, design) -> np.ndarray:
         raise OptionError(f"`metric` must be 'd' or 'r', not {metric!r}")
     if metric == "z":
         e, metric = np.tanh(e), "r"
-    if des.name in ("correlation", "regression-increment"):
+    if des.metric == "r":
         r = e if metric == "r" else e / np.sqrt(e * e + 4)
-        return r if des.name == "correlation" else np.sign(r) * r * r / (1 - r * r)
+        return des.spec.to_own(des, r)
     d = e if metric in ("d", "g") else 2 * e / np.sqrt(1 - e * e)
-    if des.name == "paired":
-        return d / math.sqrt(2 * (1 - des.planned_r))
-    return d
+    return des.spec.to_own(des, d)
 
 
 def from_design_effect(x, metric: str, design) -> np.ndarray:
     """Inverse of :func:`to_design_effect`."""
     des = _design(design)
     x = np.asarray(x, dtype=float)
-    if des.name in ("correlation", "regression-increment"):
-        r = x if des.name == "correlation" else np.sign(x) * np.sqrt(np.abs(x) / (1 + np.abs(x)))
+    if des.metric == "r":
+        r = des.spec.from_own(des, x)
         return r if metric in ("r", "z") else 2 * r / np.sqrt(1 - r * r)
-    d = x * math.sqrt(2 * (1 - des.planned_r)) if des.name == "paired" else x
+    d = des.spec.from_own(des, x)
     return d if metric in ("d", "g") else d / np.sqrt(d * d + 4)
 
 
@@ -353,48 +354,7 @@ def power_at(effect, n, design="two-group", alpha=0.05, alternative="two-sided",
     e = np.asarray(effect, dtype=float)
     n = np.asarray(n, dtype=float)
     alpha = np.asarray(alpha, dtype=float)
-    name = des.name
-    if name in ("two-group", "ancova"):
-        n2 = des.n2(n)   # integer second group, n2 = ceil(ratio n1)
-        scale = np.sqrt(n * n2 / (n + n2))
-        if name == "ancova":
-            if des.fixed_covariates:   # Borm et al. (2007): covariate balanced, held fixed
-                return _t_power(e * scale / math.sqrt(1 - des.covariate_r ** 2), n + n2 - 3,
-                                alpha, alternative, upper_only)
-            from ._random_predictors import ancova_power
-            return ancova_power(e, n, n2, des.covariate_r, alpha, alternative, upper_only)
-        return _t_power(e * scale, n + n2 - 2, alpha, alternative, upper_only)
-    if name in ("paired", "one-sample"):
-        return _t_power(e * np.sqrt(n), n - 1, alpha, alternative, upper_only)
-    if name == "interaction-2x2":
-        return _t_power(e * des.attenuation * np.sqrt(n) / 2, 4 * n - 4, alpha, alternative,
-                        upper_only)
-    if name == "correlation":
-        if des.exact_r:
-            return _r_exact_power(e, n, alpha, alternative, upper_only)
-        z = np.arctanh(e) * np.sqrt(n - 3)
-        if alternative == "two-sided":
-            c = sp.ndtri(1 - alpha / 2)
-            return sp.ndtr(z - c) + (0 if upper_only else sp.ndtr(-z - c))
-        return sp.ndtr(z - sp.ndtri(1 - alpha))
-    # regression increment
-    u, p = des.predictors_added, des.predictors_total
-    if alternative == "greater" and u > 1:
-        raise OptionError("a one-tailed test is defined only when one predictor is added")
-    if not des.fixed_covariates:   # normal predictors (Gatsonis & Sampson 1989)
-        from ._random_predictors import increment_power
-        power = increment_power(e, n, u, p, alpha, alternative, upper_only)
-        if upper_only and u > 1:
-            return np.where(np.asarray(e) > 0, power, 0.0)
-        return power
-    df2 = n - p - 1
-    lam = np.abs(e) * n   # Cohen (1988), ch. 9: predictors held fixed
-    if u == 1 and (alternative == "greater" or upper_only):
-        return _t_power(np.sign(e) * np.sqrt(lam), df2, alpha, alternative, upper_only)
-    power = _f_power(lam, u, df2, alpha)
-    # the F test of several predictors has no direction: for assurance, an effect against
-    # the hypothesis counts as no success
-    return np.where(np.asarray(e) > 0, power, 0.0) if upper_only else power
+    return des.spec.power(des, e, n, alpha, alternative, upper_only)
 
 
 # ------------------------------------------------------------------ sample size
@@ -465,18 +425,7 @@ def _normal_guess(e, target, alpha, alternative, des):
     Guenther's (1981) t correction (+ z²/4 per group, + z²/2 for one sample)."""
     za = sp.ndtri(1 - (alpha / 2 if alternative == "two-sided" else alpha))
     z = (za + sp.ndtri(target)) ** 2
-    name = des.name
-    if name == "two-group":
-        return z / e ** 2 * (1 + des.ratio) / des.ratio + za ** 2 / 4
-    if name == "ancova":
-        return z / e ** 2 * (1 + des.ratio) / des.ratio * (1 - des.covariate_r ** 2) + za ** 2 / 4
-    if name in ("paired", "one-sample"):
-        return z / e ** 2 + za ** 2 / 2
-    if name == "interaction-2x2":
-        return 4 * z / (e * des.attenuation) ** 2
-    if name == "correlation":
-        return z / np.arctanh(e) ** 2 + 3
-    return z / np.abs(e) + des.predictors_total + 1
+    return des.spec.normal_start(des, e, z, za)
 
 
 def n_for_power(effect, target=0.8, design="two-group", alpha=0.05,
@@ -501,8 +450,8 @@ def n_for_power(effect, target=0.8, design="two-group", alpha=0.05,
         raise OptionError("target power must lie strictly between 0 and 1")
     if np.any((alpha <= 0) | (alpha >= 0.5)):
         raise OptionError("`alpha` must lie in (0, 0.5)")
-    if des.name == "correlation" and np.any(np.abs(e) >= 1):
-        raise OptionError("a correlation effect must lie strictly between -1 and 1")
+    if des.spec.check_effect is not None:
+        des.spec.check_effect(des, e)
     finite = np.isfinite(e)
     positive = finite & (e > 0)
     valid = positive & (target > alpha)
@@ -529,7 +478,7 @@ def detectable_effect(n, target=0.8, design="two-group", alpha=0.05,
     from scipy.optimize import brentq
     des = _design(design)
     n, target, alpha = np.broadcast_arrays(*(np.asarray(x, float) for x in (n, target, alpha)))
-    cap = 0.999999 if des.name == "correlation" else 100.0
+    cap = des.spec.effect_cap
     out = np.full(n.shape, np.nan)
     for idx in np.ndindex(n.shape):
         if n[idx] < des.n_min:

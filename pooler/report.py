@@ -64,12 +64,14 @@ def _n(x: float):
 def group_sizes_text(design, sizes) -> str:
     """Whole groups in words: "512 per group", "40 in group 1 and 80 in group 2",
     "30 per cell (4 cells)"; empty for a design counted in total."""
-    if design.name in ("two-group", "ancova"):
-        a, b = sizes
-        return f"{a:,} per group" if a == b else f"{a:,} in group 1 and {b:,} in group 2"
-    if design.name == "interaction-2x2":
-        return f"{sizes[0]:,} per cell (4 cells)"
-    return ""
+    unit = design.unit
+    if unit is None:
+        return ""
+    if len(set(sizes)) > 1:
+        return " and ".join(f"{x:,} in {unit} {i + 1}" for i, x in enumerate(sizes))
+    if len(sizes) == 2:
+        return f"{sizes[0]:,} per {unit}"
+    return f"{sizes[0]:,} per {unit} ({len(sizes)} {unit}s)"
 
 
 def sizes_and_total(n, design, attrition: float = 0.0) -> tuple[str, int]:
@@ -96,8 +98,7 @@ def plan_table(plan) -> tuple[list[str], list[list]]:
     headers = ["scenario", f"planning {plan.effect_label}", f"design {des.effect_label}"]
     for p in plan.powers:
         if des.grouped:
-            unit = "n/cell" if des.name == "interaction-2x2" else "n/group"
-            headers += [f"{unit} @{_pct(p)}", f"total @{_pct(p)}"]
+            headers += [f"n/{des.unit} @{_pct(p)}", f"total @{_pct(p)}"]
         else:
             headers += [f"N @{_pct(p)}"]
         if plan.attrition:
@@ -137,7 +138,9 @@ def plan_text(plan) -> str:
             out.append(f"  {a}")
         else:
             scale = "Fisher z" if a.metric in ("r", "z") else "d"
-            out.append(f"  true effect ~ Normal({a.mean:.3f}, {a.sd:.3f}^2) on the {scale} scale; "
+            dist = (f"Normal({a.mean:.3f}, {a.sd:.3f}^2)" if getattr(a, "form", "normal") == "normal"
+                    else f"the tabulated predictive (mean {a.mean:.3f}, SD {a.sd:.3f})")
+            out.append(f"  true effect ~ {dist} on the {scale} scale; "
                        f"ceiling P(effect > 0) = {a.ceiling:.3f}")
             arows, why = [], []
             for t, n, nt, got in zip(a.targets, a.n, a.n_total, a.achieved):
@@ -344,7 +347,9 @@ def scenarios_text(scen, audit=None) -> str:
     heads = ["scenario", sym] + (["r"] if scen.metric == "z" else []) + ["basis"]
     out = ["Planning scenarios:", text_table(heads, rows)]
     iv, ci = scen.realistic_interval(), scen.realistic_interval(0.95)
-    if estimable(iv):
+    if getattr(scen, "posterior", None) is not None:
+        out += model_average_lines(scen)
+    elif estimable(iv):
         out.append(f"Realistic {sym} = {scen.realistic.effect:.3f}, SE {scen.realistic.se:.3f}: "
                    f"{100 * iv.level:g}% safeguard interval {_ci(iv.low, iv.high)}, "
                    f"95% interval {_ci(ci.low, ci.high)}")
@@ -359,6 +364,39 @@ def scenarios_text(scen, audit=None) -> str:
         out.append(text_table(["study", "power", "how"],
                               [[r.label, r.power, r.how] for r in a.rows], digits=2))
     return "\n".join(out)
+
+
+def model_average_lines(scen) -> list[str]:
+    """The posterior summary of the model-average rule, a few plain lines."""
+    from ._results import estimable
+    avg = scen.posterior
+    sym = "g" if scen.metric == "g" else "z"
+
+    def bf(x):
+        return f"{x:.2f}" if isinstance(x, float) else "beyond range"
+    comp = {}
+    for m in avg.models:
+        comp[m.bias] = comp.get(m.bias, 0.0) + m.posterior
+    ci = avg.mu.interval
+    out = [f"Model average over {len(avg.models)} publication-bias models (deterministic quadrature): "
+           f"mean effect {sym} median {avg.mu.median:.3f} [{ci.low:.3f}, {ci.high:.3f}], "
+           f"tau median {avg.tau.median:.3f} [{avg.tau.interval.low:.3f}, "
+           f"{avg.tau.interval.high:.3f}], P(effect > 0) = {avg.p_positive:.2f}",
+           f"Inclusion Bayes factors: effect {bf(avg.inclusion_bf['effect'])}, heterogeneity "
+           f"{bf(avg.inclusion_bf['heterogeneity'])}, publication bias "
+           f"{bf(avg.inclusion_bf['bias'])}; posterior probability by bias model: "
+           + ", ".join(f"{k} {v:.2f}" for k, v in comp.items())]
+    iv = scen.realistic_interval(0.95)
+    if estimable(iv) and scen.supported:
+        out.append(f"Realistic {sym} = {scen.realistic.effect:.3f}: 95% credible interval "
+                   f"{_ci(iv.low, iv.high)} (given a positive effect)")
+    sens = scen.sensitivity
+    if isinstance(sens, dict):
+        out.append(f"With wider priors (every scale doubled): realistic {sens['realistic']:.3f}, "
+                   f"pessimistic {sens['pessimistic']:.3f}, P(effect > 0) = "
+                   f"{sens['p_positive']:.2f}")
+    out += list(avg.warnings)
+    return out
 
 
 def run_summary_text(run, paths) -> str:
@@ -387,18 +425,17 @@ def run_summary_text(run, paths) -> str:
 
 def stress_text(res) -> str:
     """What ``pooler stress`` prints: true power per planning rule, estimator bias and RMSE."""
-    from .simulate import RULES
-    estimators = list(res.cells[0].estimates) if res.cells else []
+    rules, estimators = list(res.rules), list(res.estimators)
     out = [f"Stress test: {res.reps} simulated literatures per cell ({res.shapes}); "
            f"n planned for {100 * res.power:g}% power, {res.design}; seed {res.seed}",
            "True power reached by the n each rule recommends: median (10th percentile); "
            "'none' = share of literatures with no positive planning effect", ""]
-    heads = ["k", "delta", "tau", "pi"] + list(RULES)
+    heads = ["k", "delta", "tau", "pi"] + rules
     rows = []
     for c in res.cells:
         s = c.summary()
         line = [c.cell.k, c.cell.delta, c.cell.tau, c.cell.pi]
-        for r in RULES:
+        for r in rules:
             v = s["rules"][r]
             cell = ("-" if v["median_power"] is None else
                     f"{v['median_power']:.2f} ({v['p10_power']:.2f})")

@@ -1,6 +1,11 @@
 """Stage 5: from the pooled estimate and the bias suite to three planning effects.
 
-The default rule (DEVELOPERS.md, "The planning-effect rule"):
+The default rule (``adjuster="default"``; :func:`posterior_rule`): optimistic = the
+random-effects estimate; realistic = the posterior median of the mean effect given a positive
+effect from the Bayesian model average over publication-bias models (:mod:`pooler.bma`);
+pessimistic = its 25th percentile, never below the SESOI, never above the realistic effect.
+
+The earlier rule (``adjuster="safeguard"``; DEVELOPERS.md, "The planning-effect rule"):
 
 - optimistic = the random-effects estimate (the literature taken as published);
 - realistic = the three-parameter selection model's estimate when the model is identified
@@ -24,6 +29,8 @@ from __future__ import annotations
 import math
 import statistics
 from dataclasses import dataclass
+
+import numpy as np
 
 from ._results import NotEstimable, estimable, to_jsonable
 from .bias import adjuster_choices, planning_methods
@@ -83,18 +90,44 @@ class Scenarios:
     supported: bool
     verdict: str
     predictive: tuple[float, float] | NotEstimable
+    #: the model-averaged posterior (pooler.bma.ModelAverage) behind the default rule
+    posterior: object = None
+    #: realistic and pessimistic effects under the wider priors (pooler.bma.WIDE_PRIORS)
+    sensitivity: object = None
+    #: (nodes, probabilities) of the model-averaged predictive distribution of a new
+    #: study's true effect, on the literature's metric
+    predictive_table: object = None
 
     def realistic_interval(self, level: float | None = None):
-        """Interval around the realistic effect (default: the safeguard level, whose lower
-        limit is the pessimistic scenario before any SESOI floor), or NotEstimable."""
+        """Interval around the realistic effect, or NotEstimable. Under the model-average
+        rule: the credible interval of the mean effect given a positive effect (default
+        level 0.95); otherwise the safeguard interval (default: the safeguard level)."""
         from scipy.special import ndtri
         from ._results import Interval
+        if self.posterior is not None:
+            level = 0.95 if level is None else level
+            if self.posterior.p_positive <= 0:
+                return NotEstimable("the posterior puts no mass on a positive effect")
+            return Interval(self.posterior.mu_quantile((1 - level) / 2, positive=True),
+                            self.posterior.mu_quantile((1 + level) / 2, positive=True), level)
         se = self.realistic.se
         if se is None or not math.isfinite(se) or se <= 0:
             return NotEstimable("the realistic effect has no standard error")
         level = self.safeguard_level if level is None else level
         z = float(ndtri(0.5 + level / 2))
         return Interval(self.realistic.effect - z * se, self.realistic.effect + z * se, level)
+
+    def assurance_density(self):
+        """The predictive distribution of a new study's true effect for assurance: under the
+        model-average rule the model-averaged posterior predictive, tabulated
+        (:func:`predictive_effect_density`); otherwise Normal(mean, sd²); None when there is
+        none."""
+        from .power import EffectDensity
+        if self.posterior is not None:
+            return predictive_effect_density(self.posterior)
+        if isinstance(self.predictive, tuple):
+            return EffectDensity.normal(*self.predictive, metric=self.metric)
+        return None
 
     @property
     def planning_metric(self) -> str:
@@ -110,7 +143,11 @@ class Scenarios:
                 for s in (self.optimistic, self.realistic, self.pessimistic)]
 
     def to_dict(self) -> dict:
-        return to_jsonable({"optimistic": self.optimistic, "realistic": self.realistic,
+        extra = {}
+        if self.posterior is not None:
+            extra["model_average"] = model_average_summary(self)
+        return to_jsonable({**extra,
+                            "optimistic": self.optimistic, "realistic": self.realistic,
                             "pessimistic": self.pessimistic, "rule": self.rule,
                             "safeguard_level": self.safeguard_level, "sesoi": self.sesoi,
                             "supported": self.supported, "verdict": self.verdict,
@@ -146,7 +183,8 @@ def selection_identified(sm, k) -> tuple[bool, str]:
 
 
 def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
-                   sesoi=None) -> Scenarios:
+                   sesoi=None, pessimistic_quantile=0.25, priors=None,
+                   sensitivity=True) -> Scenarios:
     """Derive the optimistic / realistic / pessimistic planning effects.
 
     Parameters
@@ -154,14 +192,23 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
     pooled : PooledResult
         With its studies (for the literature audit at the realistic effect).
     bias : BiasResult
-    adjuster : {"default", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls"}
-        ``default`` is the rule above; ``median`` always uses the safeguard limit of the
-        median of all the adjusted estimates; a method's ``adjuster`` name (see
+    adjuster : {"default", "safeguard", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls"}
+        ``default`` plans on the Bayesian model average (:func:`posterior_rule`);
+        ``safeguard`` is the earlier rule above; ``median`` always uses the safeguard limit
+        of the median of all the adjusted estimates; a method's ``adjuster`` name (see
         :func:`pooler.bias.adjuster_choices`) plans on that adjuster alone.
     safeguard_level : float
         Two-sided level of the safeguard interval (Perugini et al. 2014 use 0.60).
     sesoi : float or None
         Smallest effect size of interest on the planning metric (d, or r).
+    pessimistic_quantile : float
+        Model-average rule: the quantile of the mean effect given a positive effect that is
+        the pessimistic scenario.
+    priors : pooler.bma.Priors or None
+        Model-average rule: the priors (default: the published defaults).
+    sensitivity : bool
+        Model-average rule: also report the realistic and pessimistic effects under
+        :data:`pooler.bma.WIDE_PRIORS`.
 
     Examples
     --------
@@ -194,6 +241,11 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
     optimistic = Scenario("optimistic", opt_est, opt_se,
                           f"random-effects estimate of {k} stud{'y' if k == 1 else 'ies'}, "
                           "as published")
+    if adjuster == "default":
+        return posterior_rule(pooled, optimistic, sesoi_m=sesoi_m, sesoi=sesoi,
+                              safeguard_level=safeguard_level,
+                              pessimistic_quantile=pessimistic_quantile, priors=priors,
+                              sensitivity=sensitivity)
 
     adjusted = bias.adjusted()
     sm = bias.selection_3psm
@@ -210,7 +262,7 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
         used = (chosen.key,)
         if chosen.own_tau2:
             tau2 = bias[chosen.key].tau2
-    elif adjuster == "default" and ok:
+    elif adjuster == "safeguard" and ok:
         est, se = sm.estimate, sm.se
         tau2 = sm.tau2
         basis = (f"selection model, {k} studies, {sm.k_nonsignificant} non-significant "
@@ -232,7 +284,7 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
             est_med = statistics.median(e for e, _ in pool_of.values())
             se = statistics.median(s for _, s in pool_of.values())
             est = est_med - z * se
-            lead = (f"{why_not}: " if adjuster == "default" and why_not else "")
+            lead = (f"{why_not}: " if adjuster == "safeguard" and why_not else "")
             what = (f"{len(pool_of)} adjusted estimates" if len(pool_of) > 1
                     else "the adjusted estimate")
             basis = (f"{lead}safeguard limit ({100 * safeguard_level:g}%) of the median of "
@@ -281,3 +333,157 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
 def _reason(bias, key) -> str:
     res = bias[key]
     return res.reason if isinstance(res, NotEstimable) else "no standard error"
+
+
+# ------------------------------------------------------------------ the model-average rule
+
+def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
+                   pessimistic_quantile=0.25, priors=None, sensitivity=True) -> Scenarios:
+    """The default rule: realistic and pessimistic effects from the Bayesian model average
+    over publication-bias models (:mod:`pooler.bma`; Bartoš et al. 2023).
+
+    realistic = the posterior median of the mean effect given a positive effect; its interval
+    the credible interval; pessimistic = the ``pessimistic_quantile`` of the same posterior,
+    never below the SESOI, never above the realistic effect. When the inclusion Bayes factor
+    for an effect is below 1/10, or P(effect < 0) > ½, the posterior favours no positive
+    effect: the verdict says so and, with a SESOI, both scenarios plan on it.
+    """
+    from .bma import DEFAULT_PRIORS, WIDE_PRIORS, model_average, posterior_scenarios
+    metric = pooled.metric
+    sym = "g" if metric == "g" else "z"
+    k = pooled.k
+    y = np.array([u.effect for u in pooled.studies], float)
+    v = np.array([u.variance for u in pooled.studies], float)
+    pr = DEFAULT_PRIORS if priors is None else priors
+    avg = model_average(y, v, metric, pr)
+    if avg.p_positive <= 0:
+        raise OptionError("the model-averaged posterior puts no mass on a positive effect")
+    ps = posterior_scenarios(avg, pessimistic_quantile=pessimistic_quantile, sesoi=sesoi_m)
+    q16, q84 = avg.mu_quantile(0.16, True), avg.mu_quantile(0.84, True)
+    se = (q84 - q16) / 2  # the spread of the posterior given μ > 0, as an SE-like number
+    realistic = Scenario("realistic", ps.realistic, se, ps.basis_realistic)
+    pessimistic = Scenario("pessimistic", ps.pessimistic, se, ps.basis_pessimistic)
+    bf = ps.bf_effect
+    bf_txt = f"{bf:.2f}" if isinstance(bf, float) else "beyond range"
+    few = (f" With {k} stud{'y' if k == 1 else 'ies'} the bias models cannot be told apart: "
+           "the priors carry much of this." if k <= 2 else "")
+    if ps.favours_null:
+        supported = False
+        why = (f"the posterior favours no positive effect (inclusion Bayes factor for an "
+               f"effect {bf_txt}; P(effect > 0) = {avg.p_positive:.2f})")
+        if sesoi_m is None:
+            verdict = (f"The literature does not support a positive planning effect: {why}. "
+                       "Plan on the smallest effect size of interest instead: give it with "
+                       "--sesoi.")
+            # nothing positive to plan on: the scenarios show the unconditional posterior
+            realistic = Scenario("realistic", avg.mu.median, se,
+                                 "posterior median of the mean effect (no positive effect "
+                                 "favoured)")
+            pessimistic = Scenario("pessimistic",
+                                   min(avg.mu.median, avg.mu_quantile(pessimistic_quantile)), se,
+                                   f"{100 * pessimistic_quantile:g}th percentile of the "
+                                   "posterior of the mean effect")
+        else:
+            verdict = (f"The literature does not support a positive planning effect: {why}; "
+                       "the realistic and pessimistic scenarios plan on the smallest effect "
+                       "size of interest.")
+            realistic = Scenario("realistic", float(sesoi_m), se,
+                                 "smallest effect size of interest (the posterior favours no "
+                                 "effect)")
+            pessimistic = Scenario("pessimistic", float(sesoi_m), se,
+                                   "smallest effect size of interest")
+    elif sesoi_m is not None and ps.realistic < sesoi_m:
+        supported = False
+        verdict = (f"The posterior puts the effect below the smallest effect size of interest "
+                   f"(realistic {sym} = {ps.realistic:.3f} < {sesoi_m:.3f}; P(effect > 0) = "
+                   f"{avg.p_positive:.2f}); both scenarios plan on the smallest effect size "
+                   "of interest.")
+        realistic = Scenario("realistic", float(sesoi_m), se,
+                             "smallest effect size of interest (the posterior supports less)")
+        pessimistic = Scenario("pessimistic", float(sesoi_m), se,
+                               "smallest effect size of interest")
+    else:
+        supported = True
+        iv = ps.interval
+        verdict = (f"Model-averaged planning effect: realistic {sym} = {ps.realistic:.3f} "
+                   f"(95% credible interval {iv.low:.3f} to {iv.high:.3f}, given a positive "
+                   f"effect), P(effect > 0) = {avg.p_positive:.2f}, against {optimistic.effect:.3f} "
+                   f"as published.{few}")
+    sens = None
+    if sensitivity:
+        wide = model_average(y, v, metric, WIDE_PRIORS)
+        if wide.p_positive > 0:
+            wps = posterior_scenarios(wide, pessimistic_quantile=pessimistic_quantile,
+                                      sesoi=sesoi_m)
+            sens = {"priors": "wider (every prior scale doubled)",
+                    "realistic": wps.realistic, "pessimistic": wps.pessimistic,
+                    "p_positive": wide.p_positive, "bf_effect": wps.bf_effect}
+        else:
+            sens = NotEstimable("under the wider priors no posterior mass is above 0")
+    nodes, probs = avg.predictive_points()
+    mean = float(np.dot(nodes, probs))
+    sd = float(math.sqrt(max(np.dot(probs, (nodes - mean) ** 2), 0.0)))
+    predictive = ((mean, sd) if sd > 0 else NotEstimable("the predictive distribution has no spread"))
+    return Scenarios(metric, optimistic, realistic, pessimistic, "default", safeguard_level, sesoi,
+                     supported, verdict, predictive, posterior=avg,
+                     sensitivity=sens, predictive_table=(nodes, probs))
+
+
+def model_average_summary(sc: Scenarios) -> dict:
+    """The posterior summary for the JSON and the report: model probabilities by component,
+    inclusion Bayes factors, μ and τ, P(μ > 0), the scenarios' quantiles, the sensitivity
+    line and the predictive distribution (tabulated)."""
+    avg = sc.posterior
+    d = avg.to_dict()
+    d["sensitivity"] = sc.sensitivity
+    return to_jsonable(d)
+
+
+def assurance_over_table(nodes, probs, n, design="two-group", alpha=0.05,
+                         alternative="two-sided", metric="d"):
+    """Expected power over a tabulated predictive distribution (O'Hagan, Stevens & Campbell
+    2005): Σ p_j power(θ_j, n), counting only significant results in the hypothesised
+    direction; θ on the literature's metric (g, or Fisher z converted to r)."""
+    from .power import _design, power_at, to_design_effect
+    des = _design(design)
+    nodes = np.asarray(nodes, float)
+    probs = np.asarray(probs, float)
+    n = np.asarray(n, float)
+    if metric in ("r", "z"):
+        nodes = np.clip(np.tanh(nodes), -1 + 1e-12, 1 - 1e-12)
+        metric = "r"
+    eff = to_design_effect(nodes, metric, des)
+    p = power_at(eff[:, None], n.reshape(1, -1), des, alpha, alternative, upper_only=True)
+    return (probs[:, None] * p).sum(axis=0).reshape(n.shape)
+
+
+def predictive_effect_density(avg):
+    """The model-averaged posterior predictive of a new study's true effect as a
+    :class:`pooler.power.EffectDensity` (piecewise linear through the cell densities).
+
+    The posterior mass at exactly 0 (the models with neither an effect nor heterogeneity)
+    cannot be a density; it is spread as a thin triangle just below 0 (between the last two
+    nodes below 0), so P(effect > 0) - the assurance ceiling - stays exact and the power it
+    adds is that of an effect within two grid cells below 0 (about alpha/2 at most).
+    """
+    from .power import EffectDensity
+    x, f = avg.predictive_density()
+    x, f = np.asarray(x, float), np.asarray(f, float)
+    atom = float(avg.predictive_atom)
+    if atom > 0:
+        h = float(x[1] - x[0])
+        f0 = float(np.interp(0.0, x, f, left=0.0, right=0.0))
+        keep = np.abs(x) > 1e-9 * h
+        x, f = x[keep], f[keep]
+        neg, pos = x < 0, x > 0
+        xn, fn = x[neg], f[neg]
+        if xn.size < 2:  # make room below 0 for the triangle
+            xn = np.concatenate([[-2 * h, -h][:2 - xn.size], xn])
+            fn = np.concatenate([np.zeros(2 - fn.size), fn])
+        # raising the last node below 0 by b adds b (0 - x_{j-1}) / 2 of mass, all below 0
+        fn = fn.copy()
+        fn[-1] += 2 * atom / (0.0 - xn[-2])
+        x = np.concatenate([xn, [0.0], x[pos]])
+        f = np.concatenate([fn, [f0], f[pos]])
+    metric = "z" if avg.metric == "z" else "d"
+    return EffectDensity.from_grid(x, f, metric=metric)

@@ -20,18 +20,21 @@ from typing import Any, Mapping
 from .errors import InputError, InputErrors
 
 #: Reported statistics the converters understand.
-STATS = ("t", "F", "r", "d", "g", "means", "chi2", "counts", "odds_ratio", "p")
+STATS = ("t", "F", "r", "d", "g", "means", "chi2", "counts", "odds_ratio", "p",
+         "coef_t", "partial_r", "std_coef")
 _STAT_ALIASES = {s.lower(): s for s in STATS} | {
     "chi": "chi2", "chisq": "chi2", "chi-square": "chi2", "x2": "chi2",
     "or": "odds_ratio", "odds ratio": "odds_ratio", "mean": "means", "count": "counts",
+    "coefficient t": "coef_t", "t of coefficient": "coef_t", "partial r": "partial_r",
+    "standardized coefficient": "std_coef", "standardised coefficient": "std_coef",
 }
 
 #: Columns read as numbers.
 NUMERIC = ("value", "n1", "n2", "n", "df", "df1", "mean1", "sd1", "mean2", "sd2",
-           "events1", "events2", "ci_low", "ci_high", "within_r", "tails", "year")
+           "events1", "events2", "ci_low", "ci_high", "within_r", "tails", "year", "predictors")
 #: Columns read as text.
 TEXT = ("study", "sample", "stat", "reported", "trust", "direction", "design", "published",
-        "subgroup", "note", "exclude")
+        "subgroup", "note", "exclude", "path")
 KNOWN = TEXT + NUMERIC
 REQUIRED = ("study", "stat")
 
@@ -66,6 +69,11 @@ COLUMN_GUIDE: dict[str, str] = {
     "subgroup": "label for a subgroup analysis",
     "note": "free text",
     "exclude": "free text; the row is listed with this reason but not pooled",
+    "path": "for `pooler paths SHEET`: the pair of variables the row's result links, e.g. X-M1, "
+            "M1-Y, X-Y, M1-M2 (X the predictor, M1.. the mediators, Y the outcome; simple "
+            "mediation: X-M, M-Y, X-Y)",
+    "predictors": "coef_t, partial_r, std_coef: number of predictors in the regression model the "
+                  "coefficient comes from (1 = the pair alone)",
 }
 
 
@@ -382,7 +390,7 @@ def _did_you_mean(key: str) -> str | None:
 
 
 #: Columns that hold whole numbers (people, events, degrees of freedom of F's numerator).
-WHOLE = ("n1", "n2", "n", "events1", "events2", "df1")
+WHOLE = ("n1", "n2", "n", "events1", "events2", "df1", "predictors")
 #: Most problems a message lists (all are kept in ``InputErrors.errors``).
 MAX_PROBLEMS = InputErrors.MAX_SHOWN
 
@@ -545,15 +553,17 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma, notes) -> Re
                                "(the default) or 'p'")
         values["trust"] = t
     for key in ("value", "n1", "n2", "n", "df", "df1", "sd1", "sd2", "tails", "within_r",
-                "events1", "events2", "ci_low", "ci_high", "mean1", "mean2", "year"):
+                "events1", "events2", "ci_low", "ci_high", "mean1", "mean2", "year",
+                "predictors"):
         v = values[key]
         if v is not None and not math.isfinite(v):
             raise err(key, f"'{v}' is not a finite number")
-    for key in ("n1", "n2", "n", "df", "df1", "sd1", "sd2", "events1", "events2"):
+    pos = ("n1", "n2", "n", "df", "df1", "predictors")
+    for key in ("n1", "n2", "n", "df", "df1", "sd1", "sd2", "events1", "events2", "predictors"):
         v = values[key]
-        if v is not None and (v < 0 or (v == 0 and key in ("n1", "n2", "n", "df", "df1"))):
+        if v is not None and (v < 0 or (v == 0 and key in pos)):
             raise err(key, f"{key} = {v:g} is impossible; it must be "
-                           f"{'positive' if key in ('n1', 'n2', 'n', 'df', 'df1') else 'zero or more'}")
+                           f"{'positive' if key in pos else 'zero or more'}")
     for ev, nk in (("events1", "n1"), ("events2", "n2")):
         e, n = values[ev], values[nk]
         if e is not None and 0 < e < 1 and (n is None or n > 1):
@@ -568,8 +578,8 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma, notes) -> Re
             if key in ("n1", "n2") and abs(v * 2 - round(v * 2)) < 1e-9:
                 hint = ("; if only the total N was reported, put it in 'n' and leave n1 and n2 "
                         "empty (it is split equally, halves included)")
-            raise err(key, f"{key} = {v:g} is not a whole number; it counts "
-                           f"{'degrees of freedom' if key == 'df1' else 'people'}" + hint)
+            what = {"df1": "degrees of freedom", "predictors": "predictors"}.get(key, "people")
+            raise err(key, f"{key} = {v:g} is not a whole number; it counts {what}" + hint)
     return Record(row=rownum, values=values, extra=extra, parsed=parsed,
                   from_reported=filled)
 

@@ -149,7 +149,7 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
     from .scenarios import make_scenarios
     pooled = pool_studies(_studies_for(y, v, idx, shapes), "g", influence=False, file="simulated")
     bias = bias_suite(pooled)
-    sc = make_scenarios(pooled, bias)
+    sc = make_scenarios(pooled, bias, sensitivity=False)
     adj = bias.adjusted()
     est = {"random effects": pooled.mu}
     for m in planning_methods():
@@ -218,6 +218,16 @@ class StressResult:
     shapes: str
     design: str
     power: float
+
+    @property
+    def rules(self) -> tuple[str, ...]:
+        """The planning rules evaluated, in order."""
+        return tuple(self.cells[0].true_power) if self.cells else RULES
+
+    @property
+    def estimators(self) -> tuple[str, ...]:
+        """The estimators whose bias and RMSE were measured, in order."""
+        return tuple(self.cells[0].estimates) if self.cells else ()
 
     def to_dict(self) -> dict:
         return to_jsonable({"schema": "pooler.stress/1", "reps": self.reps, "seed": self.seed,

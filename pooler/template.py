@@ -11,7 +11,7 @@ from .sheet import COLUMN_GUIDE
 TEMPLATE_COLUMNS = ("study", "sample", "stat", "reported", "trust", "value", "n1", "n2", "n", "df", "df1",
                     "mean1", "sd1", "mean2", "sd2", "events1", "events2", "ci_low", "ci_high",
                     "direction", "design", "within_r", "tails", "year", "published",
-                    "subgroup", "exclude", "note")
+                    "subgroup", "exclude", "note", "path", "predictors")
 
 #: One invented example row per statistic (numbers made up for illustration).
 EXAMPLE_ROWS = (
@@ -45,6 +45,12 @@ EXAMPLE_ROWS = (
     {"study": "Example N", "reported": "t(46) = 2.38, p = .022", "n1": "24", "n2": "24",
      "year": "2022", "note": "invented: result pasted as printed; stat, value and df are read "
      "from it and its p is checked against t"},
+    {"study": "Example O", "stat": "coef_t", "value": "2.60", "df": "117", "predictors": "2",
+     "path": "M1-Y", "year": "2022", "note": "invented: t of a regression coefficient with its "
+     "df; for `pooler paths SHEET`, the row estimates the path M1-Y"},
+    {"study": "Example P", "stat": "std_coef", "value": "0.27", "n": "85", "predictors": "1",
+     "path": "X-M1", "year": "2023", "note": "invented: standardized coefficient of the only "
+     "predictor (beta = r)"},
     {"study": "Example M", "stat": "t", "value": "3.9", "n1": "12", "n2": "12", "year": "2014",
      "exclude": "retracted", "note": "invented: excluded rows stay listed with their reason"},
 )

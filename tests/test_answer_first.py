@@ -31,6 +31,13 @@ LITERATURES = {
     # the same, with a smallest effect of interest given by the user
     "user_smallest": (_between([-0.20, 0.05, -0.12, 0.10, -0.05, 0.02, -0.08, 0.04, -0.25,
                                 0.01], SIZES), ("--design", "two-group", "--sesoi", "0.3")),
+    # the same supported literature under the earlier frequentist safeguard rule
+    "supported_safeguard": (_between([0.35, 0.42, 0.38, 0.30, 0.45, 0.40, 0.41, 0.36, 0.33,
+                                      0.44], SIZES),
+                            ("--design", "two-group", "--adjuster", "safeguard")),
+    "refusal_safeguard": (_between([-0.20, 0.05, -0.12, 0.10, -0.05, 0.02, -0.08, 0.04, -0.25,
+                                    0.01], SIZES),
+                          ("--design", "two-group", "--adjuster", "safeguard")),
     "k2": (_between([0.40, 0.30], [40, 60]), ("--design", "two-group")),
     "correlational": ([{"study": f"Invented {i + 1}", "stat": "r", "value": v, "n": n,
                         "year": 2000 + i}
@@ -95,26 +102,53 @@ def test_every_path_opens_with_the_decision(rendered, name):
         assert f"{real['n_total_recruit']:,}" in stdout.split("How it was reached")[0]
 
 
-def test_supported_plan_methods_paragraph(rendered):
+def test_realistic_from_the_posterior(rendered):
+    # the default rule: the methods paragraph names the model average and its posterior
+    # summary, and keeps the frequentist table as sensitivity analyses
     _, md, doc = rendered["supported"]
     m = _methods(md)
     real = next(r for r in doc["plan"]["rows"] if r["scenario"] == "realistic")
+    assert "Bayesian model average over" in m and "Bartoš et al., 2023" in m
+    assert f"posterior median of the mean effect given a positive effect, g = {real['effect']:.2f}" in m
+    assert "95% credible interval" in m and "P(effect > 0) = " in m
+    assert "sensitivity analyses" in m and "Perugini" not in m and "safeguard" not in m
+    assert f"{real['n_per_group']:,} per group ({real['n_total']:,} in total)" in m
+    scen = md.split("## Planning scenarios", 1)[1].split("\n## ", 1)[0]
+    assert "Posterior of the model average" in scen and "Inclusion Bayes factors" in scen
+    assert "safeguard interval" not in scen
+    decision = md.split("## The decision", 1)[1].split("\n## ", 1)[0]
+    assert decision.lstrip().startswith(f"**Recruit {real['n_total_recruit']:,} participants")
+    assert "model-averaged estimate" in decision and "P(effect &gt; 0)" in decision
+
+
+def test_supported_plan_methods_paragraph_safeguard_rule(rendered):
+    _, md, doc = rendered["supported_safeguard"]
+    m = _methods(md)
+    real = next(r for r in doc["plan"]["rows"] if r["scenario"] == "realistic")
     assert "We planned on a realistic effect" in m and "(Perugini et al., 2014)" in m
+    assert "model average" not in m
     assert f"{real['n_per_group']:,} per group ({real['n_total']:,} in total)" in m
     assert f"we will recruit {real['n_total_recruit']:,}" in m
     decision = md.split("## The decision", 1)[1].split("\n## ", 1)[0]
     assert decision.lstrip().startswith(f"**Recruit {real['n_total_recruit']:,} participants")
 
 
-def test_refusal_says_why_and_computes_nothing_on_a_non_positive_effect(rendered):
-    stdout, md, doc = rendered["refusal"]
-    assert doc["pool"]["scenarios"]["realistic"]["effect"] <= 0
+@pytest.mark.parametrize("name", ["refusal", "refusal_safeguard"])
+def test_refusal_plans_nothing(rendered, name):
+    stdout, md, doc = rendered[name]
     decision = md.split("## The decision", 1)[1].split("\n## ", 1)[0]
     assert "does not support a positive effect" in decision and "--sesoi" in decision
+    assert "Recruit" not in decision.split("\n\n")[0]
     m = _methods(md)
-    assert "cannot justify a sample size" in m
-    assert "We planned on a realistic effect" not in m and "Perugini" not in m
-    assert "assurance" not in m
+    assert "cannot justify a sample size" in m and "Lakens, Scheel & Isager, 2018" in m
+    assert "We planned on" not in m and "Perugini" not in m
+    assert "assurance" not in m and "Under the pessimistic effect" not in m
+    assert ("posterior favoured no positive effect" in m) == (name == "refusal")
+
+
+def test_refusal_says_why_and_computes_nothing_on_a_non_positive_effect(rendered):
+    stdout, md, doc = rendered["refusal_safeguard"]
+    assert doc["pool"]["scenarios"]["realistic"]["effect"] <= 0
     # the literature audit and the excess-significance test are not computed, and say why
     assert "Literature audit: not computed: the realistic effect" in md
     assert "Excess significance (Ioannidis & Trikalinos 2007): not computed" in md
@@ -124,7 +158,7 @@ def test_refusal_says_why_and_computes_nothing_on_a_non_positive_effect(rendered
 def test_user_given_smallest_effect_is_not_dressed_up(rendered):
     _, md, doc = rendered["user_smallest"]
     m = _methods(md)
-    assert "smallest effect size of interest, g = 0.30" in m
+    assert "smallest effect, g = 0.30" in m and "Lakens, Scheel & Isager, 2018" in m
     assert "Perugini" not in m           # the safeguard interval was not used
     assert "assurance" not in m          # no distribution around a number the user typed
     decision = md.split("## The decision", 1)[1].split("\n## ", 1)[0]

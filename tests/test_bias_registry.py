@@ -148,3 +148,12 @@ def test_registry_is_back_to_the_built_ins_after_the_toy():
     assert "toy_half" not in [m.key for m in methods()]
     assert "toy-half" not in bias_mod.adjuster_choices()
 
+
+
+def test_a_registered_method_is_a_stress_test_column(toy):
+    from pooler.report import stress_text
+    from pooler.simulate import RULES, Cell, Shapes, stress_test
+    res = stress_test([Cell(8, 0.3, 0.0, 1.0)], Shapes.generic(), reps=2, seed=3, workers=1)
+    assert res.rules == RULES and "toy half" in res.estimators
+    assert "toy half" in res.to_dict()["cells"][0]["estimators"]
+    assert "toy half" in stress_text(res)

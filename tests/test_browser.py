@@ -172,7 +172,10 @@ def test_report_in_a_real_browser(browser, demo_report):
     assert d is not None, "no element with id 'decision' in the page"
     # the whole decision block is on the first screen, without scrolling
     assert page["scrolled"] == 0 and d["top"] >= 0 and d["bottom"] <= min(HEIGHT, height), d
-    assert "Recruit 1,024 participants (512 per group" in d["text"]
+    doc = json.loads((demo_report.parent / "results.json").read_text(encoding="utf-8"))
+    real = next(r for r in doc["plan"]["rows"] if r["scenario"] == "realistic")
+    recruit = real["n_total_recruit"]
+    assert f"Recruit {recruit:,} participants ({recruit // 2:,} per group" in d["text"]
     assert "realistic" in d["text"] and "If that is not feasible" in d["text"]
     # every figure loads: four figures, each decoded to a real width
     assert len(page["images"]) == 4

@@ -52,7 +52,14 @@ def test_k1_says_no_pooling(write_sheet):
               plan_options={})
     p = res.analysis.pooled
     assert not p.pooled and "one study" in str(p.pooled)
-    assert "no bias adjustment could be computed" in res.analysis.scenarios.realistic.basis
+    sc = res.analysis.scenarios
+    # one study: the model average plans below the face value and warns (issue 13)
+    assert "averaged over 20 publication-bias models" in sc.realistic.basis
+    assert sc.realistic.effect < p.mu
+    assert "cannot be told apart" in sc.verdict
+    old = run(write_sheet(CASES["k = 1"]), design=Design("two-group"),
+              analysis_options={"adjuster": "safeguard"}, plan_options={})
+    assert "no bias adjustment could be computed" in old.analysis.scenarios.realistic.basis
 
 
 def test_opposite_signs_verdict(write_sheet):

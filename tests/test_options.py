@@ -109,3 +109,4 @@ def test_run_serialises_the_options_it_was_given(write_sheet):
     got = res.to_dict()["options"]
     assert {k: got[k] for k in opts.to_dict()} == opts.to_dict()
     assert res.analysis.scenarios.rule == "median" and res.analysis.scenarios.sesoi == 0.1
+
