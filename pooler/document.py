@@ -144,6 +144,10 @@ def decision_blocks(run) -> list[Block]:
     out.append(Block("p", f"Numbers for {pw} power, {'two' if plan.tails == 2 else 'one'}-"
                           f"tailed alpha = {plan.alpha:g}; {md_escape(des.describe())}:"))
     out.append(Block("table", headers=tuple(heads), rows=tuple(rows)))
+    if post is not None and a.pooled.k <= 2:
+        out.append(Block("p", f"With only {plural(a.pooled.k, 'study', 'studies')} the "
+                              "publication-bias models cannot be told apart: the priors carry "
+                              "much of these numbers."))
 
     fx = plan.fixed_n
     if fx is not None:
@@ -512,6 +516,10 @@ def _posterior_methods(sc, post, lab, eff_r, eff_p, eff_o) -> str:
     odds = f"P(effect > 0) = {post.p_positive:.2f}; inclusion Bayes factor for an effect {bf_txt}"
     frequentist = ("The frequentist adjustments above are reported beside it as sensitivity "
                    "analyses.")
+    k = post.k
+    if k <= 2:
+        frequentist += (f" With only {plural(k, 'study', 'studies')} the bias models cannot be "
+                        "told apart, so the priors carry much of the planning effect.")
     if sc.supported:
         iv = sc.realistic_interval(0.95)
         ci = f", 95% credible interval {_ci(iv, 2)}" if estimable(iv) else ""

@@ -170,6 +170,11 @@ def test_k2_plural_and_decision(rendered):
     stdout, md, _ = rendered["k2"]
     assert "k = 2 independent samples (2 rows used" in stdout
     assert "meta-analysed 2 independent samples (2 reported results" in _methods(md)
+    # with two studies the model average rests on its priors, and both texts say so
+    decision = md.split("## The decision", 1)[1].split("\n## ", 1)[0]
+    assert "With only 2 studies the publication-bias models cannot be told apart" in decision
+    assert "With only 2 studies the bias models cannot be told apart" in _methods(md)
+    assert "With only 2 studies" in stdout.split("How it was reached")[0]
 
 
 def test_correlational_decision_counts_people_in_total(rendered):
