@@ -157,7 +157,7 @@ def plan_text(plan) -> str:
     if f is not None:
         groups, used = sizes_and_total(f.n_per_group, des)
         out += ["", f"With a fixed total N = {f.n_total:,}"
-                    + (f" ({groups})" if groups else "")
+                    + (f" ({groups})" if groups else f" ({used:,} in all)")
                     + (f", of which {used:,} are used (whole groups)" if used != f.n_total else "")
                     + ":"]
         out.append(text_table(["scenario", f"planning {plan.effect_label}", "power"],
