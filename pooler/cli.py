@@ -103,6 +103,25 @@ def _finite_values(ctx, param, value):
 _correlation = _fraction(-1, 1, hint="a correlation lies strictly between -1 and 1")
 
 
+def _allocation(ctx, param, value):
+    """--allocation as n1:n2 (e.g. 1:2) or one number n2/n1 -> the ratio n2/n1 (> 0)."""
+    import math
+    if isinstance(value, (int, float)):
+        text = str(value)
+    else:
+        text = str(value).strip()
+    parts = [p.strip() for p in text.split(":")]
+    try:
+        nums = [float(p.replace(",", ".")) for p in parts]
+    except ValueError:
+        nums = []
+    if len(nums) not in (1, 2) or not all(math.isfinite(x) and x > 0 for x in nums):
+        raise click.BadParameter(f"{text!r} is not an allocation; give n1:n2 with two "
+                                 "positive numbers, e.g. 1:1 or 1:2 (or one number n2/n1)",
+                                 param=param)
+    return nums[0] if len(nums) == 1 else nums[1] / nums[0]
+
+
 def _metric_option(f):
     return click.option("--metric", type=click.Choice(list(METRICS)), default=None,
                         help="Common metric: d = Hedges' g, r = Fisher's z of the correlation. "
@@ -177,6 +196,15 @@ def main():
     """
 
 
+def _cpus() -> int:
+    """The CPUs this process may use (the default number of worker processes)."""
+    import os
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on every platform
+        return os.cpu_count() or 1
+
+
 @main.command()
 @_sheet_argument
 @_conversion_options
@@ -214,7 +242,8 @@ def _pooling_options(f):
 
 
 def _scenario_options(f):
-    f = click.option("--sesoi", type=float, default=None, callback=_positive,
+    f = click.option("--smallest-effect", "sesoi", type=float, default=None,
+                     callback=_positive,
                      help="Smallest effect size of interest (d, or r): the pessimistic scenario "
                           "never goes below it, and it is the plan when the literature's "
                           "posterior favours no positive effect. Choose it before looking at "
@@ -244,8 +273,8 @@ def _analysis_options(f):
 def _check_sesoi(sesoi, metric):
     if sesoi is not None and metric == "r" and not sesoi < 1:
         from .errors import OptionError
-        raise OptionError(f"--sesoi {sesoi:g} is not a correlation; with the r metric the "
-                          "smallest effect of interest must lie below 1")
+        raise OptionError(f"--smallest-effect {sesoi:g} is not a correlation; with the r metric "
+                          "the smallest effect of interest must lie below 1")
 
 
 def _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster, safeguard_level,
@@ -279,7 +308,7 @@ def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
     Example:
       pooler pool demo_literature/break_and_proofreading.csv
       pooler pool my_literature.csv --estimator pm --interval wald --json
-      pooler pool my_literature.csv --sesoi 0.2 --adjuster median
+      pooler pool my_literature.csv --smallest-effect 0.2 --adjuster median
     """
     from .report import bias_text, pooled_text, scenarios_text
     a = _analyse(sheet, metric or ANALYSIS_DEFAULTS["metric"], within_r, sample_r, estimator,
@@ -302,8 +331,9 @@ def _planning_options(f):
                      callback=_fraction(0, 0.5, percent=True,
                                         hint="the significance level, e.g. 0.05"),
                      help="Significance level."),
-        click.option("--tails", type=click.IntRange(1, 2), default=2, show_default=True,
-                     help="2 = two-tailed; 1 = one-tailed in the hypothesised direction."),
+        click.option("--one-sided", "tails", flag_value=1, default=2, type=int,
+                     help="Test in the hypothesised direction only (one-tailed). Without it "
+                          "the test is two-tailed."),
         click.option("--power", "powers", type=float, multiple=True,
                      callback=_fraction(0, 1, percent=True,
                                         hint="a target power such as 0.8; 1 would need an "
@@ -317,9 +347,12 @@ def _planning_options(f):
         click.option("--n", "n_total", type=click.IntRange(min=1), default=None,
                      help="A fixed feasible total N: adds power under each scenario and the "
                           "smallest detectable effect."),
-        click.option("--ratio", type=float, default=1.0, show_default=True,
-                     callback=_positive,
-                     help=f"{used_by('ratio')}: allocation n2/n1."),
+        click.option("--allocation", "ratio", type=str, metavar="N1:N2", default="1:1",
+                     show_default=True,
+                     callback=_allocation,
+                     help=f"{used_by('ratio')}: how participants are split between the two "
+                          "groups, as n1:n2 (1:2 puts twice as many in the second group) or "
+                          "one number n2/n1; the second group is rounded up to whole people."),
         click.option("--planned-r", type=float, default=0.5, show_default=True,
                      callback=_correlation,
                      help=f"{used_by('planned_r')}: planned correlation between the repeated "
@@ -500,7 +533,10 @@ def _command_line(ctx, sheet_label) -> str:
         if param.name in ("sheet", "out_dir", "force", "as_json") or not param.opts:
             continue
         value = ctx.params.get(param.name)
-        if value == param.default or value in (None, (), False):
+        default = param.get_default(ctx)
+        if param.callback is not None and isinstance(default, str):
+            default = param.callback(ctx, param, default)  # e.g. --allocation "1:1" -> 1.0
+        if value == default or value in (None, (), False):
             continue
         flag = param.opts[0]
         if getattr(param, "is_flag", False):
@@ -587,13 +623,14 @@ def demo_cmd(ctx, **params):
 @main.command()
 @click.argument("sheet", type=click.Path(dir_okay=False), required=False)
 @click.option("--calibration", is_flag=True,
-              help="Run the general calibration grid (k 10/20/40, delta 0.1/0.2/0.4, tau "
-                   "0/0.1/0.2, pi 1/0.2/0.05; two-group studies, 20-100 per group) instead of "
-                   "a grid around SHEET.")
+              help="Run the general calibration grid (k 5/10/20/40, delta 0.1/0.2/0.4, tau "
+                   "0/0.1/0.2, pi 1/0.2/0.05; two-group studies of 10-60 per group and a "
+                   "quarter paired studies of 10-60) instead of a grid around SHEET.")
 @click.option("--reps", type=click.IntRange(min=1), default=60, show_default=True,
               help="Simulated literatures per grid cell.")
 @click.option("--seed", type=int, default=2026, show_default=True, help="Random seed.")
-@click.option("--workers", type=click.IntRange(min=1), default=2, show_default=True,
+@click.option("--workers", type=click.IntRange(min=1), default=_cpus,
+              show_default="the CPUs this process may use",
               help="Processes to spread the work over (results do not depend on it).")
 @click.option("--power", "target", type=float, default=0.8, show_default=True,
               callback=_fraction(0, 1, percent=True, hint="a target power such as 0.8"),
@@ -632,7 +669,7 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
         from .outputs import check_out
         check_out(out_dir, force)
     if calibration:
-        cells, shapes = calibration_grid(), Shapes.generic()
+        cells, shapes = calibration_grid(), Shapes.calibration()
     else:
         d = ANALYSIS_DEFAULTS
         a = _analyse(sheet, metric or d["metric"], within_r, sample_r, d["estimator"],
@@ -756,7 +793,8 @@ def template(path, force):
 @click.option("--resamples", type=click.IntRange(min=100), default=1000, show_default=True,
               help="Bootstrap resamples per replication (bootstrap test).")
 @click.option("--seed", type=int, default=2026, show_default=True, help="Random seed.")
-@click.option("--workers", type=click.IntRange(min=1), default=2, show_default=True,
+@click.option("--workers", type=click.IntRange(min=1), default=_cpus,
+              show_default="the CPUs this process may use",
               help="Local processes (results do not depend on it).")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) "

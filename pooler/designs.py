@@ -185,6 +185,11 @@ def catalogue() -> tuple:
 
 # ------------------------------------------------------------------ shared pieces
 
+def _allocation_text(ratio: float) -> str:
+    """The allocation as the user writes it: n1:n2 with n1 = 1 (ratio 2 -> "1:2")."""
+    return f"1:{ratio:g} (n2/n1 = {ratio:g})"
+
+
 def _two_groups_total(des, n):
     return n + des.n2(n)
 
@@ -227,7 +232,7 @@ register(PlannedDesign(
                 "exact (noncentral t)",
     power=_two_group_power, normal_start=_two_group_start, total=_two_groups_total,
     per_unit=_two_groups_per_unit,
-    details=lambda des: "" if des.ratio == 1 else f"allocation n2/n1 = {des.ratio:g}"))
+    details=lambda des: "" if des.ratio == 1 else f"allocation {_allocation_text(des.ratio)}"))
 
 
 # ------------------------------------------------------------------ paired
@@ -319,7 +324,7 @@ register(PlannedDesign(
     power=_ancova_power, normal_start=_ancova_start, total=_two_groups_total,
     per_unit=_two_groups_per_unit,
     details=lambda des: (f"covariate-outcome correlation {des.covariate_r:g}, "
-                         f"allocation {des.ratio:g}, "
+                         f"allocation {_allocation_text(des.ratio)}, "
                          + _covariate_basis(des, "covariate", "a normal covariate")),
     power_basis=_fixed_basis("covariate")))
 

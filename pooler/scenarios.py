@@ -312,7 +312,7 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
     elif sesoi_m is None:
         verdict = (f"The literature does not support a positive planning effect (realistic {sym} = "
                    f"{est:.3f}). Plan on the smallest effect size of interest instead: give it "
-                   "with --sesoi.")
+                   "with --smallest-effect.")
     else:
         verdict = (f"The literature does not support a planning effect of at least the smallest "
                    f"effect size of interest (realistic {sym} = {est:.3f} < {sesoi_m:.3f}); the "
@@ -374,7 +374,7 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
         if sesoi_m is None:
             verdict = (f"The literature does not support a positive planning effect: {why}. "
                        "Plan on the smallest effect size of interest instead: give it with "
-                       "--sesoi.")
+                       "--smallest-effect.")
             # nothing positive to plan on: the scenarios show the unconditional posterior
             realistic = Scenario("realistic", avg.mu.median, se,
                                  "posterior median of the mean effect (no positive effect "

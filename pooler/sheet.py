@@ -161,13 +161,17 @@ class Sheet:
 
 # --------------------------------------------------------------------------- reading
 
-def read_sheet(path: str | Path) -> Sheet:
+def read_sheet(path, *, name: str | None = None) -> Sheet:
     """Read a CSV, TSV or XLSX sheet of reported statistics and validate it.
 
     Parameters
     ----------
-    path : str or Path
-        ``.csv`` (comma or semicolon separated, UTF-8), ``.tsv``/``.tab`` or ``.xlsx``.
+    path : str, Path or pandas.DataFrame
+        ``.csv`` (comma or semicolon separated, UTF-8), ``.tsv``/``.tab`` or ``.xlsx``; or a
+        DataFrame with the same columns (one row per reported result), read exactly as the
+        CSV it writes would be. Messages name its rows as a sheet's (header = row 1).
+    name : str, optional
+        What messages and reports call a DataFrame (default ``"DataFrame"``).
 
     Returns
     -------
@@ -184,7 +188,18 @@ def read_sheet(path: str | Path) -> Sheet:
     >>> sheet = read_sheet(demo_sheet_path())
     >>> sheet.records[0].row
     2
+    >>> import pandas as pd
+    >>> df = pd.DataFrame({"study": ["A", "B"], "stat": ["t", "r"], "value": [2.1, 0.3],
+    ...                    "n1": [20, None], "n2": [22, None], "n": [None, 80]})
+    >>> [r.row for r in read_sheet(df, name="my table").records]
+    [2, 3]
     """
+    if hasattr(path, "to_csv") and hasattr(path, "columns"):   # a pandas DataFrame
+        data = path.to_csv(index=False, lineterminator="\n").encode("utf-8")
+        label = name or "DataFrame"
+        notes_df: list[str] = []
+        header, body = _read_text(data, label, ".csv", notes_df)
+        return _validate(label, hashlib.sha256(data).hexdigest(), header, body, notes_df)
     p = Path(path)
     name = str(path)
     if not p.exists():

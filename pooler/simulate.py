@@ -69,6 +69,19 @@ class Shapes:
                    f"the {len(w)} samples of {effects.file}")
 
     @classmethod
+    def calibration(cls, low=10, high=60, paired_share=0.25, paired_r=0.5, size=500,
+                    seed=0) -> "Shapes":
+        """The calibration literatures: small studies as students find them: two-group studies
+        with n per group uniform on [low, high] and a share of paired (within-subject) studies
+        of n uniform on the same range with repeated-measures correlation ``paired_r``."""
+        rng = np.random.default_rng(seed)
+        n = rng.integers(low, high + 1, size).astype(float)
+        within = rng.random(size) < paired_share
+        return cls(within, n, n, np.where(within, paired_r, 0.0),
+                   f"two-group studies with {low}-{high} per group and "
+                   f"{100 * paired_share:g}% paired studies of {low}-{high} (r = {paired_r:g})")
+
+    @classmethod
     def generic(cls, low=20, high=100, size=500, seed=0) -> "Shapes":
         """Two-group studies with n per group uniform on [low, high] (small literatures)."""
         rng = np.random.default_rng(seed)
@@ -284,6 +297,8 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
         results[key[0]][key[1]] = value
         if progress:
             progress(done, len(tasks))
+    if progress:  # show the bar from the start, before the first chunk is done
+        progress(0, len(tasks))
     if workers == 1:
         for done, (key, args) in enumerate(tasks, start=1):
             finished(key, _run_chunk(args), done)
@@ -322,6 +337,6 @@ def grid_around(analysis, scale=(0.5, 1.0, 1.5), pis=(1.0, 0.2, 0.05)) -> list[C
 
 
 def calibration_grid() -> list[Cell]:
-    """The general calibration grid of the README (81 cells)."""
-    return [Cell(k, d, t, p) for k in (10, 20, 40) for d in (0.1, 0.2, 0.4)
+    """The general calibration grid of the README (108 cells)."""
+    return [Cell(k, d, t, p) for k in (5, 10, 20, 40) for d in (0.1, 0.2, 0.4)
             for t in (0.0, 0.1, 0.2) for p in (1.0, 0.2, 0.05)]

@@ -302,7 +302,7 @@ def test_sesoi_floor_and_unsupported_verdict():
     eff0, pooled0, bias0 = scenario_inputs(30, delta=-0.1, tau=0.0, publish_ns=0.05, seed=15)
     sc0 = make_scenarios(pooled0, bias0, adjuster="pet-peese")
     assert sc0.realistic.effect <= 0      # a null literature under strong selection (seed 15)
-    assert not sc0.supported and "--sesoi" in sc0.verdict
+    assert not sc0.supported and "--smallest-effect" in sc0.verdict
     sc1 = make_scenarios(pooled0, bias0, adjuster="pet-peese", sesoi=5.0)
     assert not sc1.supported
     assert sc1.realistic.effect == 5.0 == sc1.pessimistic.effect

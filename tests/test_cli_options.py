@@ -22,12 +22,16 @@ BAD = [
     (["plan", "--effect", "0.3", "--attrition", "-0.1"], "--attrition", "outside [0, 1)"),
     (["plan", "--effect", "0.3", "--safeguard", "60"], "--safeguard", "use 0.6"),
     (["plan", "--effect", "0.3", "--safeguard", "1"], "--safeguard", "outside (0, 1)"),
-    (["plan", "--effect", "0.3", "--sesoi", "-0.1"], "--sesoi", "greater than 0"),
-    (["plan", "--effect", "0.3", "--sesoi", "0"], "--sesoi", "greater than 0"),
+    (["plan", "--effect", "0.3", "--smallest-effect", "-0.1"], "--smallest-effect",
+     "greater than 0"),
+    (["plan", "--effect", "0.3", "--smallest-effect", "0"], "--smallest-effect",
+     "greater than 0"),
     (["plan", "--effect", "nan"], "--effect", "finite"),
     (["plan", "--effect", "inf"], "--effect", "finite"),
-    (["plan", "--effect", "0.3", "--ratio", "0"], "--ratio", "greater than 0"),
-    (["plan", "--effect", "0.3", "--ratio", "inf"], "--ratio", "finite"),
+    (["plan", "--effect", "0.3", "--allocation", "0"], "--allocation", "not an allocation"),
+    (["plan", "--effect", "0.3", "--allocation", "inf"], "--allocation", "not an allocation"),
+    (["plan", "--effect", "0.3", "--allocation", "1:0"], "--allocation", "not an allocation"),
+    (["plan", "--effect", "0.3", "--allocation", "two"], "--allocation", "not an allocation"),
     (["plan", "--effect", "0.3", "--design", "paired", "--planned-r", "1"], "--planned-r",
      "outside (-1, 1)"),
     (["plan", "--effect", "0.3", "--design", "ancova", "--covariate-r", "-1.5"],
@@ -44,7 +48,6 @@ BAD = [
     (["run", "SHEET", "--alpha", "10", "--out", "OUT"], "--alpha", "use 0.1"),
     (["stress", "--calibration", "--power", "80"], "--power", "use 0.8"),
     (["plan", "--effect", "0.3", "--n", "0"], "--n", "0"),
-    (["plan", "--effect", "0.3", "--tails", "3"], "--tails", "3"),
 ]
 
 
@@ -67,7 +70,8 @@ CROSS = [
     (["plan", "--effect", "0.3", "--design", "regression-increment", "--predictors-added", "3",
       "--predictors-total", "2"], "--predictors-total 2 is smaller than --predictors-added 3"),
     (["plan", "SHEET", "--effect-sd", "0.1"], "--effect-sd goes with --effect"),
-    (["plan", "SHEET", "--metric", "r", "--sesoi", "1.2"], "--sesoi 1.2 is not a correlation"),
+    (["plan", "SHEET", "--metric", "r", "--smallest-effect", "1.2"],
+     "--smallest-effect 1.2 is not a correlation"),
     (["plan", "--effect", "0.3", "--design", "two-group", "--n", "3"], "--n 3 is too small"),
 ]
 
@@ -131,7 +135,7 @@ def test_template_write_failure_is_a_clean_error(tmp_path, run_cli, monkeypatch)
 def test_good_values_still_pass(run_cli):
     res = run_cli("plan", "--effect", "0.3", "--power", "0.8", "--alpha", "0.01",
                   "--attrition", "0", "--safeguard", "0.5", "--effect-sd", "0.1",
-                  "--ratio", "2", "--within-r", "-0.3")
+                  "--allocation", "1:2", "--within-r", "-0.3")
     assert res.exit_code == 0, res.output
 
 

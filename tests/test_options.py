@@ -76,7 +76,8 @@ def test_option_error_carries_its_parameter():
      "safeguard_level"),
     (["convert", "{demo}", "--within-r", "1.5"], "'--within-r': 1.5 is outside (-1, 1)",
      "within_r"),
-    (["pool", "{demo}", "--sesoi", "-1"], "'--sesoi': -1 is not allowed", "`sesoi`"),
+    (["pool", "{demo}", "--smallest-effect", "-1"], "'--smallest-effect': -1 is not allowed",
+     "`sesoi`"),
 ])
 def test_cli_errors_name_the_flag_not_the_parameter(run_cli, demo_path, args, flag, internal):
     res = run_cli(*[a.format(demo=demo_path) for a in args])

@@ -26,9 +26,9 @@ SHEET_ROWS = [
 
 # (arguments after `plan`, a name for the check); SHEET is filled in by the test
 EFFECT_RUNS = {
-    "two-group": ["--effect", "0.3", "--effect-sd", "0.1", "--design", "two-group", "--ratio",
-                  "0.6", "--alpha", "0.01", "--tails", "1", "--power", "0.8", "--power",
-                  "0.9", "--attrition", "0.1", "--n", "200", "--json"],
+    "two-group": ["--effect", "0.3", "--effect-sd", "0.1", "--design", "two-group",
+                  "--allocation", "5:3", "--alpha", "0.01", "--one-sided", "--power", "0.8",
+                  "--power", "0.9", "--attrition", "0.1", "--n", "200", "--json"],
     "paired": ["--effect", "0.35", "--design", "paired", "--planned-r", "0.7", "--power",
                "0.8", "--json"],
     "one-sample": ["--effect", "0.4", "--design", "one-sample", "--power", "0.9", "--json"],
@@ -48,7 +48,7 @@ EFFECT_RUNS = {
 }
 ANALYSIS_OPTIONS = ["--metric", "d", "--within-r", "0.8", "--sample-r", "0.9", "--estimator",
                     "dl", "--interval", "wald", "--adjuster", "pet-peese", "--safeguard", "0.8"]
-SESOI = ["--sesoi", "0.3"]
+SESOI = ["--smallest-effect", "0.3"]
 
 
 def _doc(run_cli, key):

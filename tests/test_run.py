@@ -184,7 +184,7 @@ def test_two_runs_are_byte_identical(tmp_path, run_cli, demo_path):
 @pytest.mark.parametrize("args", [["--design", "correlation", "--metric", "r"],
                                   ["--design", "ancova", "--covariate-r", "0.6"],
                                   ["--design", "interaction-2x2", "--attenuation", "1"],
-                                  ["--design", "paired", "--planned-r", "0.7", "--tails", "1"],
+                                  ["--design", "paired", "--planned-r", "0.7", "--one-sided"],
                                   ["--design", "regression-increment", "--predictors-added", "2",
                                    "--predictors-total", "4"]])
 def test_run_every_design(tmp_path, run_cli, demo_path, args):

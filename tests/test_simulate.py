@@ -61,3 +61,28 @@ def test_stress_command_on_demo(run_cli, demo_path, tmp_path):
     assert doc["schema"] == "pooler.stress/1" and len(doc["cells"]) == 9
     assert (out / "stress.png").stat().st_size > 1000
     assert run_cli("stress").exit_code == 2
+
+
+def test_calibration_grid_and_shapes_cover_small_literatures():
+    # issue: the calibration must include k = 5, paired studies and small samples
+    from pooler.simulate import Cell, Shapes, calibration_grid, simulate_literature
+    cells = calibration_grid()
+    assert len(cells) == 108 and {c.k for c in cells} == {5, 10, 20, 40}
+    sh = Shapes.calibration()
+    assert 0.15 < sh.within.mean() < 0.35
+    assert sh.n1.min() >= 10 and sh.n1.max() <= 60
+    assert set(sh.r[sh.within]) == {0.5} and set(sh.r[~sh.within]) == {0.0}
+    y, v, idx = simulate_literature(np.random.default_rng(3), Cell(5, 0.3, 0.0, 1.0), sh)
+    assert len(y) == 5 and np.all(v > 0)
+
+
+def test_stress_figure_shows_the_share_without_a_plan():
+    from pooler.plots import stress_plot
+    from pooler.simulate import Cell, Shapes, stress_test
+    res = stress_test([Cell(5, 0.05, 0.0, 0.05)], Shapes.generic(), reps=20, seed=5, workers=1)
+    fig = stress_plot(res)
+    texts = [t.get_text() for t in fig.axes[0].texts]
+    shares = {r: 1 - np.isfinite(res.cells[0].true_power[r]).mean() for r in res.rules}
+    expected = {r for r, s in shares.items() if s >= 0.05}
+    assert expected  # the cell is chosen so that some rule has no plan in some literatures
+    assert len([t for t in texts if t.endswith("% no plan")]) == len(expected)
