@@ -113,7 +113,7 @@ def decision_blocks(run) -> list[Block]:
     elif not sc.supported:
         verdict = (f"The literature does not support a positive effect (realistic {lab} = "
                    f"{real.effect:.2f}), so it cannot justify a sample size: choose the "
-                   "smallest effect that would matter and plan on it (--sesoi).")
+                   "smallest effect that would matter and plan on it (--smallest-effect).")
     else:
         verdict = (f"No sample size reaches {pw} power at the realistic {lab} = "
                    f"{real.effect:.2f}: {real.n_total.reason}.")

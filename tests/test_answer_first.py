@@ -30,7 +30,7 @@ LITERATURES = {
                          SIZES), ("--design", "two-group")),
     # the same, with a smallest effect of interest given by the user
     "user_smallest": (_between([-0.20, 0.05, -0.12, 0.10, -0.05, 0.02, -0.08, 0.04, -0.25,
-                                0.01], SIZES), ("--design", "two-group", "--sesoi", "0.3")),
+                                0.01], SIZES), ("--design", "two-group", "--smallest-effect", "0.3")),
     # the same supported literature under the earlier frequentist safeguard rule
     "supported_safeguard": (_between([0.35, 0.42, 0.38, 0.30, 0.45, 0.40, 0.41, 0.36, 0.33,
                                       0.44], SIZES),
@@ -137,7 +137,7 @@ def test_supported_plan_methods_paragraph_safeguard_rule(rendered):
 def test_refusal_plans_nothing(rendered, name):
     stdout, md, doc = rendered[name]
     decision = md.split("## The decision", 1)[1].split("\n## ", 1)[0]
-    assert "does not support a positive effect" in decision and "--sesoi" in decision
+    assert "does not support a positive effect" in decision and "--smallest-effect" in decision
     assert "Recruit" not in decision.split("\n\n")[0]
     m = _methods(md)
     assert "cannot justify a sample size" in m and "Lakens, Scheel & Isager, 2018" in m
@@ -219,7 +219,7 @@ def test_recruitment_is_whole_people_per_group():
 
 def test_an_allocation_is_described_as_two_groups(run_cli, write_sheet, tmp_path):
     rows = LITERATURES["supported"][0]
-    res = run_cli("run", write_sheet(rows), "--design", "two-group", "--ratio", "2",
+    res = run_cli("run", write_sheet(rows), "--design", "two-group", "--allocation", "1:2",
                   "--n", "90", "--out", tmp_path / "o")
     assert res.exit_code == 0, res.output
     # 90 in all at 1:2 is 30 + 60, never "(30 per group)"
