@@ -67,6 +67,33 @@ def _clean(x: Any) -> Any:
 to_jsonable = _clean
 
 
+def p_text(p: float) -> str:
+    """A p-value as the report prints it everywhere: "p = .003", "p < .001", "p > .999"
+    (APA style, common practice: no leading zero, three decimals).
+
+    Examples
+    --------
+    >>> p_text(0.0032), p_text(0.00001), p_text(0.2209), p_text(0.99999)
+    ('p = .003', 'p < .001', 'p = .221', 'p > .999')
+    """
+    if p < 0.001:
+        return "p < .001"
+    if p > 0.999:
+        return "p > .999"
+    return "p = " + f"{p:.3f}".lstrip("0")
+
+
+def plural(n: int, one: str, many: str | None = None) -> str:
+    """``n`` with the right form of a noun: "1 study", "5 studies".
+
+    Examples
+    --------
+    >>> plural(1, "study", "studies"), plural(5, "study", "studies"), plural(2, "row")
+    ('1 study', '5 studies', '2 rows')
+    """
+    return f"{n:,} {one if n == 1 else (many or one + 's')}"
+
+
 def fmt(x: Any, digits: int = 3) -> str:
     """Format a number for a terminal table; not-estimable values as their reason."""
     if x is None:

@@ -143,7 +143,7 @@ class Audit:
     """The audit stage: the studies' power and the excess-significance test at ``effect``."""
 
     effect: float
-    literature: LiteratureAudit
+    literature: LiteratureAudit | NotEstimable
     excess_significance: ExcessSignificance | NotEstimable
 
     def to_dict(self) -> dict:
@@ -155,5 +155,11 @@ def audit_literature(pooled, effect) -> Audit:
     """Audit the studies of ``pooled`` (a :class:`pooler.pooling.PooledResult`) at the true
     effect ``effect`` on its metric: each study's power, then the excess-significance test
     (Ioannidis & Trikalinos 2007) with those powers."""
+    if not effect > 0:
+        sym = "g" if pooled.metric == "g" else "z"
+        why = NotEstimable(f"not computed: the realistic effect ({sym} = {effect:.3f}) is not "
+                           "positive, and a study's power to find an effect that is not there "
+                           "is only its false-positive rate")
+        return Audit(effect, why, why)
     lit = literature_audit(pooled.studies, effect, pooled.metric)
     return Audit(effect, lit, excess_significance(pooled.studies, [r.power for r in lit.rows]))

@@ -31,7 +31,7 @@ from types import MappingProxyType
 
 import numpy as np
 
-from ._results import Interval, NotEstimable, estimable, to_jsonable
+from ._results import Interval, NotEstimable, estimable, p_text, plural, to_jsonable
 from .pooling import random_effects
 
 Z975 = 1.959963984540054
@@ -143,10 +143,12 @@ def pet_peese(pet_fit, peese_fit, alpha=0.05) -> PetPeese | NotEstimable:
         if not estimable(peese_fit):
             return peese_fit
         return PetPeese(peese_fit.estimate, peese_fit.se, peese_fit.ci, "PEESE",
-                        f"PET's intercept is significantly positive (p = {pet_fit.p:.3f}), "
+                        f"PET's intercept is significantly positive ({p_text(pet_fit.p)}), "
                         "so an effect exists and PEESE estimates it with less bias")
-    return PetPeese(pet_fit.estimate, pet_fit.se, pet_fit.ci, "PET",
-                    f"PET's intercept is not significantly positive (p = {pet_fit.p:.3f})")
+    why = (f"PET's intercept is not significantly positive ({p_text(pet_fit.p)})"
+           if pet_fit.estimate > 0 or pet_fit.p >= alpha else
+           f"PET's intercept is negative ({p_text(pet_fit.p)}), so no effect is shown")
+    return PetPeese(pet_fit.estimate, pet_fit.se, pet_fit.ci, "PET", why)
 
 
 # ------------------------------------------------------------------ trim-and-fill
@@ -716,11 +718,11 @@ def adjuster_choices() -> tuple[str, ...]:
 def _egger_row(e) -> tuple:
     return ("Egger's test", None, None,
             f"asymmetry: intercept {e.estimate:.2f} [{e.ci.low:.2f}, {e.ci.high:.2f}], "
-            f"p = {e.p:.3f}")
+            f"{p_text(e.p)}")
 
 
 def _selection_note(r) -> str:
-    return (f"omega = {r.omega:.2f}, LRT p = {r.lrt_p:.3f}, "
+    return (f"omega = {r.omega:.2f}, LRT {p_text(r.lrt_p)}, "
             f"{r.k_significant} significant / {r.k_nonsignificant} not"
             + ("" if r.converged else ", did not converge")
             + (f", {', '.join(r.at_bound)}" if r.at_bound else ""))
@@ -736,7 +738,7 @@ for _m in (
                table_label="Egger's test", phrase="Egger's regression test", ladder=False,
                table_row=_egger_row),
     BiasMethod("pet", "PET", lambda d: pet(d.y, d.v), "Stanley & Doucouliagos, 2014",
-               table_label="PET", note=lambda r: f"intercept p = {r.p:.3f}"),
+               table_label="PET", note=lambda r: f"intercept {p_text(r.p)}"),
     BiasMethod("peese", "PEESE", lambda d: peese(d.y, d.v), "Stanley & Doucouliagos, 2014",
                table_label="PEESE", note=lambda r: f"slope on SE^2 = {r.slope:.2f}"),
     BiasMethod("pet_peese", "PET-PEESE",
@@ -748,13 +750,13 @@ for _m in (
                lambda d: trim_and_fill(d.y, d.v, estimator="L0", tau2_estimator=d.estimator,
                                        interval=d.interval),
                "Duval & Tweedie, 2000", adjuster="trim-and-fill", table_label="trim-and-fill (L0)",
-               note=lambda r: f"{r.k0} studies imputed on the {r.side}", phrase="trim-and-fill",
+               note=lambda r: f"{plural(r.k0, 'study', 'studies')} imputed on the {r.side}", phrase="trim-and-fill",
                plan_order=3),
     BiasMethod("trim_and_fill_r0", "trim-and-fill (R0)",
                lambda d: trim_and_fill(d.y, d.v, estimator="R0", tau2_estimator=d.estimator,
                                        interval=d.interval),
                "Duval & Tweedie, 2000", table_label="trim-and-fill (R0)",
-               note=lambda r: f"{r.k0} studies imputed on the {r.side}", ladder=False),
+               note=lambda r: f"{plural(r.k0, 'study', 'studies')} imputed on the {r.side}", ladder=False),
     BiasMethod("selection_3psm", "selection model",
                lambda d: (selection_model(d.y, d.v) if len(d.y) >= 2
                           else NotEstimable("one study")),

@@ -145,6 +145,47 @@ def _recruit(n_total: int, attrition: float) -> int:
     return int(math.ceil(n_total / (1 - attrition) - 1e-9))
 
 
+def recruit_sizes(n: int, design, attrition: float) -> tuple[tuple[int, ...], int]:
+    """Whole people to recruit in each group (cell) so that each keeps its planned size
+    after losing the fraction ``attrition``, and their total.
+
+    Each group is inflated on its own, n / (1 - attrition) rounded up, so two equal groups
+    give an even total and an allocation keeps its ratio; for an ungrouped design it is
+    the total.
+
+    Examples
+    --------
+    >>> recruit_sizes(409, "two-group", 0.2)
+    ((512, 512), 1024)
+    >>> recruit_sizes(40, Design("two-group", ratio=2.0), 0.1)
+    ((45, 89), 134)
+    >>> recruit_sizes(100, "paired", 0.2)
+    ((125,), 125)
+    """
+    sizes = tuple(_recruit(g, attrition) for g in unit_sizes(n, design))
+    return sizes, int(sum(sizes))
+
+
+def unit_sizes(n: int, design) -> tuple[int, ...]:
+    """The whole groups (cells) a design has for ``n`` per unit, from the design registry:
+    with an allocation ratio (n1, n2 = ceil(ratio n1)); equal units otherwise; the total
+    alone for a design counted in all.
+
+    Examples
+    --------
+    >>> unit_sizes(30, Design("two-group", ratio=2.0)), unit_sizes(25, "interaction-2x2")
+    ((30, 60), (25, 25, 25, 25))
+    """
+    des = _design(design)
+    n = int(n)
+    if des.unit is None:
+        return (n,)
+    total = int(des.n_total(n))
+    if "ratio" in des.spec.parameters:
+        return (n, total - n)
+    return (n,) * max(total // n, 1)
+
+
 def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
               powers=(0.8, 0.9, 0.95), attrition=0.0, predictive=None, assurance_targets=None,
               n_total=None, effect_label=None) -> Plan:
@@ -210,7 +251,8 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
             if grid.reachable[i, j]:
                 n, nt = int(grid.n[i, j]), int(grid.n_total[i, j])
                 rows.append(PlanRow(s.scenario, float(effects[i]), float(deff[i]), p, n, nt,
-                                    float(grid.power[i, j]), _recruit(nt, attrition)))
+                                    float(grid.power[i, j]),
+                                    recruit_sizes(n, des, attrition)[1]))
             else:
                 why = NotEstimable(grid.reason[i, j])
                 rows.append(PlanRow(s.scenario, float(effects[i]), float(deff[i]), p,

@@ -211,22 +211,32 @@ def estimate_ladder(pooled, bias, scenarios=None, *, ax=None):
 
 def power_curves(plan, *, ax=None, n_max=None):
     """Power against total N for each scenario, the target-power lines, the assurance curve
-    (when a predictive distribution is known), and the n chosen at the first target power
-    for the realistic scenario marked."""
+    (when a predictive distribution is known), and the n of the realistic scenario at the
+    first target power marked.
+
+    Power is computed at whole groups: n per group (per cell, or in total) runs over
+    integers and each total is the design's own (:meth:`pooler.power.Design.n_total`, with
+    n2 = ceil(ratio x n1)), so the curves rise without the saw-tooth a total split by
+    rounding would draw at small N."""
     from .power import assurance, power_at, to_design_effect
-    from .planning import per_group
     des = plan.design
     fig = None
     if ax is None:
         fig, ax = _figure(3.8)
     else:
         fig = ax.figure
+    first = plan.powers[0]
+    chosen = next((r for r in plan.rows if r.scenario == "realistic" and r.power == first
+                   and isinstance(r.n_total, int)), None)
     ns = [r.n_total for r in plan.rows if isinstance(r.n_total, int)]
-    top = n_max or int(min(max(ns) * 1.3 if ns else 200, 50_000))
-    totals = np.unique(np.linspace(max(des.n_min * 2, 4), max(top, 10), 300).astype(int))
-    per = np.array([per_group(int(t), des) for t in totals])
-    ok = per >= des.n_min
-    totals, per = totals[ok], per[ok]
+    top = max(ns) * 1.3 if ns else 200
+    if chosen is not None:
+        top = min(top, max(4 * chosen.n_total, 60))
+    top = int(min(n_max or top, 50_000))
+    per_top = max(int(np.searchsorted(des.n_total(np.arange(1, top + 2)), top)) + 1,
+                  des.n_min + 1)
+    per = np.unique(np.linspace(des.n_min, per_top, 400).round().astype(np.int64))
+    totals = des.n_total(per)
     for s in plan.scenarios:
         d = float(to_design_effect(s.effect, plan.metric, des))
         if d <= 0:
@@ -247,16 +257,22 @@ def power_curves(plan, *, ax=None, n_max=None):
                 label="assurance (realistic)")
     for p in plan.powers:
         ax.axhline(p, color=GREY, lw=0.6, ls=":")
-    chosen = next((r for r in plan.rows if r.scenario == "realistic" and
-                   isinstance(r.n_total, int)), None) or next(
-        (r for r in plan.rows if isinstance(r.n_total, int)), None)
     if chosen is not None:
+        ax.axvline(chosen.n_total, color=SCENARIO_COLOURS.get("realistic", BLUE), lw=0.8,
+                   ls="--", zorder=1)
         ax.plot(chosen.n_total, chosen.achieved_power, "o", color="black", ms=5, zorder=4)
-        ax.annotate(f"N = {chosen.n_total}", (chosen.n_total, chosen.achieved_power),
-                    xytext=(6, -12), textcoords="offset points", fontsize=7.5)
+        each = ""
+        if des.grouped:
+            from .planning import unit_sizes
+            sizes = unit_sizes(chosen.n_per_group, des)
+            each = (f" ({sizes[0]:,} per {des.unit})" if len(set(sizes)) == 1
+                    else " (" + " + ".join(f"{x:,}" for x in sizes) + ")")
+        ax.annotate(f"realistic: N = {chosen.n_total:,}{each}",
+                    (chosen.n_total, chosen.achieved_power), xytext=(6, -14),
+                    textcoords="offset points", fontsize=7.5)
     ax.set_ylim(0, 1.02)
     ax.set_xlim(0, totals.max())
-    ax.set_xlabel("total sample size N")
+    ax.set_xlabel("total sample size N (whole groups)")
     ax.set_ylabel("power")
     tails = "two-tailed" if plan.tails == 2 else "one-tailed"
     ax.set_title(f"Power of the planned {des.name} study ({tails}, alpha = {plan.alpha:g})",

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import math
 
-from ._results import NotEstimable, csv_safe, text_table
+from ._results import NotEstimable, csv_safe, p_text, plural, text_table
 
 
 def _reported(row, sheet_rec) -> str:
@@ -45,8 +45,8 @@ def effects_text(eff, sheet) -> str:
                      f"[{ci.low:.3f}, {ci.high:.3f}]" if ci else "",
                      None if r.n_total is None else _n(r.n_total),
                      r.status, r.reason or "; ".join(r.notes)])
-    out = [f"{sheet.name}: {len(eff.rows)} rows read, {eff.n_used} used, "
-           f"{eff.n_excluded} excluded; {eff.k} independent samples to pool "
+    out = [f"{sheet.name}: {plural(len(eff.rows), 'row')} read, {eff.n_used:,} used, "
+           f"{eff.n_excluded:,} excluded; {plural(eff.k, 'independent sample')} to pool "
            f"(metric: {metric})", "", text_table(headers, rows)]
     if eff.assumptions:
         out += ["", "Assumptions:"] + [f"  - {a}" for a in eff.assumptions]
@@ -60,6 +60,32 @@ def _n(x: float):
 
 
 # ------------------------------------------------------------------ planning table
+
+def group_sizes_text(design, sizes) -> str:
+    """Whole groups in words: "512 per group", "40 in group 1 and 80 in group 2",
+    "30 per cell (4 cells)"; empty for a design counted in total."""
+    unit = design.unit
+    if unit is None:
+        return ""
+    if len(set(sizes)) > 1:
+        return " and ".join(f"{x:,} in {unit} {i + 1}" for i, x in enumerate(sizes))
+    if len(sizes) == 2:
+        return f"{sizes[0]:,} per {unit}"
+    return f"{sizes[0]:,} per {unit} ({len(sizes)} {unit}s)"
+
+
+def sizes_and_total(n, design, attrition: float = 0.0) -> tuple[str, int]:
+    """``n`` per group (per cell, or in total) as whole groups in words and their total,
+    after inflating each group for ``attrition``."""
+    from .planning import recruit_sizes
+    sizes, total = recruit_sizes(n, design, attrition)
+    return group_sizes_text(design, sizes), total
+
+
+def people(total: int, groups: str) -> str:
+    """ "1,024 participants (512 per group)" """
+    return plural(total, "participant") + (f" ({groups})" if groups else "")
+
 
 def _pct(p: float) -> str:
     return f"{100 * p:g}%"
@@ -129,8 +155,11 @@ def plan_text(plan) -> str:
                 out.append(f"  {w}")
     f = plan.fixed_n
     if f is not None:
-        unit = "per group" if des.grouped else "in all"
-        out += ["", f"With a fixed total N = {f.n_total} ({f.n_per_group} {unit}):"]
+        groups, used = sizes_and_total(f.n_per_group, des)
+        out += ["", f"With a fixed total N = {f.n_total:,}"
+                    + (f" ({groups})" if groups else f" ({used:,} in all)")
+                    + (f", of which {used:,} are used (whole groups)" if used != f.n_total else "")
+                    + ":"]
         out.append(text_table(["scenario", f"planning {plan.effect_label}", "power"],
                               [[s, e, p] for s, e, p in f.power]))
         out.append("")
@@ -141,17 +170,21 @@ def plan_text(plan) -> str:
 
 
 def plan_csv(plan) -> str:
-    """The planning table as CSV text (one row per scenario × target power)."""
+    """The planning table as CSV text (one row per scenario × target power). Numeric
+    columns hold only numbers: a value that cannot be reached is left empty and the reason is
+    in the last column."""
     import csv
     import io
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(["scenario", "effect", "design_effect", "target_power", "n_per_group", "n_total",
-                "achieved_power", "n_total_recruit"])
+                "achieved_power", "n_total_recruit", "not_reached_because"])
     for r in plan.rows:
+        cells = (r.n_per_group, r.n_total, r.achieved_power, r.n_total_recruit)
+        why = next((v.reason for v in cells if isinstance(v, NotEstimable)), "")
         w.writerow([csv_safe(r.scenario), repr(r.effect), repr(r.design_effect), r.power,
-                    *[str(v) if isinstance(v, NotEstimable) else v
-                      for v in (r.n_per_group, r.n_total, r.achieved_power, r.n_total_recruit)]])
+                    *["" if isinstance(v, NotEstimable) else v for v in cells],
+                    csv_safe(why)])
     return buf.getvalue()
 
 
@@ -169,7 +202,7 @@ def plan_markdown(plan) -> str:
 # ------------------------------------------------------------------ pooling
 
 def _p(p: float) -> str:
-    return "p < .001" if p < 0.001 else f"p = {p:.3f}".replace("0.", ".")
+    return p_text(p)
 
 
 def _ci(lo, hi, digits=3) -> str:
@@ -232,8 +265,9 @@ def pooled_text(res, eff) -> str:
     import numpy as np
     from ._results import estimable
     sym = "g" if res.metric == "g" else "z"
-    out = [f"{Path(eff.file).name}: k = {res.k} independent samples ({eff.n_used} rows used, "
-           f"{eff.n_excluded} excluded); metric {eff.metric_label}"]
+    out = [f"{Path(eff.file).name}: k = {plural(res.k, 'independent sample')} "
+           f"({plural(eff.n_used, 'row')} used, {eff.n_excluded:,} excluded); "
+           f"metric {eff.metric_label}"]
     if res.metric == "z":
         out.append("  estimates on the Fisher z scale; r = tanh(z) in brackets")
     out += pooled_summary(res)
@@ -244,7 +278,8 @@ def pooled_text(res, eff) -> str:
     rows = []
     for i in shown:
         y, se = res.effects[i], math.sqrt(res.variances[i])
-        rows.append([res.labels[i], y, _ci(y - 1.96 * se, y + 1.96 * se), 100 * res.weights[i]])
+        rows.append([res.labels[i], y, _ci(y - 1.96 * se, y + 1.96 * se),
+                     f"{100 * res.weights[i]:.1f}"])
     title = "Studies:" if k <= TEXT_MAX_ROWS else (
         f"Studies: the {TEXT_SHOWN_ROWS} of {k:,} with the largest weight ({_ALL_ROWS}):")
     out += ["", title, text_table(["sample", sym, "95% CI", "weight %"], rows)]
@@ -283,9 +318,10 @@ def pooled_text(res, eff) -> str:
 
 def _influence_table(rows, sym, first="analysis") -> str:
     from ._results import NotEstimable
-    return text_table([first, "k", sym, "95% CI", "tau^2", "I^2 %"],
+    return text_table([first, "k", sym, "95% CI", "tau^2", "I^2"],
                       [[r.label, r.k, r.estimate, _ci(r.ci_low, r.ci_high), r.tau2,
-                        None if isinstance(r.i2, NotEstimable) else 100 * r.i2] for r in rows])
+                        None if isinstance(r.i2, NotEstimable) else f"{100 * r.i2:.1f}%"]
+                       for r in rows])
 
 
 # ------------------------------------------------------------------ bias and scenarios
@@ -318,7 +354,7 @@ def bias_text(bias, audit) -> str:
                    f"significant, {tes.expected:.1f} expected; chi2(1) = {tes.chi2:.2f}, "
                    f"{_p(tes.p)}")
     else:
-        out.append(f"Excess significance: {tes}")
+        out.append(f"Excess significance: {tes.reason}")
     return "\n".join(out)
 
 
@@ -349,6 +385,8 @@ def scenarios_text(scen, audit=None) -> str:
                    f"95% interval {_ci(ci.low, ci.high)}")
     out.append(scen.verdict)
     a = audit.literature if audit is not None else None
+    if a is not None and not estimable(a):
+        out += ["", f"Literature audit: {a.reason}"]
     if estimable(a):
         out += ["", f"Literature audit: each study's power to detect the realistic {sym} = "
                     f"{a.effect:.3f} (two-sided alpha = .05): median {a.median:.2f}, "
@@ -402,12 +440,15 @@ def model_average_lines(scen) -> list[str]:
 
 def run_summary_text(run, paths) -> str:
     """The compact summary that ``pooler run`` and ``pooler demo`` print."""
+    from .document import decision_blocks, to_text
     a = run.analysis
+    decision = to_text(decision_blocks(run))
     head = pooled_text(a.pooled, a.effects).split("\n\nStudies:")[0]
     scen = scenarios_text(a.scenarios, a.audit)
     scen_short, _, audit = scen.partition("\n\nLiterature audit")
     audit_line = ("Literature audit" + audit.split("\n")[0]) if audit else ""
-    out = [head, "", bias_text(a.bias, a.audit), "", scen_short]
+    out = [decision, "", "How it was reached", "-" * 18, head, "", bias_text(a.bias, a.audit),
+           "", scen_short]
     if audit_line:
         out.append(audit_line)
     out += ["", plan_text(run.plan)]

@@ -65,7 +65,7 @@ def test_report_numbers_equal_results_json(demo_run):
     assert float(key["random-effects estimate"]) == round(pool["pooled"]["estimate"], 3)
     assert float(key["random-effects CI low"]) == round(pool["pooled"]["ci_low"], 3)
     assert float(key["tau^2"]) == round(pool["heterogeneity"]["tau2"], 4)
-    assert float(key["I^2"]) == round(pool["heterogeneity"]["i2"], 3)
+    assert key["I^2"] == f"{100 * pool['heterogeneity']['i2']:.1f}%"   # a percentage
     for s in ("optimistic", "realistic", "pessimistic"):
         assert float(key[f"{s} effect"]) == round(pool["scenarios"][s]["effect"], 3)
     for row in plan["rows"]:
