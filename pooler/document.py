@@ -270,9 +270,15 @@ def build_blocks(run) -> list[Block]:
     b.append(Block("table", headers=("method", sym, "95% CI", "note"), rows=tuple(rows)))
     sr = bias.selection_ratio
     if estimable(sr):
-        b.append(Block("p", "Selection ratio (Mathur & VanderWeele 2020): "
-                       + "; ".join(f"eta = {e:g}: {m:.3f}" for e, m in zip(sr.eta, sr.estimates))
-                       + f"; worst case {_num(sr.worst_case)}; S-value {_num(sr.s_value, 2)}."))
+        b.append(Block("p", "How much selective publication it would take (the sensitivity "
+                       "analysis of Mathur & VanderWeele 2020): if significant results in the "
+                       "hypothesised direction were published more often than the rest, the "
+                       "estimate would be "
+                       + "; ".join(f"{m:.3f} at {e:g} times as often"
+                                   for e, m in zip(sr.eta, sr.estimates))
+                       + f"; from the studies that were not significantly positive alone, "
+                       f"{_num(sr.worst_case)}; the publication advantage that would bring the "
+                       f"estimate to 0: {_num(sr.s_value, 2)}."))
     tes = a.audit.excess_significance
     if estimable(tes):
         b.append(Block("p", f"Excess significance (Ioannidis & Trikalinos 2007): {tes.observed} "

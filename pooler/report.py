@@ -342,10 +342,13 @@ def bias_text(bias, audit) -> str:
     out = ["Bias-sensitivity suite:", text_table(["method", sym, "95% CI", "note"], rows)]
     sr = bias.selection_ratio
     if estimable(sr):
-        parts = ", ".join(f"eta = {e:g}: {m:.3f}" for e, m in zip(sr.eta, sr.estimates))
-        out.append(f"Selection ratio (affirmative results eta times more likely published): {parts}")
-        out.append(f"  worst case (non-affirmative studies only): {_or_reason(sr.worst_case)}; "
-                   f"S-value: {_or_reason(sr.s_value)}")
+        parts = ", ".join(f"{e:g}x: {m:.3f}" for e, m in zip(sr.eta, sr.estimates))
+        out.append("If significant results in the hypothesised direction were published more "
+                   f"often than the rest, the estimate would be: {parts}")
+        out.append("  from the studies that were not significantly positive alone: "
+                   f"{_or_reason(sr.worst_case)}; how many times more often significant results "
+                   f"would have to be published to bring the estimate to 0: "
+                   f"{_or_reason(sr.s_value)}")
     else:
         out.append(f"Selection ratio: {sr}")
     tes = audit.excess_significance
