@@ -196,6 +196,16 @@ def main():
     """
 
 
+def _figure_file_options(f):
+    """--format and --force of the commands that write a figure into an optional --out."""
+    f = click.option("--force", is_flag=True,
+                     help="Write into --out even if it is not empty and pooler did not write "
+                          "it (a folder pooler wrote is replaced by a rerun).")(f)
+    return click.option("--format", "fmt", type=click.Choice(["png", "svg", "pdf"]),
+                        default="png", show_default=True,
+                        help="File format of the figure.")(f)
+
+
 def _cpus() -> int:
     """The CPUs this process may use (the default number of worker processes)."""
     import os
@@ -637,10 +647,7 @@ def demo_cmd(ctx, **params):
               help="Target power the planning rules are asked for.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for stress.json and the figure stress.<format>.")
-@click.option("--format", "fmt", type=click.Choice(["png", "svg", "pdf"]), default="png",
-              show_default=True, help="File format of the figure.")
-@click.option("--force", is_flag=True, help="Write into --out even if it is not empty and "
-              "pooler did not write it (a folder pooler wrote is replaced by a rerun).")
+@_figure_file_options
 @_conversion_options
 @_json_option
 def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force, metric,
@@ -801,10 +808,7 @@ def template(path, force):
                    "instead of local processes; same results. Needs pooler[cluster].")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for results.json, report.md and the power-curve figure.")
-@click.option("--format", "fmt", type=click.Choice(["png", "svg", "pdf"]), default="png",
-              show_default=True, help="File format of the figure.")
-@click.option("--force", is_flag=True, help="Write into --out even if it is not empty and "
-              "pooler did not write it (a folder pooler wrote is replaced by a rerun).")
+@_figure_file_options
 @_json_option
 def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
               interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,

@@ -10,7 +10,6 @@ No timed assertions: figures only.
 """
 from __future__ import annotations
 
-import csv
 import os
 import statistics
 import subprocess
@@ -21,18 +20,8 @@ import time
 import numpy as np
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
-
-
-def write_sheet(path, k, seed=7):
-    """An invented literature of k two-group studies with a 'year' column."""
-    rng = np.random.default_rng(seed)
-    with open(path, "w", newline="") as fh:
-        w = csv.writer(fh)
-        w.writerow(["study", "stat", "value", "n1", "n2", "year"])
-        for i in range(k):
-            n1, n2 = (int(x) for x in rng.integers(10, 200, 2))
-            d = rng.normal(0.3, 0.2) + rng.normal(0, np.sqrt(1 / n1 + 1 / n2))
-            w.writerow([f"S{i}", "d", round(float(d), 4), n1, n2, 1990 + i % 30])
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from bench import write_sheet  # noqa: E402  (the same invented literature as bench.py)
 
 
 def run_cli(path):
