@@ -669,12 +669,13 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
     """
     from .errors import OptionError
     from .report import stress_text
-    from .simulate import Shapes, calibration_grid, grid_around, stress_test
+    from .simulate import Shapes, calibration_grid, grid_around, grid_note, stress_test
     if calibration == bool(sheet):
         raise OptionError("give a SHEET, or --calibration for the general grid (not both)")
     if out_dir:
         from .outputs import check_out
         check_out(out_dir, force)
+    note = None
     if calibration:
         cells, shapes = calibration_grid(), Shapes.calibration()
     else:
@@ -682,6 +683,7 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
         a = _analyse(sheet, metric or d["metric"], within_r, sample_r, d["estimator"],
                      d["interval"], d["adjuster"], d["safeguard_level"], d["sesoi"])
         cells, shapes = grid_around(a), Shapes.from_effects(a.effects)
+        note = grid_note(a)
     bar = None
     if sys.stderr.isatty():
         def bar(done, total):
@@ -704,6 +706,8 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
     if as_json:
         _print_json(res.to_dict())
     else:
+        if note:
+            click.echo(note + "\n")
         click.echo(stress_text(res))
         if out_dir:
             click.echo(f"\nWritten to {out_dir}/: " + ", ".join(p.name for p in paths))

@@ -336,6 +336,18 @@ def grid_around(analysis, scale=(0.5, 1.0, 1.5), pis=(1.0, 0.2, 0.05)) -> list[C
     return [Cell(max(pooled.k, 2), d, tau, p) for d in deltas for p in pis]
 
 
+def grid_note(analysis, scale=(0.5, 1.0, 1.5)) -> str:
+    """One sentence saying how :func:`grid_around` chose the true effects it simulates."""
+    r = analysis.scenarios.realistic.effect
+    if r > 0:
+        return (f"The grid simulates true mean effects of {', '.join(f'{s:g}' for s in scale)}"
+                f" times your realistic g = {r:.3f}, with {analysis.pooled.k} studies each, "
+                "from no selection (pi = 1) to strong selection (pi = 0.05).")
+    return (f"Your realistic effect is not positive (g = {r:.3f}), so there is no effect to "
+            "scale the grid around: it simulates true mean effects of 0.1, 0.2 and 0.3 "
+            "instead, to show how each planning rule would fare if a small effect were real.")
+
+
 def calibration_grid() -> list[Cell]:
     """The general calibration grid of the README (108 cells)."""
     return [Cell(k, d, t, p) for k in (5, 10, 20, 40) for d in (0.1, 0.2, 0.4)

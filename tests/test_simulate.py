@@ -86,3 +86,19 @@ def test_stress_figure_shows_the_share_without_a_plan():
     expected = {r for r, s in shares.items() if s >= 0.05}
     assert expected  # the cell is chosen so that some rule has no plan in some literatures
     assert len([t for t in texts if t.endswith("% no plan")]) == len(expected)
+
+
+def test_stress_explains_its_grid_also_when_the_realistic_effect_is_not_positive(demo_path):
+    from pooler.pipeline import analyse
+    from pooler.simulate import grid_around, grid_note
+    a = analyse(demo_path)
+    r = a.scenarios.realistic.effect
+    assert f"{r:.3f}" in grid_note(a) and r > 0
+    assert sorted({c.delta for c in grid_around(a)}) == sorted(
+        round(s * r, 3) for s in (0.5, 1.0, 1.5))
+    # the same analysis with a non-positive realistic effect: the grid and its explanation
+    import dataclasses
+    neg = dataclasses.replace(a.scenarios.realistic, effect=-0.05)
+    a2 = dataclasses.replace(a, scenarios=dataclasses.replace(a.scenarios, realistic=neg))
+    assert sorted({c.delta for c in grid_around(a2)}) == [0.1, 0.2, 0.3]
+    assert "not positive" in grid_note(a2) and "0.1, 0.2 and 0.3" in grid_note(a2)
