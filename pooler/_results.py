@@ -134,3 +134,11 @@ def csv_safe(value):
     if isinstance(value, str) and value[:1] in ("=", "+", "-", "@", "\t", "\r"):
         return "'" + value
     return value
+
+
+class ShowsAsTable:
+    """Mixin: a result with ``to_frame()`` shows as that table in a notebook (Jupyter calls
+    ``_repr_html_``), so a stage's result reads the same there as in its DataFrame."""
+
+    def _repr_html_(self) -> str:
+        return self.to_frame().to_html(index=False, na_rep="")

@@ -31,7 +31,8 @@ from types import MappingProxyType
 
 import numpy as np
 
-from ._results import Interval, NotEstimable, estimable, p_text, plural, to_jsonable
+from ._results import (Interval, NotEstimable, ShowsAsTable, estimable, p_text, plural,
+                       to_jsonable)
 from .pooling import random_effects
 
 Z975 = 1.959963984540054
@@ -777,7 +778,7 @@ del _m
 # ------------------------------------------------------------------ the suite
 
 @dataclass(frozen=True)
-class BiasResult:
+class BiasResult(ShowsAsTable):
     """Every registered bias-sensitivity method, estimated or not estimable (with the reason).
 
     Each method's result is an attribute named by its key (``bias.selection_3psm``) and an

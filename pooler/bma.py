@@ -75,7 +75,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from ._results import Interval, NotEstimable, to_jsonable
+from ._results import Interval, NotEstimable, ShowsAsTable, to_jsonable
 from .errors import InputError, OptionError
 
 Z975 = 1.959963984540054
@@ -609,7 +609,7 @@ class Summary:
 
 
 @dataclass(frozen=True)
-class ModelAverage:
+class ModelAverage(ShowsAsTable):
     """The model-averaged posterior (from :func:`model_average`).
 
     Attributes

@@ -35,7 +35,7 @@ import math
 from dataclasses import dataclass, field, replace
 from typing import Callable
 
-from ._results import Interval, to_jsonable
+from ._results import Interval, ShowsAsTable, to_jsonable
 from .errors import InputError, InputErrors, OptionError
 from .consistency import check_record
 from .sheet import Record, Sheet, column_label
@@ -238,7 +238,7 @@ class Unit:
 
 
 @dataclass(frozen=True)
-class Effects:
+class Effects(ShowsAsTable):
     """Every sheet row converted to one metric, and the independent units to pool.
 
     Attributes

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._results import NotEstimable, to_jsonable
+from ._results import NotEstimable, ShowsAsTable, to_jsonable
 from .errors import OptionError
 from .power import (AssuranceResult, Design, EffectDensity, _design, detectable_effect,
                     from_design_effect, n_for_assurance, n_for_power, power_at,
@@ -74,7 +74,7 @@ class FixedN:
 
 
 @dataclass(frozen=True)
-class Plan:
+class Plan(ShowsAsTable):
     """The planning table and its context.
 
     Attributes

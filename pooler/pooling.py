@@ -28,7 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._results import Interval, NotEstimable, estimable, to_jsonable
+from ._results import Interval, NotEstimable, ShowsAsTable, estimable, to_jsonable
 from .choices import ESTIMATORS, INTERVALS
 from .errors import OptionError
 ESTIMATOR_NAMES = {"reml": "restricted maximum likelihood (REML)", "ml": "maximum likelihood",
@@ -630,7 +630,7 @@ def _many_fits(y, v, sums, sizes, estimator, interval, level):
 # ------------------------------------------------------------------ the stage
 
 @dataclass(frozen=True)
-class PooledResult:
+class PooledResult(ShowsAsTable):
     """Everything the pooling stage reports.
 
     Attributes

@@ -32,7 +32,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._results import NotEstimable, estimable, to_jsonable
+from ._results import NotEstimable, ShowsAsTable, estimable, to_jsonable
 from .bias import adjuster_choices, planning_methods
 from .errors import OptionError
 from .planning import PlanningEffect
@@ -65,7 +65,7 @@ class Scenario:
 
 
 @dataclass(frozen=True)
-class Scenarios:
+class Scenarios(ShowsAsTable):
     """The three planning scenarios and their bases in words.
 
     Attributes

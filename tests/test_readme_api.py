@@ -21,3 +21,17 @@ def test_readme_python_api_block_runs():
     runner.run(test)
     res = runner.summarize(verbose=False)
     assert res.failed == 0
+
+
+def test_results_show_as_tables_in_a_notebook(demo_path):
+    # Jupyter shows an object's _repr_html_: each stage's result shows its to_frame() table
+    from pooler import adjust, convert, planning_scenarios, plan, pool, read_sheet
+    from pooler.planning import PlanningEffect
+    eff = convert(read_sheet(demo_path))
+    pooled = pool(eff)
+    bias = adjust(pooled)
+    sc = planning_scenarios(pooled, bias)
+    p = plan([PlanningEffect("given", 0.3)], "two-group")
+    for res in (eff, pooled, bias, sc, p):
+        html = res._repr_html_()
+        assert html.startswith("<table") and html.count("<tr") == len(res.to_frame()) + 1
