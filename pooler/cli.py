@@ -106,10 +106,7 @@ _correlation = _fraction(-1, 1, hint="a correlation lies strictly between -1 and
 def _allocation(ctx, param, value):
     """--allocation as n1:n2 (e.g. 1:2) or one number n2/n1 -> the ratio n2/n1 (> 0)."""
     import math
-    if isinstance(value, (int, float)):
-        text = str(value)
-    else:
-        text = str(value).strip()
+    text = str(value).strip()
     parts = [p.strip() for p in text.split(":")]
     try:
         nums = [float(p.replace(",", ".")) for p in parts]
@@ -194,6 +191,17 @@ def main():
       pooler run my_literature.csv --design two-group --out my_plan
       pooler plan --effect 0.3 --design paired
     """
+
+
+def _seed_and_workers(workers_help: str):
+    """--seed and --workers of the simulating commands (stress, paths)."""
+    def deco(f):
+        f = click.option("--workers", type=click.IntRange(min=1), default=_cpus,
+                         show_default="the CPUs this process may use",
+                         help=f"{workers_help} (results do not depend on it).")(f)
+        return click.option("--seed", type=int, default=2026, show_default=True,
+                            help="Random seed.")(f)
+    return deco
 
 
 def _figure_file_options(f):
@@ -638,10 +646,7 @@ def demo_cmd(ctx, **params):
                    "quarter paired studies of 10-60) instead of a grid around SHEET.")
 @click.option("--reps", type=click.IntRange(min=1), default=60, show_default=True,
               help="Simulated literatures per grid cell.")
-@click.option("--seed", type=int, default=2026, show_default=True, help="Random seed.")
-@click.option("--workers", type=click.IntRange(min=1), default=_cpus,
-              show_default="the CPUs this process may use",
-              help="Processes to spread the work over (results do not depend on it).")
+@_seed_and_workers("Processes to spread the work over")
 @click.option("--power", "target", type=float, default=0.8, show_default=True,
               callback=_fraction(0, 1, percent=True, hint="a target power such as 0.8"),
               help="Target power the planning rules are asked for.")
@@ -803,10 +808,7 @@ def template(path, force):
               help="Monte Carlo draws per replication (monte-carlo test).")
 @click.option("--resamples", type=click.IntRange(min=100), default=1000, show_default=True,
               help="Bootstrap resamples per replication (bootstrap test).")
-@click.option("--seed", type=int, default=2026, show_default=True, help="Random seed.")
-@click.option("--workers", type=click.IntRange(min=1), default=_cpus,
-              show_default="the CPUs this process may use",
-              help="Local processes (results do not depend on it).")
+@_seed_and_workers("Local processes")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) "
                    "instead of local processes; same results. Needs pooler[cluster].")
