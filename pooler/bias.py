@@ -535,26 +535,29 @@ def selection_ratio(y, v, tau2, etas=(2.0, 5.0, 10.0)) -> SelectionRatio | NotEs
     ka, kn = int(aff.sum()), int((~aff).sum())
     if len(y) < 2:
         return NotEstimable("needs at least 2 studies")
+    if kn == 0:
+        # up-weighting non-affirmative studies changes nothing when there are none: the
+        # "adjusted" estimates would all repeat the unadjusted one and read as robustness
+        return NotEstimable(f"every study is affirmative ({ka} of {ka}), so there is no "
+                            "non-affirmative study to up-weight: this sensitivity analysis "
+                            "cannot show what selection would do here (a literature of only "
+                            "significant results is itself a warning sign)")
     ests = tuple(eta_adjusted(y, v, tau2, e) for e in etas)
     w = 1 / (v + tau2)
-    if kn == 0:
-        worst: float | NotEstimable = NotEstimable("every study is affirmative: no "
-                                                   "non-affirmative study to fall back on")
-        s: float | NotEstimable = NotEstimable("every study is affirmative")
+    worst = float(np.dot(w[~aff], y[~aff]) / w[~aff].sum())
+    s: float | NotEstimable
+    sa, sn = float(np.dot(w[aff], y[aff])), float(np.dot(w[~aff], y[~aff]))
+    if eta_adjusted(y, v, tau2, 1.0) <= 0:
+        s = NotEstimable("the unadjusted estimate is already not above 0")
+    elif sn >= 0:
+        s = NotEstimable("no amount of selection brings the estimate to 0: even the "
+                         "non-affirmative studies alone give a positive estimate")
     else:
-        worst = float(np.dot(w[~aff], y[~aff]) / w[~aff].sum())
-        sa, sn = float(np.dot(w[aff], y[aff])), float(np.dot(w[~aff], y[~aff]))
-        if eta_adjusted(y, v, tau2, 1.0) <= 0:
-            s = NotEstimable("the unadjusted estimate is already not above 0")
-        elif sn >= 0:
-            s = NotEstimable("no amount of selection brings the estimate to 0: even the "
-                             "non-affirmative studies alone give a positive estimate")
-        else:
-            with np.errstate(all="ignore"):
-                s = -sa / sn  # solves Σ_A w y + η Σ_N w y = 0
-            if not math.isfinite(s):
-                s = NotEstimable("the non-affirmative studies sum to an effect of almost "
-                                 "exactly 0, so no finite selection ratio reaches 0")
+        with np.errstate(all="ignore"):
+            s = -sa / sn  # solves Σ_A w y + η Σ_N w y = 0
+        if not math.isfinite(s):
+            s = NotEstimable("the non-affirmative studies sum to an effect of almost "
+                             "exactly 0, so no finite selection ratio reaches 0")
     return SelectionRatio(tuple(etas), ests, worst, s, ka, kn)
 
 

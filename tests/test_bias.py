@@ -382,3 +382,13 @@ def test_realistic_interval_is_the_safeguard_interval():
     assert_allclose(iv.low, sc.pessimistic.effect, rtol=1e-12)
     ci = sc.realistic_interval(0.95)
     assert_allclose(ci.high - ci.low, 2 * stats.norm.ppf(0.975) * sc.realistic.se, rtol=1e-12)
+
+
+def test_selection_ratio_not_estimable_when_every_study_is_affirmative():
+    """Mathur & VanderWeele (2020) up-weight the non-affirmative studies; with none, every
+    "adjusted" estimate would repeat the unadjusted one and read as robustness (new-user
+    trial, inflated.csv): the analysis says it cannot inform instead."""
+    y = np.array([0.70, 0.75, 0.68, 0.80])
+    v = np.array([0.05, 0.06, 0.05, 0.07])       # every y > 1.96 SE
+    res = selection_ratio(y, v, 0.0)
+    assert not res and "every study is affirmative (4 of 4)" in str(res)
