@@ -25,8 +25,10 @@ sm_meta = pytest.importorskip("statsmodels.stats.meta_analysis")
 
 
 def make_effects(y, v, years=None, subgroups=None, metric="g") -> Effects:
-    units = tuple(Unit(label=f"S{i}", effect=float(a), variance=float(b), n_total=100.0,
-                       n1=50.0, n2=50.0, design="between", rows=(i + 2,),
+    # group sizes with 1/n1 + 1/n2 = v: the size-based variance of the regression methods
+    # (pooler.bias.size_variances) then equals v, as for any literature without effect in v
+    units = tuple(Unit(label=f"S{i}", effect=float(a), variance=float(b), n_total=4.0 / b,
+                       n1=2.0 / b, n2=2.0 / b, design="between", rows=(i + 2,),
                        year=None if years is None else years[i],
                        subgroup=None if subgroups is None else subgroups[i])
                   for i, (a, b) in enumerate(zip(y, v)))
