@@ -21,6 +21,9 @@ References
    of significant findings. *Clinical Trials*, 4(3), 245-253.
 .. [MV20] Mathur, M. B., & VanderWeele, T. J. (2020). Sensitivity analysis for publication
    bias in meta-analyses. *JRSS C*, 69(5), 1091-1119.
+.. [PR19] Pustejovsky, J. E., & Rodgers, M. A. (2019). Testing for funnel plot asymmetry of
+   standardized mean differences. *Research Synthesis Methods*, 10(1), 57-71 (the SE of a
+   standardised mean difference contains the effect itself; regress on a size-based SE).
 """
 from __future__ import annotations
 
@@ -87,37 +90,79 @@ def _fit_line(x, y, weights=None, level=0.95) -> Regression | NotEstimable:
     return Regression(b0, se0, Interval(b0 - t * se0, b0 + t * se0, level), p, b1, df)
 
 
-def egger_test(y, v) -> Regression | NotEstimable:
+def size_variances(studies, metric: str) -> np.ndarray:
+    """Each study's sampling variance at a zero effect: the precision that depends on its
+    size alone, the predictor of the regression methods (Egger, PET, PEESE).
+
+    The variance of a standardised mean difference contains the effect itself
+    (1/n1 + 1/n2 + d²/(2N) between groups, Borenstein et al. 2009 eq. 4.20; (1/n + d²/(2n))
+    2(1 - r) within, eq. 4.28), so a regression of g on its own SE finds "asymmetry" where the
+    studies merely differ in effect: with equal group sizes the SE varies only through g, and
+    PET's intercept ran to g = -14 for eight positive studies. Pustejovsky & Rodgers (2019)
+    regress on the size-based SE instead, as here: 1/n1 + 1/n2 between groups (4/N when only
+    the total N is known), 2(1 - r)/n within (Hedges' J, within 2 % of 1 for 20 people or more,
+    is left out as they do; a common factor would not move the intercept). Fisher z's variance
+    1/(n - 3) is already free of the effect, and a study without sizes keeps its variance.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace as S
+    >>> two = [S(variance=0.11, n1=20, n2=20, n_total=40, design="between", within_r=None)]
+    >>> float(size_variances(two, "g")[0])   # 1/20 + 1/20
+    0.1
+    """
+    out = []
+    for u in studies:
+        v = u.variance
+        if metric == "g" and u.design == "within" and u.n_total and u.within_r is not None:
+            v = 2 * (1 - u.within_r) / u.n_total
+        elif metric == "g" and u.design == "between" and u.n1 and u.n2:
+            v = 1 / u.n1 + 1 / u.n2
+        elif metric == "g" and u.design == "between" and u.n_total:
+            v = 4 / u.n_total
+        out.append(v)
+    return np.array(out, float)
+
+
+def _same_size(x) -> bool:
+    return bool(np.ptp(x) <= 1e-9 * np.max(x))
+
+
+_SAME_SIZE = NotEstimable("every study has the same size-based standard error, so there is no "
+                          "spread in precision to regress on (Pustejovsky & Rodgers 2019)")
+
+
+def egger_test(y, v, v0=None) -> Regression | NotEstimable:
     """Egger's regression test (Egger et al. 1997): OLS of y/SE on 1/SE; the intercept
-    measures funnel asymmetry (t test, k - 2 df)."""
+    measures funnel asymmetry (t test, k - 2 df). ``v0``: the size-based variances of
+    :func:`size_variances` for SE (default ``v``; Pustejovsky & Rodgers 2019)."""
     y, v = np.asarray(y, float), np.asarray(v, float)
+    x = v if v0 is None else np.asarray(v0, float)
     if len(y) < 3:
         return NotEstimable(f"Egger's test needs at least 3 studies (k = {len(y)})")
-    se = np.sqrt(v)
-    if np.ptp(se) == 0:
-        return NotEstimable("all studies have the same standard error")
-    return _fit_line(1 / se, y / se)
+    se = np.sqrt(x)
+    return _SAME_SIZE if _same_size(x) else _fit_line(1 / se, y / se)
 
 
-def pet(y, v) -> Regression | NotEstimable:
+def pet(y, v, v0=None) -> Regression | NotEstimable:
     """PET: WLS of y on SE with weights 1/SE² and multiplicative dispersion; the intercept
-    is the effect of a study with SE = 0 (Stanley & Doucouliagos 2014)."""
+    is the effect of a study with SE = 0 (Stanley & Doucouliagos 2014). ``v0`` as in
+    :func:`egger_test`."""
     y, v = np.asarray(y, float), np.asarray(v, float)
+    x = v if v0 is None else np.asarray(v0, float)
     if len(y) < 3:
         return NotEstimable(f"PET needs at least 3 studies (k = {len(y)})")
-    if np.ptp(v) == 0:
-        return NotEstimable("all studies have the same standard error")
-    return _fit_line(np.sqrt(v), y, 1 / v)
+    return _SAME_SIZE if _same_size(x) else _fit_line(np.sqrt(x), y, 1 / x)
 
 
-def peese(y, v) -> Regression | NotEstimable:
-    """PEESE: WLS of y on SE² with weights 1/SE² (Stanley & Doucouliagos 2014)."""
+def peese(y, v, v0=None) -> Regression | NotEstimable:
+    """PEESE: WLS of y on SE² with weights 1/SE² (Stanley & Doucouliagos 2014). ``v0`` as
+    in :func:`egger_test`."""
     y, v = np.asarray(y, float), np.asarray(v, float)
+    x = v if v0 is None else np.asarray(v0, float)
     if len(y) < 3:
         return NotEstimable(f"PEESE needs at least 3 studies (k = {len(y)})")
-    if np.ptp(v) == 0:
-        return NotEstimable("all studies have the same standard error")
-    return _fit_line(v, y, 1 / v)
+    return _SAME_SIZE if _same_size(x) else _fit_line(x, y, 1 / x)
 
 
 @dataclass(frozen=True)
@@ -491,7 +536,7 @@ def waap_wls(y, v) -> WaapWls | NotEstimable:
         return WaapWls(bw, sew, ciw, ka, b, thr, False,
                        f"{ka} adequately powered studies (SE <= {thr:.3f})")
     return WaapWls(b, se, ci, ka, b, thr, True,
-                   f"only {ka} adequately powered stud{'y' if ka == 1 else 'ies'} "
+                   ("no study is" if ka == 0 else "only 1 study is") + " adequately powered "
                    f"(SE <= {thr:.3f}): WLS on all studies reported instead")
 
 
@@ -535,26 +580,29 @@ def selection_ratio(y, v, tau2, etas=(2.0, 5.0, 10.0)) -> SelectionRatio | NotEs
     ka, kn = int(aff.sum()), int((~aff).sum())
     if len(y) < 2:
         return NotEstimable("needs at least 2 studies")
+    if kn == 0:
+        # up-weighting non-affirmative studies changes nothing when there are none: the
+        # "adjusted" estimates would all repeat the unadjusted one and read as robustness
+        return NotEstimable(f"every study is affirmative ({ka} of {ka}), so there is no "
+                            "non-affirmative study to up-weight: this sensitivity analysis "
+                            "cannot show what selection would do here (a literature of only "
+                            "significant results is itself a warning sign)")
     ests = tuple(eta_adjusted(y, v, tau2, e) for e in etas)
     w = 1 / (v + tau2)
-    if kn == 0:
-        worst: float | NotEstimable = NotEstimable("every study is affirmative: no "
-                                                   "non-affirmative study to fall back on")
-        s: float | NotEstimable = NotEstimable("every study is affirmative")
+    worst = float(np.dot(w[~aff], y[~aff]) / w[~aff].sum())
+    s: float | NotEstimable
+    sa, sn = float(np.dot(w[aff], y[aff])), float(np.dot(w[~aff], y[~aff]))
+    if eta_adjusted(y, v, tau2, 1.0) <= 0:
+        s = NotEstimable("the unadjusted estimate is already not above 0")
+    elif sn >= 0:
+        s = NotEstimable("no amount of selection brings the estimate to 0: even the "
+                         "non-affirmative studies alone give a positive estimate")
     else:
-        worst = float(np.dot(w[~aff], y[~aff]) / w[~aff].sum())
-        sa, sn = float(np.dot(w[aff], y[aff])), float(np.dot(w[~aff], y[~aff]))
-        if eta_adjusted(y, v, tau2, 1.0) <= 0:
-            s = NotEstimable("the unadjusted estimate is already not above 0")
-        elif sn >= 0:
-            s = NotEstimable("no amount of selection brings the estimate to 0: even the "
-                             "non-affirmative studies alone give a positive estimate")
-        else:
-            with np.errstate(all="ignore"):
-                s = -sa / sn  # solves Σ_A w y + η Σ_N w y = 0
-            if not math.isfinite(s):
-                s = NotEstimable("the non-affirmative studies sum to an effect of almost "
-                                 "exactly 0, so no finite selection ratio reaches 0")
+        with np.errstate(all="ignore"):
+            s = -sa / sn  # solves Σ_A w y + η Σ_N w y = 0
+        if not math.isfinite(s):
+            s = NotEstimable("the non-affirmative studies sum to an effect of almost "
+                             "exactly 0, so no finite selection ratio reaches 0")
     return SelectionRatio(tuple(etas), ests, worst, s, ka, kn)
 
 
@@ -564,7 +612,8 @@ def selection_ratio(y, v, tau2, etas=(2.0, 5.0, 10.0)) -> SelectionRatio | NotEs
 class BiasData:
     """What every registered method is given: the pooled studies' effects ``y`` and
     variances ``v``, the pooled τ², the τ² estimator and interval method to reuse, the metric,
-    and ``earlier``: the results of the methods registered before it, by key."""
+    ``earlier``: the results of the methods registered before it, by key, and ``v0``: the
+    size-based variances of :func:`size_variances` (the regression methods' predictor)."""
 
     y: np.ndarray
     v: np.ndarray
@@ -573,6 +622,7 @@ class BiasData:
     interval: str
     metric: str
     earlier: Mapping[str, object]
+    v0: np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -735,12 +785,12 @@ def _worst_case_rung(r) -> tuple | None:
 
 
 for _m in (
-    BiasMethod("egger", "Egger's test", lambda d: egger_test(d.y, d.v), "Egger et al., 1997",
+    BiasMethod("egger", "Egger's test", lambda d: egger_test(d.y, d.v, d.v0), "Egger et al., 1997",
                table_label="Egger's test", phrase="Egger's regression test", ladder=False,
                table_row=_egger_row),
-    BiasMethod("pet", "PET", lambda d: pet(d.y, d.v), "Stanley & Doucouliagos, 2014",
+    BiasMethod("pet", "PET", lambda d: pet(d.y, d.v, d.v0), "Stanley & Doucouliagos, 2014",
                table_label="PET", note=lambda r: f"intercept {p_text(r.p)}"),
-    BiasMethod("peese", "PEESE", lambda d: peese(d.y, d.v), "Stanley & Doucouliagos, 2014",
+    BiasMethod("peese", "PEESE", lambda d: peese(d.y, d.v, d.v0), "Stanley & Doucouliagos, 2014",
                table_label="PEESE", note=lambda r: f"slope on SE^2 = {r.slope:.2f}"),
     BiasMethod("pet_peese", "PET-PEESE",
                lambda d: pet_peese(d.earlier["pet"], d.earlier["peese"]),
@@ -853,7 +903,8 @@ def bias_suite(pooled, tau2_estimator=None, interval=None) -> BiasResult:
     done: dict[str, object] = {}
     data = BiasData(np.array(pooled.effects), np.array(pooled.variances), pooled.tau2,
                     tau2_estimator or pooled.estimator, interval or pooled.interval,
-                    pooled.metric, MappingProxyType(done))
+                    pooled.metric, MappingProxyType(done),
+                    size_variances(pooled.studies, pooled.metric))
     registered = methods()
     for m in registered:
         done[m.key] = m.compute(data)

@@ -13,7 +13,7 @@ METRICS = ("d", "r")
 #: ``--estimator``: the between-study variance estimators of ``pooler.pooling``.
 ESTIMATORS = ("reml", "ml", "pm", "dl")
 #: ``--interval``: Hartung-Knapp-Sidik-Jonkman or Wald.
-INTERVALS = ("hksj", "wald")
+INTERVALS = ("hksj", "hksj-plain", "wald")
 #: ``--adjuster``: the default rule (the model average), the earlier safeguard rule, the median
 #: rule, then one value per bias method that can
 #: set the planning effect, in planning order (``pooler.bias.adjuster_choices()``).

@@ -251,7 +251,8 @@ def _pooling_options(f):
     f = click.option("--interval", type=click.Choice(list(INTERVALS)),
                      default=ANALYSIS_DEFAULTS["interval"], show_default=True,
                      help="Interval for the mean: Hartung-Knapp-Sidik-Jonkman (t, k-1 df) "
-                          "or Wald (normal).")(f)
+                          "never narrower than Wald's SE (hksj), the same untruncated "
+                          "(hksj-plain), or Wald (normal).")(f)
     f = click.option("--estimator", type=click.Choice(list(ESTIMATORS)),
                      default=ANALYSIS_DEFAULTS["estimator"], show_default=True,
                      help="Between-study variance estimator: REML, ML, Paule-Mandel, "

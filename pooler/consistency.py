@@ -136,8 +136,11 @@ def check_p(parsed: Parsed, df: float | None, df1: float | None, n: float | None
     sig_printed = p.significant
     sig_recomputed = point < ALPHA
     name = _stat_text(parsed, df, df1, n)
-    msg = (f"the printed {p.text()} does not match {name}, which gives p = {point:.4f} "
-           f"(between {lo:.4f} and {hi:.4f} allowing for the rounding of the statistic)")
+    # the end of the recomputed interval nearest the printed p, rounded as the p was printed
+    near, end = (lo, "smallest") if lo > phi else (hi, "largest")
+    msg = (f"the printed {p.text()} does not match {name}, which gives p = {point:.4f}; "
+           f"allowing for the rounding of the statistic, its {end} p is {near:.6f}, which "
+           f"rounds to {near:.{p.number.decimals}f}")
     if sig_printed != sig_recomputed:
         msg += ("; the difference moves the result across .05 "
                 f"({'significant' if sig_printed else 'not significant'} as printed, "

@@ -413,6 +413,28 @@ def _within_r(ctx: _Ctx, rec: Record, raw_notes: list[str]) -> float:
     return r
 
 
+def _n_from_df(df: float, offset: float, notes: list[str]) -> float:
+    """Total N from a df when no n is given: df + offset, the next whole number when the df
+    is fractional (a Welch test's df is at most n1 + n2 - 2, so N is at least df + 2, and the
+    smallest whole N gives the largest, i.e. the cautious, variance).
+
+    Examples
+    --------
+    >>> notes = []
+    >>> _n_from_df(45.3, 2.0, notes), notes[0][:40]
+    (48.0, 'df = 45.3 is not a whole number (Welch?)')
+    """
+    n = df + offset
+    if abs(n - round(n)) < 1e-9:
+        notes.append(f"total N taken as df + {offset:g} = {n:g}")
+        return float(round(n))
+    whole = float(math.ceil(n))
+    notes.append(f"df = {df:g} is not a whole number (Welch?): the total N is at least df + "
+                 f"{offset:g} = {n:g}, taken as {whole:g}, the smallest whole N it allows and "
+                 "the cautious choice; give n1 and n2 for the exact sizes")
+    return whole
+
+
 def _groups(ctx: _Ctx, rec: Record, notes: list[str], *, df_offset: float = 2.0,
             allow_df: bool = True) -> tuple[float, float]:
     """Group sizes from n1/n2, else an equal split of n or df + 2 (flagged)."""
@@ -434,9 +456,7 @@ def _groups(ctx: _Ctx, rec: Record, notes: list[str], *, df_offset: float = 2.0,
         return n1, n2
     n = rec.get("n")
     if n is None and allow_df and rec.get("df") is not None:
-        df = ctx.positive(rec, "df", "")
-        n = df + df_offset
-        notes.append(f"total N taken as df + {df_offset:g} = {n:g}")
+        n = _n_from_df(ctx.positive(rec, "df", ""), df_offset, notes)
     if n is None:
         raise ctx.err(rec, "n1", "group sizes are missing; give n1 and n2 "
                                  "(or the total n, which is then split equally)")
@@ -576,8 +596,7 @@ def _r_groups(ctx: _Ctx, rec: Record, notes: list[str]) -> tuple[float, float | 
         return n1 + n2, n1, n2
     n = rec.get("n")
     if n is None and rec.get("df") is not None:
-        n = ctx.positive(rec, "df", "") + 2
-        notes.append(f"N taken as df + 2 = {n:g}")
+        n = _n_from_df(ctx.positive(rec, "df", ""), 2.0, notes)
     if n is None:
         raise ctx.err(rec, "n", f"'n' is empty; a {rec.stat} needs the total N")
     return n, None, None

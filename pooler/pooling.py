@@ -33,7 +33,21 @@ from .choices import ESTIMATORS, INTERVALS
 from .errors import OptionError
 ESTIMATOR_NAMES = {"reml": "restricted maximum likelihood (REML)", "ml": "maximum likelihood",
                    "pm": "Paule-Mandel", "dl": "DerSimonian-Laird"}
-INTERVAL_NAMES = {"hksj": "Hartung-Knapp-Sidik-Jonkman", "wald": "Wald (normal)"}
+INTERVAL_NAMES = {"hksj": "Hartung-Knapp-Sidik-Jonkman (never narrower than Wald)",
+                  "hksj-plain": "Hartung-Knapp-Sidik-Jonkman (untruncated)",
+                  "wald": "Wald (normal)"}
+
+
+def _hk_factor(q, df, floor):
+    """The Hartung-Knapp variance factor q / (k - 1), where q = Σ w (y - μ)²; with ``floor``
+    it is kept at 1 or more (the ad hoc modification of Knapp & Hartung 2003, studied by
+    Röver, Knapp & Friede 2015, *BMC Med Res Methodol* 15:99), so that the interval is never
+    narrower than the Wald interval's standard error with the t quantile. Without it, a
+    literature whose studies agree more closely than their sampling errors imply (Q < k - 1)
+    gets an interval narrower than even the common-effect one: two small, near-identical
+    studies then give an SE near 0."""
+    f = np.maximum(q, 0.0) / df
+    return np.maximum(f, 1.0) if floor else f
 
 
 # ------------------------------------------------------------------ τ² estimators
@@ -250,12 +264,25 @@ class Fit:
 def random_effects(y, v, estimator="reml", interval="hksj", level=0.95) -> Fit:
     """Random-effects estimate of the mean with the chosen τ² estimator and interval.
 
-    ``hksj``: SE² = Σ w (y - μ)² / ((k - 1) Σ w) with t(k - 1) (Hartung & Knapp 2001;
-    Sidik & Jonkman 2002). ``wald``: SE² = 1 / Σ w with the normal distribution.
+    ``hksj-plain``: SE² = Σ w (y - μ)² / ((k - 1) Σ w) with t(k - 1) (Hartung & Knapp 2001;
+    Sidik & Jonkman 2002). ``hksj`` (the default): the same with the variance factor
+    Σ w (y - μ)² / (k - 1) floored at 1 (Knapp & Hartung 2003; Röver, Knapp & Friede 2015),
+    so never narrower than the Wald SE. ``wald``: SE² = 1 / Σ w with the normal distribution.
+
+    Examples
+    --------
+    Two near-identical small studies: untruncated, the interval collapses; floored, it is
+    as wide as one degree of freedom implies.
+
+    >>> y, v = [0.68, 0.685], [0.1, 0.1]
+    >>> round(random_effects(y, v, interval="hksj-plain").se, 4)
+    0.0025
+    >>> round(random_effects(y, v).se, 4), round(random_effects(y, v, interval="wald").se, 4)
+    (0.2236, 0.2236)
     """
     from scipy import special
     if interval not in INTERVALS:
-        raise OptionError(f"`interval` must be 'hksj' or 'wald', not {interval!r}")
+        raise OptionError(f"`interval` must be one of {', '.join(INTERVALS)}, not {interval!r}")
     y = np.asarray(y, float)
     v = np.asarray(v, float)
     k = len(y)
@@ -263,8 +290,9 @@ def random_effects(y, v, estimator="reml", interval="hksj", level=0.95) -> Fit:
     tau2 = tf.tau2 if math.isfinite(tf.tau2) else 0.0
     w = 1.0 / (v + tau2)
     mu = _wmean(y, w)
-    if interval == "hksj" and k >= 2:
-        se = math.sqrt(float(np.dot(w, (y - mu) ** 2)) / ((k - 1) * w.sum()))
+    if interval.startswith("hksj") and k >= 2:
+        factor = _hk_factor(float(np.dot(w, (y - mu) ** 2)), k - 1, interval == "hksj")
+        se = math.sqrt(factor / w.sum())
         df = k - 1
         crit = special.stdtrit(df, 0.5 + level / 2)
         p = float(2 * special.stdtr(df, -abs(mu / se))) if se > 0 else (0.0 if mu else 1.0)
@@ -611,8 +639,8 @@ def _many_fits(y, v, sums, sizes, estimator, interval, level):
 
     # the mean and its interval at each subset's τ² (as in random_effects)
     df = np.maximum(sizes - 1, 1)
-    if interval == "hksj":
-        se = np.sqrt(np.maximum(q, 0.0) / (df * sw))
+    if interval.startswith("hksj"):
+        se = np.sqrt(_hk_factor(q, df, interval == "hksj") / sw)
         crit = special.stdtrit(df, 0.5 + level / 2)
     else:
         se = np.sqrt(1.0 / sw)
@@ -752,7 +780,9 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
     effects : Effects
         From :func:`pooler.convert`.
     estimator : {"reml", "ml", "pm", "dl"}
-    interval : {"hksj", "wald"}
+    interval : {"hksj", "hksj-plain", "wald"}
+        Hartung-Knapp-Sidik-Jonkman with the variance factor floored at 1 (default; never
+        narrower than Wald), without the floor, or Wald.
     level : float
         Confidence level of every interval.
     influence : bool
@@ -785,7 +815,7 @@ def pool_studies(studies, metric, estimator="reml", interval="hksj", level=0.95,
     if estimator not in ESTIMATORS:
         raise OptionError(f"`estimator` must be one of {', '.join(ESTIMATORS)}, not {estimator!r}")
     if interval not in INTERVALS:
-        raise OptionError(f"`interval` must be 'hksj' or 'wald', not {interval!r}")
+        raise OptionError(f"`interval` must be one of {', '.join(INTERVALS)}, not {interval!r}")
     if not 0 < level < 1:
         raise OptionError(f"`level` must lie in (0, 1), not {level!r}")
     units = tuple(studies)

@@ -382,3 +382,50 @@ def test_realistic_interval_is_the_safeguard_interval():
     assert_allclose(iv.low, sc.pessimistic.effect, rtol=1e-12)
     ci = sc.realistic_interval(0.95)
     assert_allclose(ci.high - ci.low, 2 * stats.norm.ppf(0.975) * sc.realistic.se, rtol=1e-12)
+
+
+def test_selection_ratio_not_estimable_when_every_study_is_affirmative():
+    """Mathur & VanderWeele (2020) up-weight the non-affirmative studies; with none, every
+    "adjusted" estimate would repeat the unadjusted one and read as robustness (new-user
+    trial, inflated.csv): the analysis says it cannot inform instead."""
+    y = np.array([0.70, 0.75, 0.68, 0.80])
+    v = np.array([0.05, 0.06, 0.05, 0.07])       # every y > 1.96 SE
+    res = selection_ratio(y, v, 0.0)
+    assert not res and "every study is affirmative (4 of 4)" in str(res)
+
+
+def test_regressions_on_size_based_se_with_equal_groups():
+    """Eight positive studies, all 20 per group (new-user trial, equal_n.csv): regressing g on
+    its own SE, whose square contains g²/(2N), gave Egger's intercept 47 and PET g = -14.4.
+    On the size-based SE (Pustejovsky & Rodgers 2019) there is no spread in precision, so the
+    three regressions say they cannot be fitted."""
+    from types import SimpleNamespace as S
+    from pooler.bias import egger_test, size_variances
+    from pooler.effects import d_variance, hedges_j
+    d = np.array([0.9, 0.7, 0.5, 0.8, 0.3, 0.6, 0.4, 0.55])
+    j = hedges_j(38)
+    y, v = j * d, j ** 2 * np.array([d_variance(x, 20, 20) for x in d])
+    units = [S(variance=b, n1=20, n2=20, n_total=40, design="between", within_r=None) for b in v]
+    v0 = size_variances(units, "g")
+    assert_allclose(v0, 0.1, rtol=1e-12)                    # 1/20 + 1/20
+    assert egger_test(y, v).p < 0.001                       # the artefact on the raw SE
+    for fit in (egger_test(y, v, v0), pet(y, v, v0), peese(y, v, v0)):
+        assert not fit and "same size-based standard error" in str(fit)
+
+
+def test_size_based_se_regression_matches_statsmodels_wls():
+    """PET on the size-based SE (Pustejovsky & Rodgers 2019): WLS of g on sqrt(v0) with
+    weights 1/v0, compared with statsmodels WLS (its intercept and SE)."""
+    import statsmodels.api as sm
+    from types import SimpleNamespace as S
+    from pooler.bias import size_variances
+    rng = np.random.default_rng(11)
+    n1 = rng.integers(10, 80, 9).astype(float)
+    n2 = n1 + rng.integers(0, 10, 9)
+    y = rng.normal(0.4, 0.2, 9)
+    units = [S(variance=0.1, n1=a, n2=b, n_total=a + b, design="between", within_r=None)
+             for a, b in zip(n1, n2)]
+    v0 = size_variances(units, "g")
+    ref = sm.WLS(y, sm.add_constant(np.sqrt(v0)), weights=1 / v0).fit()
+    fit = pet(y, np.full(9, 0.1), v0)
+    assert_allclose([fit.estimate, fit.se], [ref.params[0], ref.bse[0]], rtol=1e-10)

@@ -98,6 +98,15 @@ def test_t_with_df_only_splits_equally_and_says_so(write_sheet):
     assert any("equal split" in w for w in eff.warnings)
 
 
+def test_welch_df_without_n_takes_the_smallest_whole_n(write_sheet):
+    """A Welch df (45.3) is at most n1 + n2 - 2, so N >= 47.3: the smallest whole N, 48, is
+    taken (the largest variance any consistent N gives) and the note says so."""
+    r, eff = one(write_sheet, stat="t", value=2.1, df=45.3)
+    assert r.n_total == 48
+    assert_allclose(r.effect, hedges_j(46) * 2.1 * math.sqrt(2 / 24), rtol=1e-12)
+    assert any("not a whole number" in n and "taken as 48" in n for n in r.notes)
+
+
 def test_f_one_df_equals_t(write_sheet):
     rt, _ = one(write_sheet, stat="t", value=-2.5, n1=20, n2=22)
     rf, _ = one(write_sheet, stat="F", value=6.25, df1=1, n1=20, n2=22, direction="-")

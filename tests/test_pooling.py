@@ -25,8 +25,10 @@ sm_meta = pytest.importorskip("statsmodels.stats.meta_analysis")
 
 
 def make_effects(y, v, years=None, subgroups=None, metric="g") -> Effects:
-    units = tuple(Unit(label=f"S{i}", effect=float(a), variance=float(b), n_total=100.0,
-                       n1=50.0, n2=50.0, design="between", rows=(i + 2,),
+    # group sizes with 1/n1 + 1/n2 = v: the size-based variance of the regression methods
+    # (pooler.bias.size_variances) then equals v, as for any literature without effect in v
+    units = tuple(Unit(label=f"S{i}", effect=float(a), variance=float(b), n_total=4.0 / b,
+                       n1=2.0 / b, n2=2.0 / b, design="between", rows=(i + 2,),
                        year=None if years is None else years[i],
                        subgroup=None if subgroups is None else subgroups[i])
                   for i, (a, b) in enumerate(zip(y, v)))
@@ -62,8 +64,12 @@ def test_dl_and_pm_match_statsmodels():
             fit = random_effects(y, v, est, "wald")
             assert_allclose(fit.mu, ref.mean_effect_re, rtol=1e-8)
             assert_allclose(fit.se, ref.sd_eff_w_re, rtol=1e-8)
-            hk = random_effects(y, v, est, "hksj")
+            # statsmodels computes the untruncated Hartung-Knapp SE; the default floors the
+            # variance factor at 1 (Knapp & Hartung 2003): the larger of the two SEs
+            hk = random_effects(y, v, est, "hksj-plain")
             assert_allclose(hk.se, ref.sd_eff_w_re_hksj, rtol=1e-8)
+            floored = random_effects(y, v, est, "hksj")
+            assert_allclose(floored.se, max(ref.sd_eff_w_re_hksj, ref.sd_eff_w_re), rtol=1e-8)
         res = pool(make_effects(y, v), "dl", "wald")
         assert_allclose([res.fixed.estimate, res.fixed.se], [dl.mean_effect_fe, dl.sd_eff_w_fe],
                         rtol=1e-10)
@@ -107,15 +113,30 @@ def test_tau2_zero_gives_fixed_effect_exactly():
 
 def test_hksj_by_hand():
     # Hartung & Knapp (2001); Sidik & Jonkman (2002): q = sum w (y - mu)^2 / (k - 1),
-    # SE^2 = q / sum w, CI mu +- t(k-1) SE
+    # SE^2 = q / sum w, CI mu +- t(k-1) SE; the default floors q at 1 (Knapp & Hartung
+    # 2003, the "ad hoc" modification; Röver, Knapp & Friede 2015, BMC Med Res Methodol 15:99)
     y, v = next(datasets(seed=5))
-    fit = random_effects(y, v, "reml", "hksj")
-    w = 1 / (v + fit.tau2)
-    mu = np.sum(w * y) / w.sum()
-    se = math.sqrt(np.sum(w * (y - mu) ** 2) / ((len(y) - 1) * w.sum()))
     t = stats.t.ppf(0.975, len(y) - 1)
-    assert_allclose([fit.mu, fit.se, fit.ci.low, fit.ci.high],
-                    [mu, se, mu - t * se, mu + t * se], rtol=1e-12)
+    for interval, floor in (("hksj-plain", 0.0), ("hksj", 1.0)):
+        fit = random_effects(y, v, "reml", interval)
+        w = 1 / (v + fit.tau2)
+        mu = np.sum(w * y) / w.sum()
+        q = np.sum(w * (y - mu) ** 2) / (len(y) - 1)
+        se = math.sqrt(max(q, floor) / w.sum())
+        assert_allclose([fit.mu, fit.se, fit.ci.low, fit.ci.high],
+                        [mu, se, mu - t * se, mu + t * se], rtol=1e-12)
+    assert q < 1    # this data set shows the floor at work
+
+
+def test_two_near_identical_studies_do_not_collapse_the_interval():
+    """Two small studies that agree to the second decimal (the new-user trial's twins.csv):
+    untruncated Hartung-Knapp gives an SE near 0; the default's interval contains the
+    common-effect one (Röver, Knapp & Friede 2015 describe exactly this failure)."""
+    y, v = np.array([0.680, 0.684]), np.array([0.099, 0.101])
+    res = pool(make_effects(y, v))
+    plain = pool(make_effects(y, v), interval="hksj-plain")
+    assert plain.pooled.se < 0.01
+    assert res.pooled.ci.low <= res.fixed.ci.low and res.pooled.ci.high >= res.fixed.ci.high
 
 
 def test_prediction_interval_by_hand():

@@ -206,3 +206,14 @@ def test_one_tailed_p_is_halved(tmp_path):
     parsed = parse_reported("t(58) = 2.41, p = .010")
     assert check_p(parsed, 58, None, None, tails=1) is None
     assert check_p(parsed, 58, None, None, tails=2) is not None
+
+
+def test_a_rounding_edge_says_which_end_misses_the_printed_p():
+    """F(1, 212) = 4.12 stands for [4.115, 4.125], whose smallest p (scipy.stats.f.sf(4.125,
+    1, 212) = 0.043502) rounds to .044: the printed .043 misses by 2e-6, and the message
+    shows that number instead of two values that look alike at 4 decimals."""
+    from scipy import stats
+    parsed = parse_reported("F(1, 212) = 4.12, p = .043")
+    msg, moves, _ = check_p(parsed, 212, 1, None)
+    assert f"{stats.f.sf(4.125, 1, 212):.6f}" == "0.043502"
+    assert "its smallest p is 0.043502, which rounds to 0.044" in msg and not moves
