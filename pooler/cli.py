@@ -845,8 +845,6 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
       pooler paths demo_literature/garden_paths.csv --design parallel-mediation --out garden
     """
     from .errors import OptionError
-    from .pathsreport import methods_paragraph, plan_text, power_text, render_files
-    from . import simdesign as sd
     mediation_opts = {"--a": a_paths, "--b": b_paths, "--m1-m2": m1_m2}
     moderation_opts = {"--x-effect": x_effect, "--interaction": interaction,
                        "--slope-high": slope_high, "--slope-low": slope_low}
@@ -893,144 +891,115 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
              "M2-Y": "--b twice: M1-Y, then M2-Y",
              "X-Y": "--x-effect, or --slope-high and --slope-low",
              "XZ-Y": "--interaction, or --slope-high and --slope-low"}
-    ps = None
     if pair_values and not sheet:
         raise OptionError("--pair gives a pair's correlation for a SHEET of path literatures; "
                           "without one, give the paths with --a, --b, --direct, ...")
+    names: dict = {}
     if sheet:
-        from .pathsheet import pool_paths
         if design_name == "moderation":
-            raise OptionError("a SHEET of path literatures feeds the mediation designs; give "
-                              "a moderation's paths as options")
-        if paths_file or as_correlations:
-            raise OptionError("give the paths either in SHEET or in --paths-file, not both")
-        if mediator_r:
-            raise OptionError("--mediator-r does not apply with a SHEET: the mediators' "
-                              "residual correlation follows from their correlation (rows "
-                              "for M1-M2, or --m1-m2)")
-        pairs, names = {}, {}
-        a_, b_ = list(a_paths), list(b_paths)
-        if design_name == "simple-mediation":
-            if len(a_) > 1 or len(b_) > 1:
-                raise OptionError("simple mediation takes one --a and one --b")
-            med = ["M"]
+            used = [k for k, v in moderation_opts.items() if v is not None]
+            if used or z_effect is not None:
+                raise OptionError(f"{', '.join(used or ['--z-effect'])}: with a SHEET the "
+                                  "moderation's pairs come from its rows; give a pair without "
+                                  "rows with --pair (e.g. --pair Z-Y=0.1)")
+            given = {}
+            if xz_r:
+                given["X-Z"], names["X-Z"] = xz_r, "--xz-r (r of X and Z)"
         else:
-            med = [f"M{i}" for i in range(1, max(len(a_), len(b_), 2) + 1)]
-        for i, v in enumerate(a_):
-            pairs[f"X-{med[i]}"], names[f"X-{med[i]}"] = v, f"--a #{i + 1} (r of X and {med[i]})"
-        for i, v in enumerate(b_):
-            pairs[f"{med[i]}-Y"], names[f"{med[i]}-Y"] = v, f"--b #{i + 1} (r of {med[i]} and Y)"
-        if direct is not None:
-            pairs["X-Y"], names["X-Y"] = direct, "--direct (r of X and Y)"
-        if m1_m2 is not None:
-            pairs["M1-M2"], names["M1-M2"] = m1_m2, "--m1-m2 (r of M1 and M2)"
-        from .pathsheet import split_path
-        for text in pair_values:
-            key, eq, val = text.partition("=")
-            pr = split_path(key)
-            try:
-                r = float(val) if eq else None
-            except ValueError:
-                r = None
-            if pr is None or r is None:
-                raise OptionError(f"--pair {text!r}: write a pair and its correlation, "
-                                  "e.g. --pair X-M2=0.2")
-            k = "-".join(pr)
-            if k in pairs or "-".join(pr[::-1]) in pairs:
-                raise OptionError(f"--pair {text!r}: the pair {k} is given twice")
-            pairs[k], names[k] = r, f"--pair {text}"
-        ps = pool_paths(sheet, design_name, pairs, option_names=names)
-        _echo_warnings(ps.warnings)
-        scenarios = dict(ps.designs)
-    elif as_correlations:
-        if not paths_file:
-            raise OptionError("--correlations reads the correlations from --paths-file")
-        if design_name == "moderation":
-            raise OptionError("--correlations applies to the mediation designs only")
+            given, names = _mediation_pairs(design_name, a_paths, b_paths, direct, m1_m2)
+        for key, (r, how) in _pair_values(pair_values, given).items():
+            given[key], names[key] = r, how
+    elif paths_file and as_correlations:
         extra = [k for k, v in {**mediation_opts, "--direct": direct,
                                 "--mediator-r": mediator_r or None}.items() if v]
+        if design_name == "moderation":
+            raise OptionError("--correlations applies to the mediation designs only")
         if extra:
             raise OptionError(f"with --correlations every path comes from the correlations; "
                               f"drop {', '.join(extra)}")
-        scenarios = {label: sd.design_from_correlations(design_name, values)
-                     for label, values in sd.read_paths_file(paths_file).items()}
-    elif paths_file:
-        scenarios = {}
-        for label, values in sd.read_paths_file(paths_file).items():
-            both = sorted(set(values) & set(given))
-            if both:
-                raise OptionError(f"{', '.join(both)} is given both in {paths_file} "
-                                  f"(scenario {label}) and as an option; give it once")
-            scenarios[label] = sd.design_from_paths(design_name, {**given, **values},
-                                                    hints=hints, **settings)
-    else:
-        scenarios = {"": sd.design_from_paths(design_name, given, hints=hints, **settings)}
     if out_dir:
         from .outputs import check_out
         check_out(out_dir, force)
-    bar = None
-    if sys.stderr.isatty():
-        def bar(done, total):
-            filled = int(30 * done / total)
-            click.echo(f"\rsimulating [{'#' * filled}{'.' * (30 - filled)}] {done}/{total}",
-                       err=True, nl=done == total)
-    common = dict(test=test_name, alpha=alpha, seed=seed, draws=draws, resamples=resamples,
-                  workers=workers, scheduler=scheduler, progress=bar)
-    note = ""
-    if test_name == "sobel":
-        note = ("Sobel's test is shown for comparison only: it is low-powered "
-                "(MacKinnon et al. 2002); plan with joint, monte-carlo or bootstrap.")
-    if fixed_n is not None:
-        res = [sd.simulate_power(d, fixed_n, reps=reps, stream=i, **common)
-               for i, d in enumerate(scenarios.values())]
-        if as_json:
-            doc = {"schema": "pooler.paths-power/1",
-                   "scenarios": [dict(r.to_dict(), scenario=lab)
-                                 for lab, r in zip(scenarios, res)]}
-            if ps is not None:
-                doc["paths"] = ps.to_dict()
-            _print_json(doc)
-        else:
-            if ps is not None:
-                from .pathsreport import paths_sheet_text
-                click.echo(paths_sheet_text(ps))
-            click.echo("\n".join((f"{lab}: " if lab else "") + power_text(r)
-                                  for lab, r in zip(scenarios, res)) + note, nl=bool(note))
-        return
-    search_reps = reps or (200 if test_name == "bootstrap" else 1000)
-    common.pop("workers"), common.pop("scheduler")
-    with_pool = dict(workers=workers, scheduler=scheduler)
-    results = sd.plan_paths(scenarios, powers=powers or (0.8, 0.9, 0.95), reps=search_reps,
-                            **common, **with_pool)
-    test_used = results[0].test
-    methods = methods_paragraph(results, search_reps, draws, resamples)
-    options = {"design": design_name, "test": test_used, "alpha": alpha, "reps": search_reps,
-               "draws": draws, "resamples": resamples, "seed": seed,
-               "paths_file": paths_file, "sheet": sheet}
+    from .pathsjob import paths_job
+    job = paths_job(design_name, sheet=sheet or None, given=given, option_names=names,
+                    paths_file=paths_file, as_correlations=as_correlations, settings=settings,
+                    hints=hints, test=test_name, fixed_n=fixed_n, powers=powers, alpha=alpha,
+                    reps=reps, draws=draws, resamples=resamples, seed=seed, workers=workers,
+                    scheduler=scheduler, progress=_simulation_bar())
+    _echo_paths_job(job, out_dir if fixed_n is None else None, fmt, force, as_json)
+
+
+def _mediation_pairs(design_name, a_paths, b_paths, direct, m1_m2):
+    """With a SHEET, --a, --b, --direct and --m1-m2 give the correlations of mediation pairs
+    without rows: pair -> value and pair -> how it was given."""
+    from .errors import OptionError
+    pairs, names = {}, {}
+    a_, b_ = list(a_paths), list(b_paths)
+    if design_name == "simple-mediation":
+        if len(a_) > 1 or len(b_) > 1:
+            raise OptionError("simple mediation takes one --a and one --b")
+        med = ["M"]
+    else:
+        med = [f"M{i}" for i in range(1, max(len(a_), len(b_), 2) + 1)]
+    for i, v in enumerate(a_):
+        pairs[f"X-{med[i]}"], names[f"X-{med[i]}"] = v, f"--a #{i + 1} (r of X and {med[i]})"
+    for i, v in enumerate(b_):
+        pairs[f"{med[i]}-Y"], names[f"{med[i]}-Y"] = v, f"--b #{i + 1} (r of {med[i]} and Y)"
+    if direct is not None:
+        pairs["X-Y"], names["X-Y"] = direct, "--direct (r of X and Y)"
+    if m1_m2 is not None:
+        pairs["M1-M2"], names["M1-M2"] = m1_m2, "--m1-m2 (r of M1 and M2)"
+    return pairs, names
+
+
+def _pair_values(pair_values, already) -> dict:
+    """--pair PAIR=R (repeatable) -> {pair: (r, how it was given)}."""
+    from .errors import OptionError
+    from .pathsheet import split_path
+    out: dict = {}
+    for text in pair_values:
+        key, eq, val = text.partition("=")
+        pr = split_path(key)
+        try:
+            r = float(val) if eq else None
+        except ValueError:
+            r = None
+        if pr is None or r is None:
+            raise OptionError(f"--pair {text!r}: write a pair and its correlation, "
+                              "e.g. --pair X-M2=0.2")
+        k = "-".join(pr)
+        if any(x in already or x in out for x in (k, "-".join(pr[::-1]))):
+            raise OptionError(f"--pair {text!r}: the pair {k} is given twice")
+        out[k] = (r, f"--pair {text}")
+    return out
+
+
+def _simulation_bar():
+    """A progress bar on stderr for the simulations, only when stderr is a terminal."""
+    if not sys.stderr.isatty():
+        return None
+
+    def bar(done, total):
+        filled = int(30 * done / total)
+        click.echo(f"\rsimulating [{'#' * filled}{'.' * (30 - filled)}] {done}/{total}",
+                   err=True, nl=done == total)
+    return bar
+
+
+def _echo_paths_job(job, out_dir, fmt, force, as_json):
+    """Warnings, files into out_dir (if any), then the JSON document or the text."""
+    _echo_warnings(job.warnings)
+    paths = []
     if out_dir:
         from .outputs import write
-        if ps is not None:
-            from .pathsreport import render_sheet_files
-            files = render_sheet_files(results, ps, options, methods, fmt)
-        else:
-            files = render_files(results, options, methods, fmt)
-        paths = write(files, out_dir, force=force)
+        paths = write(job.files(fmt), out_dir, force=force)
     if as_json:
-        from .pathsreport import SCHEMA
-        doc = {"schema": SCHEMA, "scenarios": [r.to_dict() for r in results],
-               "options": options, "methods": methods}
-        if ps is not None:
-            from .pathsreport import sheet_methods_paragraph
-            doc["paths"] = ps.to_dict()
-            doc["methods"] = sheet_methods_paragraph(ps) + " " + methods
-        _print_json(doc)
-    else:
-        if ps is not None:
-            from .pathsreport import paths_sheet_text
-            click.echo(paths_sheet_text(ps))
-        click.echo(plan_text(results, note))
-        if out_dir:
-            click.echo(f"Written to {out_dir}/: " + ", ".join(p.name for p in paths))
+        _print_json(job.to_dict())
+        return
+    text = job.text()
+    click.echo(text, nl=not text.endswith("\n"))
+    if paths:
+        click.echo(f"Written to {out_dir}/: " + ", ".join(p.name for p in paths))
 
 
 if __name__ == "__main__":  # pragma: no cover
