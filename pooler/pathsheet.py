@@ -334,7 +334,7 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
                 file=file, column=col))
     if problems:
         from .errors import InputErrors
-        raise InputErrors(problems)
+        raise InputErrors(sorted(problems, key=lambda e: (e.row is None, e.row or 0)))
 
     # each pair: pooled from its rows, or given
     pairs = all_pairs(variables)
