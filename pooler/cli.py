@@ -13,7 +13,7 @@ import click
 from ._threads import limit_before_numpy
 from .choices import (ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS, POWERS,
                       AnalysisOptions)
-from .design_choices import DESIGN_OPTIONS, PLANNED_DESIGNS, used_by
+from .design_choices import DESIGN_OPTIONS, PLANNED_DESIGNS, SIMULATED_DESIGNS, used_by
 from .errors import OptionError, PoolerError
 
 # One BLAS thread for the whole command (the reason is in pooler/_threads.py); this must run
@@ -341,10 +341,19 @@ def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
         click.echo(scenarios_text(a.scenarios, a.audit))
 
 
-def _planning_options(f):
+def _planning_options(f=None, *, simulated: bool = False):
+    if f is None:   # @_planning_options(simulated=True): also the simulated designs
+        return lambda g: _planning_options(g, simulated=simulated)
+    design_help = "The planned study's design."
+    if simulated:
+        design_help += (" The last four are simulated (" + ", ".join(SIMULATED_DESIGNS)
+                        + "): SHEET then needs a 'path' column naming the pair of variables "
+                        "each row links, and the run is the same as `pooler paths SHEET`.")
     opts = [
-        click.option("--design", type=click.Choice(list(PLANNED_DESIGNS)), default="two-group",
-                     show_default=True, help="The planned study's design."),
+        click.option("--design", type=click.Choice(list(PLANNED_DESIGNS)
+                                                   + (list(SIMULATED_DESIGNS) if simulated
+                                                      else [])),
+                     default="two-group", show_default=True, help=design_help),
         click.option("--alpha", type=float, default=0.05, show_default=True,
                      callback=_fraction(0, 0.5, percent=True,
                                         hint="the significance level, e.g. 0.05"),
@@ -525,6 +534,46 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
         click.echo(plan_text(p))
 
 
+def _simulation_options(f):
+    """The options of the simulated designs that `pooler paths` and `pooler run` share."""
+    opts = [
+        click.option("--pair", "pair_values", multiple=True, metavar="PAIR=R",
+                     help="With a SHEET: the correlation of a pair that has no rows, e.g. "
+                          "--pair X-M2=0.2 (any pair of the model; repeatable; used in every "
+                          "scenario)."),
+        click.option("--xz-r", type=float, default=0.0, show_default=True,
+                     help="Moderation: correlation of X and Z (with a SHEET: when X-Z has "
+                          "no rows)."),
+        click.option("--binary-moderator", is_flag=True,
+                     help="Moderation: Z is two equal groups instead of a continuous score."),
+        click.option("--test", "test_name", default=None,
+                     type=click.Choice(["joint", "monte-carlo", "bootstrap", "sobel"]),
+                     help="Test of the indirect effects [default: monte-carlo]; sobel only "
+                          "for comparison (low-powered)."),
+        click.option("--reps", type=click.IntRange(min=1), default=None,
+                     help="Replications per simulated n [default: 1,000 for the search, "
+                          "2,000 at --n; a fifth of that for the bootstrap]."),
+        click.option("--draws", type=click.IntRange(min=100), default=1000, show_default=True,
+                     help="Monte Carlo draws per replication (monte-carlo test)."),
+        click.option("--resamples", type=click.IntRange(min=100), default=1000,
+                     show_default=True,
+                     help="Bootstrap resamples per replication (bootstrap test)."),
+        _seed_and_workers("Local processes for the simulation"),
+        click.option("--scheduler", default=None, metavar="ADDRESS",
+                     help="Run the simulation on this dask.distributed scheduler (e.g. "
+                          "tcp://10.0.0.5:8786) instead of local processes; same results. "
+                          "Needs pooler[cluster]."),
+    ]
+    for o in reversed(opts):
+        f = o(f)
+    return f
+
+
+#: The parameters _simulation_options declares.
+_SIMULATION_PARAMS = ("pair_values", "xz_r", "binary_moderator", "test_name", "reps", "draws",
+                      "resamples", "seed", "workers", "scheduler")
+
+
 def _output_options(f):
     f = click.option("--force", is_flag=True,
                      help="Write into --out even if it is not empty and pooler did not "
@@ -597,9 +646,10 @@ def _whole_job(ctx, sheet, sheet_label, params):
 @main.command("run")
 @_sheet_argument
 @_analysis_options
-@_planning_options
+@_planning_options(simulated=True)
 @_output_options
 @_json_option
+@_simulation_options
 @click.pass_context
 def run_cmd(ctx, sheet, **params):
     """The whole job on SHEET: convert, pool, adjust for bias, plan, plot and report.
@@ -609,12 +659,76 @@ def run_cmd(ctx, sheet, **params):
     writes into --out: report.md, report.html (self-contained), results.json,
     planning_table.csv, effects.csv and four figures (forest, funnel, ladder, power).
 
+    With a simulated design (simple-mediation, parallel-mediation, serial-mediation,
+    moderation) SHEET has a 'path' column; each pair is pooled from its own rows and each
+    scenario's n is found by simulation, exactly as `pooler paths SHEET` does: the planning
+    table of every indirect effect (or the interaction), a power curve per scenario and a
+    path diagram. The simulation options (--test, --reps, --pair, ...) apply to these
+    designs only.
+
     \b
     Example:
       pooler run my_literature.csv --design two-group --out my_plan
       pooler run my_literature.csv --design paired --planned-r 0.6 --n 120 --format svg
+      pooler run demo_literature/garden_paths.csv --design parallel-mediation --test joint
     """
+    if params["design"] in SIMULATED_DESIGNS:
+        _simulated_run(ctx, sheet, params)
+        return
+    _refuse_given(ctx, _SIMULATION_PARAMS, "for the simulated designs only "
+                  f"({', '.join(SIMULATED_DESIGNS)}), not {params['design']}")
     _whole_job(ctx, sheet, sheet, params)
+
+
+#: The parameters of `pooler run` a simulated design reads (the others are refused).
+_SIMULATED_RUN_PARAMS = ("sheet", "design", "estimator", "interval", "adjuster",
+                         "safeguard_level", "sample_r", "alpha", "powers", "n_total", "out_dir",
+                         "fmt", "force", "as_json")
+
+
+def _refuse_given(ctx, names, why: str, *, keep: bool = False) -> None:
+    """An OptionError naming the options the user gave (on the command line or from the
+    environment) among ``names`` (or, with keep=True, outside them): "FLAGS: why"."""
+    from click.core import ParameterSource
+    from .errors import OptionError
+    given = [p for p in ctx.command.params
+             if p.opts and (p.name in names) != keep
+             and ctx.get_parameter_source(p.name) in (ParameterSource.COMMANDLINE,
+                                                      ParameterSource.ENVIRONMENT)]
+    if given:
+        raise OptionError(", ".join(max(p.opts, key=len) for p in given) + ": " + why)
+
+
+def _simulated_run(ctx, sheet, p):
+    """`pooler run SHEET --design <simulated>`: the same job as `pooler paths SHEET`."""
+    from .errors import OptionError
+    design = p["design"]
+    if p["metric"] not in (None, "r"):
+        raise OptionError(f"--metric {p['metric']}: the paths of {design} are pooled as "
+                          "correlations (r); leave --metric out")
+    _refuse_given(ctx, _SIMULATED_RUN_PARAMS + _SIMULATION_PARAMS + ("metric",),
+                  f"not used by the simulated design {design} (its paths are pooled as "
+                  "correlations and its n is found by simulation, two-sided)", keep=True)
+    if design != "moderation" and (p["xz_r"] or p["binary_moderator"]):
+        raise OptionError("--xz-r and --binary-moderator apply to moderation only")
+    given, names = {}, {}
+    if p["xz_r"]:
+        given["X-Z"], names["X-Z"] = p["xz_r"], "--xz-r (r of X and Z)"
+    for key, (r, how) in _pair_values(p["pair_values"], given).items():
+        given[key], names[key] = r, how
+    from .outputs import check_out
+    check_out(p["out_dir"], p["force"])
+    from .pathsjob import paths_job
+    job = paths_job(design, sheet=sheet, given=given, option_names=names,
+                    settings={"binary_moderator": p["binary_moderator"]}, test=p["test_name"],
+                    fixed_n=p["n_total"], powers=p["powers"], alpha=p["alpha"], reps=p["reps"],
+                    draws=p["draws"], resamples=p["resamples"], seed=p["seed"],
+                    workers=p["workers"], scheduler=p["scheduler"],
+                    progress=_simulation_bar(), estimator=p["estimator"],
+                    interval=p["interval"], adjuster=p["adjuster"],
+                    safeguard_level=p["safeguard_level"], sample_r=p["sample_r"],
+                    option_hints=False)
+    _echo_paths_job(job, p["out_dir"], p["fmt"], p["force"], p["as_json"])
 
 
 @main.command("demo")
@@ -742,6 +856,7 @@ def template(path, force):
 
 # ---- pooler paths: simulated power for mediation and moderation (pooler.simdesign) ----------
 
+
 @main.command("paths")
 @click.argument("sheet", required=False, type=click.Path(dir_okay=False))
 @click.option("--design", "design_name", required=True,
@@ -771,14 +886,10 @@ def template(path, force):
                    "of Z (binary: in the group coded +1).")
 @click.option("--slope-low", type=float, default=None,
               help="Moderation: effect of X at -1 SD of Z (with --slope-high).")
-@click.option("--xz-r", type=float, default=0.0, show_default=True,
-              help="Moderation: correlation of X and Z.")
 @click.option("--x-reliability", type=float, default=1.0, show_default=True,
               help="Moderation: reliability of the measure of X.")
 @click.option("--z-reliability", type=float, default=1.0, show_default=True,
               help="Moderation: reliability of the measure of Z.")
-@click.option("--binary-moderator", is_flag=True,
-              help="Moderation: Z is two equal groups instead of a continuous score.")
 @click.option("--paths-file", type=click.Path(dir_okay=False), default=None,
               help="CSV with columns scenario, path, value (paths named like X-M1, M1-Y, "
                    "X-Y, M1-M2, XZ-Y): one plan per scenario; paths the file lacks are "
@@ -787,35 +898,17 @@ def template(path, force):
               help="The values in --paths-file are correlations between the named variables "
                    "(X-M1, M1-Y, X-Y, M1-M2, ...; every pair), e.g. pooled from literatures; "
                    "the paths are the standardized coefficients they imply. Mediation only.")
-@click.option("--pair", "pair_values", multiple=True, metavar="PAIR=R",
-              help="With a SHEET: the correlation of a pair that has no rows, e.g. "
-                   "--pair X-M2=0.2 (any pair of the model; repeatable; used in every "
-                   "scenario).")
-@click.option("--test", "test_name", default=None,
-              type=click.Choice(["joint", "monte-carlo", "bootstrap", "sobel"]),
-              help="Test of the indirect effects [default: monte-carlo]; sobel only for "
-                   "comparison (low-powered).")
 @click.option("--n", "fixed_n", type=click.IntRange(min=5), default=None,
               help="Simulate power at this total n instead of searching for n.")
 @click.option("--power", "powers", type=float, multiple=True,
               help="Target power; repeatable [default: 0.8 0.9 0.95].")
 @click.option("--alpha", type=float, default=0.05, show_default=True,
               help="Two-sided significance level.")
-@click.option("--reps", type=click.IntRange(min=1), default=None,
-              help="Replications per simulated n [default: 1,000 for the search, 2,000 "
-                   "at --n; a fifth of that for the bootstrap].")
-@click.option("--draws", type=click.IntRange(min=100), default=1000, show_default=True,
-              help="Monte Carlo draws per replication (monte-carlo test).")
-@click.option("--resamples", type=click.IntRange(min=100), default=1000, show_default=True,
-              help="Bootstrap resamples per replication (bootstrap test).")
-@_seed_and_workers("Local processes")
-@click.option("--scheduler", default=None, metavar="ADDRESS",
-              help="Run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) "
-                   "instead of local processes; same results. Needs pooler[cluster].")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for results.json, report.md and the power-curve figure.")
 @_figure_file_options
 @_json_option
+@_simulation_options
 def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
               interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
               binary_moderator, paths_file, as_correlations, pair_values, test_name, fixed_n, powers, alpha, reps, draws,

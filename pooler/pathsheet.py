@@ -209,7 +209,7 @@ def all_pairs(variables: tuple) -> list:
 def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, option_names=None,
                estimator: str = "reml", interval: str = "hksj", adjuster: str = "default",
                safeguard_level: float = 0.6, sample_r: float = 0.5,
-               binary_moderator: bool = False) -> PathSheet:
+               binary_moderator: bool = False, option_hints: bool = True) -> PathSheet:
     """Pool each path of ``design_name`` from its rows of the sheet and build one design per
     scenario.
 
@@ -226,6 +226,9 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
         As for :func:`pooler.pipeline.analyse`; the metric is always r (Fisher z).
     binary_moderator : bool
         Moderation: the moderator is two equal groups (simple-slope rows imply it).
+    option_hints : bool
+        Whether a missing pair's message names ``pooler paths``' own options (``--direct``,
+        ...) beside ``--pair``.
 
     Moderation takes either the pairs ``X-Y``, ``Z-Y``, ``XZ-Y`` (the interaction, read as
     the partial correlation of the product term given X and Z) and ``X-Z`` (0 when it has
@@ -370,7 +373,7 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
         if not recs or all(r.get("exclude") for r in recs):
             if pair in SLOPES:   # pragma: no cover - caught above with the slopes' rows
                 raise InputError(f"the simple slope '{pair}' has no rows", file=file)
-            hint = option_hint(design_name, pair)
+            hint = option_hint(design_name, pair) if option_hints else ""
             raise InputError(f"the path {pair} has no rows to pool"
                              + (" (only excluded ones)" if recs else "")
                              + "; add rows for it"

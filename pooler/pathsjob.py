@@ -129,13 +129,14 @@ def paths_job(design_name: str, *, sheet=None, given: dict | None = None,
               seed: int = 2026, workers: int = 1, scheduler=None,
               progress: Callable | None = None, estimator: str = "reml",
               interval: str = "hksj", adjuster: str = "default", safeguard_level: float = 0.6,
-              sample_r: float = 0.5) -> PathsJob:
+              sample_r: float = 0.5, option_hints: bool = True) -> PathsJob:
     """Plan a simulated design (mediation or moderation).
 
     With ``sheet``, each pair of the model is pooled from its rows
     (:func:`pooler.pathsheet.pool_paths`, with the analysis options ``estimator`` ...
     ``sample_r``) and ``given`` holds the correlations of pairs without rows; otherwise
-    ``given`` holds the standardized paths (and ``paths_file`` scenarios of them). Each
+    ``given`` holds the standardized paths (and ``paths_file`` scenarios of them);
+    ``option_hints`` lets a missing pair's message name ``pooler paths``' own options. Each
     scenario is then searched for the n reaching ``powers``
     (:func:`pooler.simdesign.plan_paths`), or simulated at ``fixed_n``
     (:func:`pooler.simdesign.simulate_power`).
@@ -168,7 +169,8 @@ def paths_job(design_name: str, *, sheet=None, given: dict | None = None,
         ps = pool_paths(sheet, design_name, given, option_names=option_names,
                         estimator=estimator, interval=interval, adjuster=adjuster,
                         safeguard_level=safeguard_level, sample_r=sample_r,
-                        binary_moderator=bool(settings.get("binary_moderator")))
+                        binary_moderator=bool(settings.get("binary_moderator")),
+                        option_hints=option_hints)
         scenarios = dict(ps.designs)
     else:
         scenarios = scenarios_from_paths(design_name, given, paths_file=paths_file,
