@@ -286,8 +286,10 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
             continue
         pair = split_path(text)
         if pair is None or pair[0] == pair[1]:
+            like = ("X-Y, XZ-Y (the interaction) or X-Y at high Z" if moderation
+                    else "X-M1")
             problems.append(InputError(f"'{text}' is not a pair of two variables; write it "
-                                       "like X-M1", file=file, row=rec.row, column=col))
+                                       f"like {like}", file=file, row=rec.row, column=col))
             continue
         parsed.append((rec, pair))
     names = {v for _, pr in parsed if pr[1] is not None for v in pr}
@@ -297,11 +299,22 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
         idx = sorted(int(v[1:]) for v in names if re.fullmatch(r"M[1-9]", v))
         k_med = max(idx + [2])
         if k_med > 4:
-            raise InputError(f"parallel mediation takes 2 to 4 mediators; the paths name "
-                             f"M{k_med}", file=file, column=col)
+            for rec, pr in parsed:
+                high = [v for v in pr if v and re.fullmatch(r"M[5-9]", v)]
+                if high:
+                    problems.append(InputError(
+                        f"'{rec.get('path')}' names {high[0]}: parallel mediation takes 2 to "
+                        "4 mediators (M1 to M4)", file=file, row=rec.row, column=col))
+            if not any("mediators (M1 to M4)" in e.message for e in problems):
+                raise OptionError("parallel mediation takes 2 to 4 mediators; the pairs given "
+                                  f"as options name M{k_med}")
+            k_med = 4
     variables = design_variables(design_name, k_med)
     by_pair: dict = {}
+    located = {e.row for e in problems}
     for rec, (a, b) in parsed:
+        if rec.row in located:
+            continue
         if b is None:   # a simple slope of a moderation sheet
             by_pair.setdefault(a, []).append(rec)
             continue
@@ -319,6 +332,7 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
                 "is the path XZ-Y", file=file, row=rec.row, column=col))
             continue
         by_pair.setdefault(_canonical(a, b, variables), []).append(rec)
+    parse_failed = bool(problems)   # then a pair without rows may be their doing
     slopes = moderation and any(k in by_pair for k in SLOPES)
     if slopes:
         for k in ("X-Y", "XZ-Y", "X-Z"):
@@ -330,14 +344,12 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
                     f"unrelated to Z; give either the slopes with Z-Y, or X-Y, Z-Y and XZ-Y "
                     f"rows, not both", file=file, row=rec.row, column=col))
         one = [k for k in SLOPES if k not in by_pair]
-        if one:
+        if one and not parse_failed:
+            other = SLOPES[0] if one[0] == SLOPES[1] else SLOPES[1]
             problems.append(InputError(
-                f"the simple slope '{SLOPES[0] if one[0] == SLOPES[1] else SLOPES[1]}' has "
-                f"rows but '{one[0]}' has none; the interaction needs both slopes",
-                file=file, column=col))
-    if problems:
-        from .errors import InputErrors
-        raise InputErrors(sorted(problems, key=lambda e: (e.row is None, e.row or 0)))
+                f"the simple slope '{other}' has rows but '{one[0]}' has none; the "
+                "interaction needs both slopes", file=file, row=by_pair[other][0].row,
+                column=col))
 
     # each pair: pooled from its rows, or given
     pairs = all_pairs(variables)
@@ -357,9 +369,12 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
     for pair in pairs:
         recs = by_pair.get(pair, [])
         if recs and pair in canon_given:
-            raise InputError(f"the path {pair} has rows in the sheet (rows "
-                             f"{', '.join(str(r.row) for r in recs)}) and is also given as "
-                             f"{canon_given[pair][1]}; give it once", file=file, column=col)
+            problems.append(InputError(
+                f"the path {pair} has rows in the sheet (rows "
+                f"{', '.join(str(r.row) for r in recs)}) and is also given as "
+                f"{canon_given[pair][1]}; give it once", file=file, row=recs[0].row,
+                column=col))
+            continue
         if pair in canon_given:
             v, how = canon_given[pair]
             if not -1 < v < 1:
@@ -371,18 +386,25 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
                                   option=how))
             continue
         if not recs or all(r.get("exclude") for r in recs):
-            if pair in SLOPES:   # pragma: no cover - caught above with the slopes' rows
-                raise InputError(f"the simple slope '{pair}' has no rows", file=file)
+            if parse_failed:
+                continue
+            if pair in SLOPES:   # said above, with the other slope's rows
+                continue
             hint = option_hint(design_name, pair) if option_hints else ""
-            raise InputError(f"the path {pair} has no rows to pool"
-                             + (" (only excluded ones)" if recs else "")
-                             + "; add rows for it"
-                             + f" or give its correlation with "
-                             + (f"{hint} or " if hint else "") + f"--pair {pair}=R",
-                             file=file, column=col)
+            problems.append(InputError(f"the path {pair} has no rows to pool"
+                                       + (" (only excluded ones)" if recs else "")
+                                       + "; add rows for it or give its correlation with "
+                                       + (f"{hint} or " if hint else "") + f"--pair {pair}=R",
+                                       file=file, row=recs[0].row if recs else None,
+                                       column=col))
+            continue
         sub = replace(sheet, records=tuple(recs))
-        a = analyse(sub, metric="r", sample_r=sample_r, estimator=estimator, interval=interval,
-                    adjuster=adjuster, safeguard_level=safeguard_level)
+        try:   # every path's conversion problems are reported together
+            a = analyse(sub, metric="r", sample_r=sample_r, estimator=estimator,
+                        interval=interval, adjuster=adjuster, safeguard_level=safeguard_level)
+        except InputError as exc:
+            problems.extend(getattr(exc, "errors", (exc,)))
+            continue
         est = a.pooled.pooled if estimable(a.pooled.pooled) else a.pooled.fixed
         pe = {e.scenario: e for e in a.scenarios.planning_effects()}
         missing = [s for s in SCENARIOS if s not in pe]
@@ -397,6 +419,10 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
             notes.append(f"the pooled correlation {pair} is negative; the scenarios move a "
                          "path towards smaller (more negative) values, so reverse-score one of "
                          "its variables if a weaker negative path is the cautious case")
+
+    if problems:
+        from .errors import InputErrors
+        raise InputErrors(sorted(problems, key=lambda e: (e.row is None, e.row or 0)))
 
     matrices, designs = {}, {}
     if moderation:

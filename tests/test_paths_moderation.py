@@ -148,11 +148,17 @@ def test_every_row_mistake_is_listed_at_once(tmp_path, run_cli):
     res = run_cli("paths", s, "--design", "moderation")
     assert res.exit_code == 2
     lines = res.stderr.strip().splitlines()
-    assert len(lines) == 4 and "problem 1 of 4" in lines[0]
+    assert len(lines) == 3 and "problem 1 of 3" in lines[0]
     assert "bad.csv, row 3, column 'path'" in lines[0] and "simple slopes" in lines[0]
     assert "row 4, column 'path'" in lines[1] and "uncorrelated with X and with Z" in lines[1]
     assert "row 5, column 'path'" in lines[2] and "names Q" in lines[2]
-    assert "'X-Y at low Z' has none" in lines[3]
+    # a slope without its partner is said (with the partner's row) once the rows parse
+    good = _write(tmp_path / "one.csv", ["study", "path", "stat", "value", "n"],
+                  [["A", "X-Y at high Z", "r", 0.40, 100], ["C", "Z-Y", "r", 0.1, 180]])
+    res = run_cli("paths", good, "--design", "moderation")
+    assert res.exit_code == 2
+    assert "row 2, column 'path': the simple slope 'X-Y at high Z' has rows but " \
+           "'X-Y at low Z' has none" in res.stderr
 
 
 @pytest.mark.parametrize("args, fragment", [
