@@ -906,13 +906,21 @@ def template(path, force):
               help="Two-sided significance level.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for results.json, report.md and the power-curve figure.")
+@click.option("--stress", is_flag=True,
+              help="With a SHEET: instead of planning, simulate literatures like the sheet's "
+                   "from its realistic correlations (with and without selection for "
+                   "significance), plan each through the same route, and report how often "
+                   "each scenario planned an effect no larger than the true one.")
+@click.option("--literatures", type=click.IntRange(min=1), default=40, show_default=True,
+              help="With --stress: literatures simulated per selection level.")
 @_figure_file_options
 @_json_option
 @_simulation_options
 def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
               interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
               binary_moderator, paths_file, as_correlations, pair_values, test_name, fixed_n, powers, alpha, reps, draws,
-              resamples, seed, workers, scheduler, out_dir, fmt, force, as_json):
+              resamples, seed, workers, scheduler, out_dir, fmt, force, as_json, stress,
+              literatures):
     """Sample size (or power) for mediation and moderation, by simulation.
 
     Give the standardized paths as options, or several scenarios of them in
@@ -1010,9 +1018,28 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
         if extra:
             raise OptionError(f"with --correlations every path comes from the correlations; "
                               f"drop {', '.join(extra)}")
+    if stress and not sheet:
+        raise OptionError("--stress checks the planning of a SHEET of path literatures; give "
+                          "one")
     if out_dir:
         from .outputs import check_out
         check_out(out_dir, force)
+    if stress:
+        from .pathsjob import paths_stress
+        res = paths_stress(design_name, sheet, given=given, option_names=names,
+                           settings=settings, literatures=literatures, seed=seed,
+                           workers=workers, scheduler=scheduler, progress=_simulation_bar())
+        if out_dir:
+            from .outputs import write
+            doc = json.dumps(res.to_dict(), indent=2, allow_nan=False, ensure_ascii=False)
+            write({"results.json": (doc + "\n").encode(),
+                   "report.md": f"# Stress check\n\n```\n{res.text()}```\n".encode()},
+                  out_dir, force=force)
+        if as_json:
+            _print_json(res.to_dict())
+        else:
+            click.echo(res.text(), nl=False)
+        return
     from .pathsjob import paths_job
     job = paths_job(design_name, sheet=sheet or None, given=given, option_names=names,
                     paths_file=paths_file, as_correlations=as_correlations, settings=settings,

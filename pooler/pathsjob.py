@@ -95,6 +95,19 @@ class PathsJob:
         return render_files(self.results, self.options, self.methods, fmt)
 
 
+def _check_sheet_settings(settings: dict) -> None:
+    """Design settings that a sheet's pooled correlations already determine are refused."""
+    if settings.get("mediator_r"):
+        raise OptionError("`mediator_r` does not apply with a sheet: the mediators' "
+                          "residual correlation follows from their correlation (rows "
+                          "for M1-M2, or the M1-M2 pair given as an option)")
+    if any(settings.get(k, 1.0) != 1.0 for k in ("x_reliability", "z_reliability")):
+        raise OptionError("`x_reliability` and `z_reliability` do not apply with a sheet: "
+                          "the pooled correlations are observed-score values, already "
+                          "attenuated by the earlier studies' measurement error; plan "
+                          "with them as they are (or give the paths as options)")
+
+
 def scenarios_from_paths(design_name: str, given: dict, *, paths_file=None,
                          as_correlations: bool = False, settings: dict | None = None,
                          hints: dict | None = None) -> dict:
@@ -157,15 +170,7 @@ def paths_job(design_name: str, *, sheet=None, given: dict | None = None,
         from .pathsheet import pool_paths
         if paths_file or as_correlations:
             raise OptionError("give the paths either in a sheet or in `paths_file`, not both")
-        if settings.get("mediator_r"):
-            raise OptionError("`mediator_r` does not apply with a sheet: the mediators' "
-                              "residual correlation follows from their correlation (rows "
-                              "for M1-M2, or the M1-M2 pair given as an option)")
-        if any(settings.get(k, 1.0) != 1.0 for k in ("x_reliability", "z_reliability")):
-            raise OptionError("`x_reliability` and `z_reliability` do not apply with a sheet: "
-                              "the pooled correlations are observed-score values, already "
-                              "attenuated by the earlier studies' measurement error; plan "
-                              "with them as they are (or give the paths as options)")
+        _check_sheet_settings(settings)
         ps = pool_paths(sheet, design_name, given, option_names=option_names,
                         estimator=estimator, interval=interval, adjuster=adjuster,
                         safeguard_level=safeguard_level, sample_r=sample_r,
@@ -195,3 +200,22 @@ def paths_job(design_name: str, *, sheet=None, given: dict | None = None,
                "paths_file": str(paths_file) if paths_file else None,
                "sheet": str(sheet) if sheet is not None else None}
     return PathsJob(design_name, scenarios, results, None, options, methods, ps, note, warnings)
+
+
+def paths_stress(design_name: str, sheet, *, given: dict | None = None,
+                 option_names: dict | None = None, settings: dict | None = None,
+                 literatures: int = 40, selection=(1.0, 0.2), seed: int = 2026,
+                 workers: int = 1, scheduler=None, progress: Callable | None = None,
+                 option_hints: bool = True):
+    """Pool ``sheet``'s paths as :func:`paths_job` does, then stress-check that route
+    (:func:`pooler.pathstress.stress_paths`): literatures like the sheet's, simulated from
+    its realistic correlations, each planned through the same stages."""
+    from .pathsheet import pool_paths
+    from .pathstress import stress_paths
+    settings = dict(settings or {})
+    _check_sheet_settings(settings)
+    ps = pool_paths(sheet, design_name, dict(given or {}), option_names=option_names,
+                    binary_moderator=bool(settings.get("binary_moderator")),
+                    option_hints=option_hints)
+    return stress_paths(ps, literatures=literatures, selection=selection, seed=seed,
+                        workers=workers, scheduler=scheduler, progress=progress)

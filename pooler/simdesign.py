@@ -766,25 +766,28 @@ class _Runner:
             self._client.close()
         return False
 
-    def map(self, tasks, progress=None, offset=0, total=None):
+    def map(self, tasks, progress=None, offset=0, total=None, fn=None):
+        """``fn`` (default: one chunk of replications) applied to each task, in order;
+        ``fn`` must be importable by the workers (a module-level function)."""
+        fn = fn or _run_chunk
         total = total or len(tasks)
         if self._client is not None:
             from dask.distributed import as_completed
-            futs = self._client.map(_run_chunk, tasks, pure=False)
+            futs = self._client.map(fn, tasks, pure=False)
             for done, _ in enumerate(as_completed(futs), start=1):
                 if progress:
                     progress(offset + done, total)
             return self._client.gather(futs)
         if self._pool is not None:
             from concurrent.futures import as_completed
-            futs = [self._pool.submit(_run_chunk, t) for t in tasks]
+            futs = [self._pool.submit(fn, t) for t in tasks]
             for done, _ in enumerate(as_completed(futs), start=1):
                 if progress:
                     progress(offset + done, total)
             return [f.result() for f in futs]
         out = []
         for done, t in enumerate(tasks, start=1):
-            out.append(_run_chunk(t))
+            out.append(fn(t))
             if progress:
                 progress(offset + done, total)
         return out
