@@ -364,7 +364,16 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
     canon_given = {}
     for key, v in given.items():
         a, b = key.split("-")
-        canon_given[_canonical(a, b, variables)] = (v, option_names.get(key, key))
+        how = option_names.get(key, key)
+        bad = [x for x in (a, b) if x not in variables]
+        if bad:
+            raise OptionError(f"{how} names {bad[0]}, which is not a variable of {design_name} "
+                              f"(its variables are {', '.join(variables)})")
+        canon = _canonical(a, b, variables) if a != b else key
+        if canon not in pairs:
+            raise OptionError(f"{how}: {canon} is not a pair {design_name} takes (its pairs "
+                              f"are {', '.join(pairs)})")
+        canon_given[canon] = (v, how)
     out = []
     for pair in pairs:
         recs = by_pair.get(pair, [])
