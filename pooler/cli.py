@@ -860,8 +860,7 @@ def template(path, force):
 @main.command("paths")
 @click.argument("sheet", required=False, type=click.Path(dir_okay=False))
 @click.option("--design", "design_name", required=True,
-              type=click.Choice(["simple-mediation", "parallel-mediation", "serial-mediation",
-                                 "moderation"]),
+              type=click.Choice(list(SIMULATED_DESIGNS)),
               help="The path model to plan for.")
 @click.option("--a", "a_paths", type=float, multiple=True,
               help="Standardized path from X to a mediator; repeat once per mediator "
