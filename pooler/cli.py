@@ -928,10 +928,16 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
     own rows, its optimistic / realistic / pessimistic correlations form one correlation
     matrix per scenario, and each scenario is planned on the standardized paths that matrix
     implies. With a SHEET, --a, --b, --direct and --m1-m2 give the correlation of a pair
-    that has no literature (X-Mi, Mi-Y, X-Y, M1-M2), the same in every scenario. The table shows, for each indirect effect (and for the
-    total and for "all indirect effects significant" with several mediators), the n that
-    reaches each target power, a 95 % Monte Carlo interval for that n, and the power
-    confirmed at n with its Monte Carlo SE. Moderation plans for the interaction.
+    that has no literature (X-Mi, Mi-Y, X-Y, M1-M2), the same in every scenario; --pair
+    gives any pair. A moderation SHEET names X-Y, Z-Y, X-Z and the interaction XZ-Y (the t
+    of the interaction coefficient, read as its partial correlation), or the simple slopes
+    'X-Y at high Z' and 'X-Y at low Z'. `pooler run SHEET --design ...` does the same.
+    --stress checks the SHEET route on literatures simulated like the sheet's.
+
+    The table shows, for each indirect effect (and for the total and for "all indirect
+    effects significant" with several mediators), the n that reaches each target power, a
+    95 % Monte Carlo interval for that n, and the power confirmed at n with its Monte Carlo
+    SE. Moderation plans for the interaction.
 
     \b
     Example:
@@ -943,6 +949,7 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
           --z-effect 0.3 --x-reliability 0.8 --z-reliability 0.8
       pooler paths --design parallel-mediation --paths-file my_paths.csv --direct 0.1
       pooler paths demo_literature/garden_paths.csv --design parallel-mediation --out garden
+      pooler paths demo_literature/practice_feedback_moderation.csv --design moderation
     """
     from .errors import OptionError
     mediation_opts = {"--a": a_paths, "--b": b_paths, "--m1-m2": m1_m2}
