@@ -424,7 +424,12 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
             Interval(math.tanh(est.ci.low), math.tanh(est.ci.high), est.ci.level),
             {s: float(pe[s].effect) for s in SCENARIOS},
             {s: pe[s].basis for s in SCENARIOS}, analysis=a))
-        if est.estimate < 0:
+        if est.estimate < 0 and moderation and pair == "XZ-Y":
+            notes.append("the interaction XZ-Y pools negative: its scenarios move it away from "
+                         "0, so the pessimistic plan is the least cautious one; code Z the "
+                         "other way round (negate the values of the XZ-Y, Z-Y and X-Z rows), "
+                         "which leaves the interaction's power unchanged, and plan again")
+        elif est.estimate < 0:
             notes.append(f"the pooled correlation {pair} is negative; the scenarios move a "
                          "path towards smaller (more negative) values, so reverse-score one of "
                          "its variables if a weaker negative path is the cautious case")

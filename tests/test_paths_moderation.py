@@ -186,3 +186,13 @@ def test_cli_writes_the_plan_the_diagram_and_the_methods(run_cli, tmp_path):
     assert [s["solutions"][0]["target"] for s in doc["scenarios"]] == ["XZ-Y"] * 3
     report = (out / "report.md").read_text()
     assert "r_p^2 / (1 - r_p^2)" in report and "Viswesvaran & Ones" in report
+
+
+def test_a_negative_interaction_says_how_to_recode(tmp_path):
+    from pooler.pathsheet import pool_paths
+    s = _write(tmp_path / "neg.csv", ["study", "path", "stat", "value", "n", "df", "predictors"],
+               [["A", "X-Y", "r", 0.3, 200, "", ""], ["B", "Z-Y", "r", 0.2, 150, "", ""],
+                ["C", "XZ-Y", "coef_t", -2.6, "", 196, 3], ["D", "XZ-Y", "coef_t", -2.2, "", 296, 3]])
+    ps = pool_paths(s, "moderation")
+    assert ps["XZ-Y"].pooled < 0
+    assert any("code Z the other way round" in n for n in ps.notes)
