@@ -1,4 +1,4 @@
-"""Regenerate the invented moderation literature: ``python demo_literature/make_moderation_demo.py``.
+"""Regenerate the invented moderation literature (python demo_literature/make_moderation_demo.py).
 
 Scenario (invented): "Does weekly practice time (X) improve sight-reading scores (Y) more for
 learners who get more feedback from a teacher (Z)?" — a moderation for ``pooler paths SHEET

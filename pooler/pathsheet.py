@@ -1,10 +1,11 @@
-"""Path literatures: pool each path of a mediation model from its own rows of one sheet.
+"""Path literatures: pool each path of a mediation or moderation model from its own rows of
+one sheet.
 
 A path sheet is an ordinary sheet (see :mod:`pooler.sheet`) with a ``path`` column naming the
 pair of variables each row's result links (``X-M1``, ``M1-Y``, ``X-Y``, ``M1-M2``; simple
-mediation: ``X-M``, ``M-Y``, ``X-Y``; moderation: ``X-Y``, ``Z-Y``, ``X-Z`` and the interaction
-``XZ-Y`` (also written ``X*Z-Y``), or the simple slopes ``X-Y at high Z`` and ``X-Y at low Z``). Each path's rows go through the ordinary stages on the
-correlation metric (:func:`pooler.pipeline.analyse`: convert, pool, bias suite, planning
+mediation: ``X-M``, ``M-Y``, ``X-Y``; moderation: ``X-Y``, ``Z-Y``, ``X-Z`` and the
+interaction ``XZ-Y`` (also written ``X*Z-Y``), or the simple slopes ``X-Y at high Z`` and
+``X-Y at low Z``). Each path's rows go through the ordinary stages on the correlation metric (:func:`pooler.pipeline.analyse`: convert, pool, bias suite, planning
 scenarios), so each path gets its own optimistic / realistic / pessimistic correlation. Pairs
 without a literature are given as fixed correlations. One correlation matrix per scenario is
 checked (positive definite), and the standardized paths it implies
