@@ -13,7 +13,7 @@ import click
 from ._threads import limit_before_numpy
 from .choices import (ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS, POWERS,
                       AnalysisOptions)
-from .design_choices import DESIGN_OPTIONS, PLANNED_DESIGNS, used_by
+from .design_choices import DESIGN_OPTIONS, PLANNED_DESIGNS, SIMULATED_DESIGNS, used_by
 from .errors import OptionError, PoolerError
 
 # One BLAS thread for the whole command (the reason is in pooler/_threads.py); this must run
@@ -342,10 +342,19 @@ def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
         click.echo(scenarios_text(a.scenarios, a.audit))
 
 
-def _planning_options(f):
+def _planning_options(f=None, *, simulated: bool = False):
+    if f is None:   # @_planning_options(simulated=True): also the simulated designs
+        return lambda g: _planning_options(g, simulated=simulated)
+    design_help = "The planned study's design."
+    if simulated:
+        design_help += (" The last four are simulated (" + ", ".join(SIMULATED_DESIGNS)
+                        + "): SHEET then needs a 'path' column naming the pair of variables "
+                        "each row links, and the run is the same as `pooler paths SHEET`.")
     opts = [
-        click.option("--design", type=click.Choice(list(PLANNED_DESIGNS)), default="two-group",
-                     show_default=True, help="The planned study's design."),
+        click.option("--design", type=click.Choice(list(PLANNED_DESIGNS)
+                                                   + (list(SIMULATED_DESIGNS) if simulated
+                                                      else [])),
+                     default="two-group", show_default=True, help=design_help),
         click.option("--alpha", type=float, default=0.05, show_default=True,
                      callback=_fraction(0, 0.5, percent=True,
                                         hint="the significance level, e.g. 0.05"),
@@ -526,6 +535,46 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
         click.echo(plan_text(p))
 
 
+def _simulation_options(f):
+    """The options of the simulated designs that `pooler paths` and `pooler run` share."""
+    opts = [
+        click.option("--pair", "pair_values", multiple=True, metavar="PAIR=R",
+                     help="With a SHEET: the correlation of a pair that has no rows, e.g. "
+                          "--pair X-M2=0.2 (any pair of the model; repeatable; used in every "
+                          "scenario)."),
+        click.option("--xz-r", type=float, default=0.0, show_default=True,
+                     help="Moderation: correlation of X and Z (with a SHEET: when X-Z has "
+                          "no rows)."),
+        click.option("--binary-moderator", is_flag=True,
+                     help="Moderation: Z is two equal groups instead of a continuous score."),
+        click.option("--test", "test_name", default=None,
+                     type=click.Choice(["joint", "monte-carlo", "bootstrap", "sobel"]),
+                     help="Test of the indirect effects [default: monte-carlo]; sobel only "
+                          "for comparison (low-powered)."),
+        click.option("--reps", type=click.IntRange(min=1), default=None,
+                     help="Replications per simulated n [default: 1,000 for the search, "
+                          "2,000 at --n; a fifth of that for the bootstrap]."),
+        click.option("--draws", type=click.IntRange(min=100), default=1000, show_default=True,
+                     help="Monte Carlo draws per replication (monte-carlo test)."),
+        click.option("--resamples", type=click.IntRange(min=100), default=1000,
+                     show_default=True,
+                     help="Bootstrap resamples per replication (bootstrap test)."),
+        _seed_and_workers("Local processes for the simulation"),
+        click.option("--scheduler", default=None, metavar="ADDRESS",
+                     help="Run the simulation on this dask.distributed scheduler (e.g. "
+                          "tcp://10.0.0.5:8786) instead of local processes; same results. "
+                          "Needs pooler[cluster]."),
+    ]
+    for o in reversed(opts):
+        f = o(f)
+    return f
+
+
+#: The parameters _simulation_options declares.
+_SIMULATION_PARAMS = ("pair_values", "xz_r", "binary_moderator", "test_name", "reps", "draws",
+                      "resamples", "seed", "workers", "scheduler")
+
+
 def _output_options(f):
     f = click.option("--force", is_flag=True,
                      help="Write into --out even if it is not empty and pooler did not "
@@ -598,9 +647,10 @@ def _whole_job(ctx, sheet, sheet_label, params):
 @main.command("run")
 @_sheet_argument
 @_analysis_options
-@_planning_options
+@_planning_options(simulated=True)
 @_output_options
 @_json_option
+@_simulation_options
 @click.pass_context
 def run_cmd(ctx, sheet, **params):
     """The whole job on SHEET: convert, pool, adjust for bias, plan, plot and report.
@@ -610,12 +660,76 @@ def run_cmd(ctx, sheet, **params):
     writes into --out: report.md, report.html (self-contained), results.json,
     planning_table.csv, effects.csv and four figures (forest, funnel, ladder, power).
 
+    With a simulated design (simple-mediation, parallel-mediation, serial-mediation,
+    moderation) SHEET has a 'path' column; each pair is pooled from its own rows and each
+    scenario's n is found by simulation, exactly as `pooler paths SHEET` does: the planning
+    table of every indirect effect (or the interaction), a power curve per scenario and a
+    path diagram. The simulation options (--test, --reps, --pair, ...) apply to these
+    designs only.
+
     \b
     Example:
       pooler run my_literature.csv --design two-group --out my_plan
       pooler run my_literature.csv --design paired --planned-r 0.6 --n 120 --format svg
+      pooler run demo_literature/garden_paths.csv --design parallel-mediation --test joint
     """
+    if params["design"] in SIMULATED_DESIGNS:
+        _simulated_run(ctx, sheet, params)
+        return
+    _refuse_given(ctx, _SIMULATION_PARAMS, "for the simulated designs only "
+                  f"({', '.join(SIMULATED_DESIGNS)}), not {params['design']}")
     _whole_job(ctx, sheet, sheet, params)
+
+
+#: The parameters of `pooler run` a simulated design reads (the others are refused).
+_SIMULATED_RUN_PARAMS = ("sheet", "design", "estimator", "interval", "adjuster",
+                         "safeguard_level", "sample_r", "alpha", "powers", "n_total", "out_dir",
+                         "fmt", "force", "as_json")
+
+
+def _refuse_given(ctx, names, why: str, *, keep: bool = False) -> None:
+    """An OptionError naming the options the user gave (on the command line or from the
+    environment) among ``names`` (or, with keep=True, outside them): "FLAGS: why"."""
+    from click.core import ParameterSource
+    from .errors import OptionError
+    given = [p for p in ctx.command.params
+             if p.opts and (p.name in names) != keep
+             and ctx.get_parameter_source(p.name) in (ParameterSource.COMMANDLINE,
+                                                      ParameterSource.ENVIRONMENT)]
+    if given:
+        raise OptionError(", ".join(max(p.opts, key=len) for p in given) + ": " + why)
+
+
+def _simulated_run(ctx, sheet, p):
+    """`pooler run SHEET --design <simulated>`: the same job as `pooler paths SHEET`."""
+    from .errors import OptionError
+    design = p["design"]
+    if p["metric"] not in (None, "r"):
+        raise OptionError(f"--metric {p['metric']}: the paths of {design} are pooled as "
+                          "correlations (r); leave --metric out")
+    _refuse_given(ctx, _SIMULATED_RUN_PARAMS + _SIMULATION_PARAMS + ("metric",),
+                  f"not used by the simulated design {design} (its paths are pooled as "
+                  "correlations and its n is found by simulation, two-sided)", keep=True)
+    if design != "moderation" and (p["xz_r"] or p["binary_moderator"]):
+        raise OptionError("--xz-r and --binary-moderator apply to moderation only")
+    given, names = {}, {}
+    if p["xz_r"]:
+        given["X-Z"], names["X-Z"] = p["xz_r"], "--xz-r (r of X and Z)"
+    for key, (r, how) in _pair_values(p["pair_values"], given).items():
+        given[key], names[key] = r, how
+    from .outputs import check_out
+    check_out(p["out_dir"], p["force"])
+    from .pathsjob import paths_job
+    job = paths_job(design, sheet=sheet, given=given, option_names=names,
+                    settings={"binary_moderator": p["binary_moderator"]}, test=p["test_name"],
+                    fixed_n=p["n_total"], powers=p["powers"], alpha=p["alpha"], reps=p["reps"],
+                    draws=p["draws"], resamples=p["resamples"], seed=p["seed"],
+                    workers=p["workers"], scheduler=p["scheduler"],
+                    progress=_simulation_bar(), estimator=p["estimator"],
+                    interval=p["interval"], adjuster=p["adjuster"],
+                    safeguard_level=p["safeguard_level"], sample_r=p["sample_r"],
+                    option_hints=False)
+    _echo_paths_job(job, p["out_dir"], p["fmt"], p["force"], p["as_json"])
 
 
 @main.command("demo")
@@ -743,11 +857,11 @@ def template(path, force):
 
 # ---- pooler paths: simulated power for mediation and moderation (pooler.simdesign) ----------
 
+
 @main.command("paths")
 @click.argument("sheet", required=False, type=click.Path(dir_okay=False))
 @click.option("--design", "design_name", required=True,
-              type=click.Choice(["simple-mediation", "parallel-mediation", "serial-mediation",
-                                 "moderation"]),
+              type=click.Choice(list(SIMULATED_DESIGNS)),
               help="The path model to plan for.")
 @click.option("--a", "a_paths", type=float, multiple=True,
               help="Standardized path from X to a mediator; repeat once per mediator "
@@ -772,14 +886,10 @@ def template(path, force):
                    "of Z (binary: in the group coded +1).")
 @click.option("--slope-low", type=float, default=None,
               help="Moderation: effect of X at -1 SD of Z (with --slope-high).")
-@click.option("--xz-r", type=float, default=0.0, show_default=True,
-              help="Moderation: correlation of X and Z.")
 @click.option("--x-reliability", type=float, default=1.0, show_default=True,
               help="Moderation: reliability of the measure of X.")
 @click.option("--z-reliability", type=float, default=1.0, show_default=True,
               help="Moderation: reliability of the measure of Z.")
-@click.option("--binary-moderator", is_flag=True,
-              help="Moderation: Z is two equal groups instead of a continuous score.")
 @click.option("--paths-file", type=click.Path(dir_okay=False), default=None,
               help="CSV with columns scenario, path, value (paths named like X-M1, M1-Y, "
                    "X-Y, M1-M2, XZ-Y): one plan per scenario; paths the file lacks are "
@@ -788,39 +898,29 @@ def template(path, force):
               help="The values in --paths-file are correlations between the named variables "
                    "(X-M1, M1-Y, X-Y, M1-M2, ...; every pair), e.g. pooled from literatures; "
                    "the paths are the standardized coefficients they imply. Mediation only.")
-@click.option("--pair", "pair_values", multiple=True, metavar="PAIR=R",
-              help="With a SHEET: the correlation of a pair that has no rows, e.g. "
-                   "--pair X-M2=0.2 (any pair of the model; repeatable; used in every "
-                   "scenario).")
-@click.option("--test", "test_name", default=None,
-              type=click.Choice(["joint", "monte-carlo", "bootstrap", "sobel"]),
-              help="Test of the indirect effects [default: monte-carlo]; sobel only for "
-                   "comparison (low-powered).")
 @click.option("--n", "fixed_n", type=click.IntRange(min=5), default=None,
               help="Simulate power at this total n instead of searching for n.")
 @click.option("--power", "powers", type=float, multiple=True,
               help="Target power; repeatable [default: 0.8 0.9 0.95].")
 @click.option("--alpha", type=float, default=0.05, show_default=True,
               help="Two-sided significance level.")
-@click.option("--reps", type=click.IntRange(min=1), default=None,
-              help="Replications per simulated n [default: 1,000 for the search, 2,000 "
-                   "at --n; a fifth of that for the bootstrap].")
-@click.option("--draws", type=click.IntRange(min=100), default=1000, show_default=True,
-              help="Monte Carlo draws per replication (monte-carlo test).")
-@click.option("--resamples", type=click.IntRange(min=100), default=1000, show_default=True,
-              help="Bootstrap resamples per replication (bootstrap test).")
-@_seed_and_workers("Local processes")
-@click.option("--scheduler", default=None, metavar="ADDRESS",
-              help="Run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) "
-                   "instead of local processes; same results. Needs pooler[cluster].")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for results.json, report.md and the power-curve figure.")
+@click.option("--stress", is_flag=True,
+              help="With a SHEET: instead of planning, simulate literatures like the sheet's "
+                   "from its realistic correlations (with and without selection for "
+                   "significance), plan each through the same route, and report how often "
+                   "each scenario planned an effect no larger than the true one.")
+@click.option("--literatures", type=click.IntRange(min=1), default=40, show_default=True,
+              help="With --stress: literatures simulated per selection level.")
 @_figure_file_options
 @_json_option
+@_simulation_options
 def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
               interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
-              binary_moderator, paths_file, as_correlations, pair_values, test_name, fixed_n, powers, alpha, reps, draws,
-              resamples, seed, workers, scheduler, out_dir, fmt, force, as_json):
+              binary_moderator, paths_file, as_correlations, pair_values, test_name, fixed_n,
+              powers, alpha, reps, draws, resamples, seed, workers, scheduler, out_dir, fmt,
+              force, as_json, stress, literatures):
     """Sample size (or power) for mediation and moderation, by simulation.
 
     Give the standardized paths as options, or several scenarios of them in
@@ -829,10 +929,16 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
     own rows, its optimistic / realistic / pessimistic correlations form one correlation
     matrix per scenario, and each scenario is planned on the standardized paths that matrix
     implies. With a SHEET, --a, --b, --direct and --m1-m2 give the correlation of a pair
-    that has no literature (X-Mi, Mi-Y, X-Y, M1-M2), the same in every scenario. The table shows, for each indirect effect (and for the
-    total and for "all indirect effects significant" with several mediators), the n that
-    reaches each target power, a 95 % Monte Carlo interval for that n, and the power
-    confirmed at n with its Monte Carlo SE. Moderation plans for the interaction.
+    that has no literature (X-Mi, Mi-Y, X-Y, M1-M2), the same in every scenario; --pair
+    gives any pair. A moderation SHEET names X-Y, Z-Y, X-Z and the interaction XZ-Y (the t
+    of the interaction coefficient, read as its partial correlation), or the simple slopes
+    'X-Y at high Z' and 'X-Y at low Z'. `pooler run SHEET --design ...` does the same.
+    --stress checks the SHEET route on literatures simulated like the sheet's.
+
+    The table shows, for each indirect effect (and for the total and for "all indirect
+    effects significant" with several mediators), the n that reaches each target power, a
+    95 % Monte Carlo interval for that n, and the power confirmed at n with its Monte Carlo
+    SE. Moderation plans for the interaction.
 
     \b
     Example:
@@ -844,10 +950,9 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
           --z-effect 0.3 --x-reliability 0.8 --z-reliability 0.8
       pooler paths --design parallel-mediation --paths-file my_paths.csv --direct 0.1
       pooler paths demo_literature/garden_paths.csv --design parallel-mediation --out garden
+      pooler paths demo_literature/practice_feedback_moderation.csv --design moderation
     """
     from .errors import OptionError
-    from .pathsreport import methods_paragraph, plan_text, power_text, render_files
-    from . import simdesign as sd
     mediation_opts = {"--a": a_paths, "--b": b_paths, "--m1-m2": m1_m2}
     moderation_opts = {"--x-effect": x_effect, "--interaction": interaction,
                        "--slope-high": slope_high, "--slope-low": slope_low}
@@ -894,144 +999,134 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
              "M2-Y": "--b twice: M1-Y, then M2-Y",
              "X-Y": "--x-effect, or --slope-high and --slope-low",
              "XZ-Y": "--interaction, or --slope-high and --slope-low"}
-    ps = None
     if pair_values and not sheet:
         raise OptionError("--pair gives a pair's correlation for a SHEET of path literatures; "
                           "without one, give the paths with --a, --b, --direct, ...")
+    names: dict = {}
     if sheet:
-        from .pathsheet import pool_paths
         if design_name == "moderation":
-            raise OptionError("a SHEET of path literatures feeds the mediation designs; give "
-                              "a moderation's paths as options")
-        if paths_file or as_correlations:
-            raise OptionError("give the paths either in SHEET or in --paths-file, not both")
-        if mediator_r:
-            raise OptionError("--mediator-r does not apply with a SHEET: the mediators' "
-                              "residual correlation follows from their correlation (rows "
-                              "for M1-M2, or --m1-m2)")
-        pairs, names = {}, {}
-        a_, b_ = list(a_paths), list(b_paths)
-        if design_name == "simple-mediation":
-            if len(a_) > 1 or len(b_) > 1:
-                raise OptionError("simple mediation takes one --a and one --b")
-            med = ["M"]
+            used = [k for k, v in moderation_opts.items() if v is not None]
+            if used or z_effect is not None:
+                raise OptionError(f"{', '.join(used or ['--z-effect'])}: with a SHEET the "
+                                  "moderation's pairs come from its rows; give a pair without "
+                                  "rows with --pair (e.g. --pair Z-Y=0.1)")
+            given = {}
+            if xz_r:
+                given["X-Z"], names["X-Z"] = xz_r, "--xz-r (r of X and Z)"
         else:
-            med = [f"M{i}" for i in range(1, max(len(a_), len(b_), 2) + 1)]
-        for i, v in enumerate(a_):
-            pairs[f"X-{med[i]}"], names[f"X-{med[i]}"] = v, f"--a #{i + 1} (r of X and {med[i]})"
-        for i, v in enumerate(b_):
-            pairs[f"{med[i]}-Y"], names[f"{med[i]}-Y"] = v, f"--b #{i + 1} (r of {med[i]} and Y)"
-        if direct is not None:
-            pairs["X-Y"], names["X-Y"] = direct, "--direct (r of X and Y)"
-        if m1_m2 is not None:
-            pairs["M1-M2"], names["M1-M2"] = m1_m2, "--m1-m2 (r of M1 and M2)"
-        from .pathsheet import split_path
-        for text in pair_values:
-            key, eq, val = text.partition("=")
-            pr = split_path(key)
-            try:
-                r = float(val) if eq else None
-            except ValueError:
-                r = None
-            if pr is None or r is None:
-                raise OptionError(f"--pair {text!r}: write a pair and its correlation, "
-                                  "e.g. --pair X-M2=0.2")
-            k = "-".join(pr)
-            if k in pairs or "-".join(pr[::-1]) in pairs:
-                raise OptionError(f"--pair {text!r}: the pair {k} is given twice")
-            pairs[k], names[k] = r, f"--pair {text}"
-        ps = pool_paths(sheet, design_name, pairs, option_names=names)
-        _echo_warnings(ps.warnings)
-        scenarios = dict(ps.designs)
-    elif as_correlations:
-        if not paths_file:
-            raise OptionError("--correlations reads the correlations from --paths-file")
-        if design_name == "moderation":
-            raise OptionError("--correlations applies to the mediation designs only")
+            given, names = _mediation_pairs(design_name, a_paths, b_paths, direct, m1_m2)
+        for key, (r, how) in _pair_values(pair_values, given).items():
+            given[key], names[key] = r, how
+    elif paths_file and as_correlations:
         extra = [k for k, v in {**mediation_opts, "--direct": direct,
                                 "--mediator-r": mediator_r or None}.items() if v]
+        if design_name == "moderation":
+            raise OptionError("--correlations applies to the mediation designs only")
         if extra:
             raise OptionError(f"with --correlations every path comes from the correlations; "
                               f"drop {', '.join(extra)}")
-        scenarios = {label: sd.design_from_correlations(design_name, values)
-                     for label, values in sd.read_paths_file(paths_file).items()}
-    elif paths_file:
-        scenarios = {}
-        for label, values in sd.read_paths_file(paths_file).items():
-            both = sorted(set(values) & set(given))
-            if both:
-                raise OptionError(f"{', '.join(both)} is given both in {paths_file} "
-                                  f"(scenario {label}) and as an option; give it once")
-            scenarios[label] = sd.design_from_paths(design_name, {**given, **values},
-                                                    hints=hints, **settings)
-    else:
-        scenarios = {"": sd.design_from_paths(design_name, given, hints=hints, **settings)}
+    if stress and not sheet:
+        raise OptionError("--stress checks the planning of a SHEET of path literatures; give "
+                          "one")
     if out_dir:
         from .outputs import check_out
         check_out(out_dir, force)
-    bar = None
-    if sys.stderr.isatty():
-        def bar(done, total):
-            filled = int(30 * done / total)
-            click.echo(f"\rsimulating [{'#' * filled}{'.' * (30 - filled)}] {done}/{total}",
-                       err=True, nl=done == total)
-    common = dict(test=test_name, alpha=alpha, seed=seed, draws=draws, resamples=resamples,
-                  workers=workers, scheduler=scheduler, progress=bar)
-    note = ""
-    if test_name == "sobel":
-        note = ("Sobel's test is shown for comparison only: it is low-powered "
-                "(MacKinnon et al. 2002); plan with joint, monte-carlo or bootstrap.")
-    if fixed_n is not None:
-        res = [sd.simulate_power(d, fixed_n, reps=reps, stream=i, **common)
-               for i, d in enumerate(scenarios.values())]
+    if stress:
+        from .pathsjob import paths_stress
+        res = paths_stress(design_name, sheet, given=given, option_names=names,
+                           settings=settings, literatures=literatures, seed=seed,
+                           workers=workers, scheduler=scheduler, progress=_simulation_bar())
+        if out_dir:
+            from .outputs import write
+            doc = json.dumps(res.to_dict(), indent=2, allow_nan=False, ensure_ascii=False)
+            write({"results.json": (doc + "\n").encode(),
+                   "report.md": f"# Stress check\n\n```\n{res.text()}```\n".encode()},
+                  out_dir, force=force)
         if as_json:
-            doc = {"schema": "pooler.paths-power/1",
-                   "scenarios": [dict(r.to_dict(), scenario=lab)
-                                 for lab, r in zip(scenarios, res)]}
-            if ps is not None:
-                doc["paths"] = ps.to_dict()
-            _print_json(doc)
+            _print_json(res.to_dict())
         else:
-            if ps is not None:
-                from .pathsreport import paths_sheet_text
-                click.echo(paths_sheet_text(ps))
-            click.echo("\n".join((f"{lab}: " if lab else "") + power_text(r)
-                                  for lab, r in zip(scenarios, res)) + note, nl=bool(note))
+            click.echo(res.text(), nl=False)
         return
-    search_reps = reps or (200 if test_name == "bootstrap" else 1000)
-    common.pop("workers"), common.pop("scheduler")
-    with_pool = dict(workers=workers, scheduler=scheduler)
-    results = sd.plan_paths(scenarios, powers=powers or (0.8, 0.9, 0.95), reps=search_reps,
-                            **common, **with_pool)
-    test_used = results[0].test
-    methods = methods_paragraph(results, search_reps, draws, resamples)
-    options = {"design": design_name, "test": test_used, "alpha": alpha, "reps": search_reps,
-               "draws": draws, "resamples": resamples, "seed": seed,
-               "paths_file": paths_file, "sheet": sheet}
+    from .pathsjob import paths_job
+    job = paths_job(design_name, sheet=sheet or None, given=given, option_names=names,
+                    paths_file=paths_file, as_correlations=as_correlations, settings=settings,
+                    hints=hints, test=test_name, fixed_n=fixed_n, powers=powers, alpha=alpha,
+                    reps=reps, draws=draws, resamples=resamples, seed=seed, workers=workers,
+                    scheduler=scheduler, progress=_simulation_bar())
+    _echo_paths_job(job, out_dir if fixed_n is None else None, fmt, force, as_json)
+
+
+def _mediation_pairs(design_name, a_paths, b_paths, direct, m1_m2):
+    """With a SHEET, --a, --b, --direct and --m1-m2 give the correlations of mediation pairs
+    without rows: pair -> value and pair -> how it was given."""
+    from .errors import OptionError
+    pairs, names = {}, {}
+    a_, b_ = list(a_paths), list(b_paths)
+    if design_name == "simple-mediation":
+        if len(a_) > 1 or len(b_) > 1:
+            raise OptionError("simple mediation takes one --a and one --b")
+        med = ["M"]
+    else:
+        med = [f"M{i}" for i in range(1, max(len(a_), len(b_), 2) + 1)]
+    for i, v in enumerate(a_):
+        pairs[f"X-{med[i]}"], names[f"X-{med[i]}"] = v, f"--a #{i + 1} (r of X and {med[i]})"
+    for i, v in enumerate(b_):
+        pairs[f"{med[i]}-Y"], names[f"{med[i]}-Y"] = v, f"--b #{i + 1} (r of {med[i]} and Y)"
+    if direct is not None:
+        pairs["X-Y"], names["X-Y"] = direct, "--direct (r of X and Y)"
+    if m1_m2 is not None:
+        pairs["M1-M2"], names["M1-M2"] = m1_m2, "--m1-m2 (r of M1 and M2)"
+    return pairs, names
+
+
+def _pair_values(pair_values, already) -> dict:
+    """--pair PAIR=R (repeatable) -> {pair: (r, how it was given)}."""
+    from .errors import OptionError
+    from .pathsheet import split_path
+    out: dict = {}
+    for text in pair_values:
+        key, eq, val = text.partition("=")
+        pr = split_path(key)
+        try:
+            r = float(val) if eq else None
+        except ValueError:
+            r = None
+        if pr is None or r is None:
+            raise OptionError(f"--pair {text!r}: write a pair and its correlation, "
+                              "e.g. --pair X-M2=0.2")
+        k = "-".join(pr)
+        if any(x in already or x in out for x in (k, "-".join(pr[::-1]))):
+            raise OptionError(f"--pair {text!r}: the pair {k} is given twice")
+        out[k] = (r, f"--pair {text}")
+    return out
+
+
+def _simulation_bar():
+    """A progress bar on stderr for the simulations, only when stderr is a terminal."""
+    if not sys.stderr.isatty():
+        return None
+
+    def bar(done, total):
+        filled = int(30 * done / total)
+        click.echo(f"\rsimulating [{'#' * filled}{'.' * (30 - filled)}] {done}/{total}",
+                   err=True, nl=done == total)
+    return bar
+
+
+def _echo_paths_job(job, out_dir, fmt, force, as_json):
+    """Warnings, files into out_dir (if any), then the JSON document or the text."""
+    _echo_warnings(job.warnings)
+    paths = []
     if out_dir:
         from .outputs import write
-        if ps is not None:
-            from .pathsreport import render_sheet_files
-            files = render_sheet_files(results, ps, options, methods, fmt)
-        else:
-            files = render_files(results, options, methods, fmt)
-        paths = write(files, out_dir, force=force)
+        paths = write(job.files(fmt), out_dir, force=force)
     if as_json:
-        from .pathsreport import SCHEMA
-        doc = {"schema": SCHEMA, "scenarios": [r.to_dict() for r in results],
-               "options": options, "methods": methods}
-        if ps is not None:
-            from .pathsreport import sheet_methods_paragraph
-            doc["paths"] = ps.to_dict()
-            doc["methods"] = sheet_methods_paragraph(ps) + " " + methods
-        _print_json(doc)
-    else:
-        if ps is not None:
-            from .pathsreport import paths_sheet_text
-            click.echo(paths_sheet_text(ps))
-        click.echo(plan_text(results, note))
-        if out_dir:
-            click.echo(f"Written to {out_dir}/: " + ", ".join(p.name for p in paths))
+        _print_json(job.to_dict())
+        return
+    text = job.text()
+    click.echo(text, nl=not text.endswith("\n"))
+    if paths:
+        click.echo(f"Written to {out_dir}/: " + ", ".join(p.name for p in paths))
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -23,6 +23,11 @@ DESIGN_PARAMETERS = {
 #: The planned designs' names (the ``--design`` choices).
 PLANNED_DESIGNS = tuple(DESIGN_PARAMETERS)
 
+#: The simulated designs (pooler.simdesign; `pooler paths`, and `pooler run` with a path
+#: sheet), in the order the command line lists them.
+SIMULATED_DESIGNS = ("simple-mediation", "parallel-mediation", "serial-mediation",
+                     "moderation")
+
 #: Every design option, in the order of :class:`pooler.power.Design`'s fields.
 DESIGN_OPTIONS = ("ratio", "planned_r", "covariate_r", "attenuation", "predictors_added",
                   "predictors_total", "exact_r", "fixed_covariates")

@@ -8,9 +8,11 @@ metric it plans on (d or r), how a planning effect reaches its own metric, its d
 options it reads. :class:`pooler.power.Design`, :mod:`pooler.planning`, the reports and the
 command line all read from here; nothing else branches on a design's name.
 
-The simulated designs of ``pooler paths`` (:mod:`pooler.simdesign`) keep their own engine;
-:func:`simulated` lists them through the same interface (kind ``"simulated"``), so that
-:func:`catalogue` shows every design pooler can plan.
+The simulated designs of ``pooler paths`` and ``pooler run SHEET --design <simulated>``
+(:mod:`pooler.simdesign`) keep their own engine; :func:`simulated` lists them through the
+same interface (kind ``"simulated"``; :func:`get_simulated` finds one), so that
+:func:`catalogue` shows every design pooler can plan, and the command line's light list
+(:data:`pooler.design_choices.SIMULATED_DESIGNS`) is checked against it.
 
 To add a planned design, write its section below (or in a module of its own that calls
 :func:`register`), add its name and options to :mod:`pooler.design_choices` (the light list
@@ -176,6 +178,16 @@ def simulated() -> tuple:
         first = (cls.__doc__ or "").strip().split("\n\n")[0]
         out.append(SimulatedDesign(name, " ".join(first.split()), cls))
     return tuple(out)
+
+
+def get_simulated(name: str) -> SimulatedDesign:
+    """The registry entry of a simulated design (``pooler paths``, or ``pooler run`` with a
+    path sheet)."""
+    for entry in simulated():
+        if entry.name == name:
+            return entry
+    raise OptionError(f"`design` must be one of {', '.join(e.name for e in simulated())}, "
+                      f"not {name!r}")
 
 
 def catalogue() -> tuple:

@@ -232,11 +232,33 @@ def sheet_methods_paragraph(ps) -> str:
         text += ("The pairs " + ", ".join(f"{p.path} = {p.values['realistic']:.3g}"
                                           for p in given)
                  + " had no literature and were fixed at the values given, in every scenario. ")
+    if ps.design_name == "moderation":
+        return text + _moderation_methods(ps)
     text += ("For each scenario, the scenario's value of every pair formed one correlation "
              "matrix, which was checked to be positive definite; the standardized paths were the "
              "regression coefficients it implies, as in meta-analytic path analysis "
              "(Viswesvaran & Ones, 1995).")
     return text
+
+
+def _moderation_methods(ps) -> str:
+    from .pathsheet import SLOPES
+    if any(p.path in SLOPES for p in ps.paths):
+        return ("The simple slopes were read as the correlations of X and Y within two equal "
+                "groups of the moderator, X unrelated to the groups; with Var(Y) = 1 each "
+                "within-group slope is s = q sigma, q = r / sqrt(1 - r^2), sigma^2 = "
+                "(1 - z^2) / (1 + (q_high^2 + q_low^2) / 2), z the correlation of the groups "
+                "with Y; the main effect of X is the mean of the two slopes and the "
+                "interaction half their difference. Each slope was pooled as its own "
+                "literature, so its scenarios are chosen separately: the cautious case of an "
+                "interaction (a weaker high slope with a stronger low one) is not what they "
+                "give; rows of the interaction itself (XZ-Y) avoid this.")
+    return ("For each scenario, the main effects were the standardized coefficients implied "
+            "by the correlations X-Y, Z-Y and X-Z (checked to form a positive definite "
+            "matrix), as in meta-analytic path analysis (Viswesvaran & Ones, 1995). The "
+            "interaction rows were read as the partial correlation r_p of the product term "
+            "with Y given X and Z; its f^2 = r_p^2 / (1 - r_p^2) (Cohen, 1988, ch. 9) fixed "
+            "the interaction coefficient, xz = r_p sqrt((1 - R^2_main) / Var(XZ)).")
 
 
 def diagram_figure(ps, *, ax=None):
@@ -250,6 +272,8 @@ def diagram_figure(ps, *, ax=None):
         ax = fig.add_subplot()
     else:
         fig = ax.figure
+    if ps.design_name == "moderation":
+        return _moderation_diagram(ps, ax, FancyArrowPatch, FancyBboxPatch)
     variables = ps.variables
     meds = [v for v in variables if v not in ("X", "Y")]
     pos = {"X": (0.08, 0.18), "Y": (0.92, 0.18)}
@@ -302,6 +326,55 @@ def diagram_figure(ps, *, ax=None):
     ax.set_title(f"{ps.design_name}: correlations of each pair, pooled and realistic",
                  fontsize=9, loc="left")
     return fig
+
+
+def _path_label(p) -> str:
+    if p.source == "option":
+        return f"r = {p.values['realistic']:.2f} (given)"
+    return f"r {p.pooled:.2f} pooled\n{p.values['realistic']:.2f} realistic (k={p.k})"
+
+
+def _moderation_diagram(ps, ax, arrow_patch, box_patch):
+    """X -> Y with Z pointing at that arrow (the interaction); Z -> Y; X - Z dashed."""
+    pos = {"X": (0.1, 0.2), "Y": (0.9, 0.2), "Z": (0.5, 0.85)}
+    w, h = 0.11, 0.09
+    for v, (x, y) in pos.items():
+        ax.add_patch(box_patch((x - w / 2, y - h / 2), w, h,
+                               boxstyle="round,pad=0.01,rounding_size=0.02",
+                               fc="#dde6ee", ec="#34495e", lw=1.0))
+        ax.text(x, y, v, ha="center", va="center", fontsize=10, weight="bold",
+                color="#1f2d3a")
+    vals = {p.path: p for p in ps.paths}
+
+    def arrow(a, b, *, dashed=False, head=True, shrink_b=24):
+        ax.add_patch(arrow_patch(a, b, arrowstyle="-|>" if head else "-", mutation_scale=12,
+                                 lw=1.1, color="#4a5a6a", ls="--" if dashed else "-",
+                                 shrinkA=24, shrinkB=shrink_b))
+
+    def text(x, y, s):
+        ax.text(x, y, s, ha="center", va="center", fontsize=7, color="#1f2d3a",
+                bbox=dict(boxstyle="round,pad=0.2", fc="white", ec="none", alpha=0.9))
+    arrow(pos["X"], pos["Y"])
+    arrow(pos["Z"], pos["Y"])
+    arrow(pos["Z"], (0.5, 0.2), shrink_b=2)
+    if "X-Z" in vals:
+        arrow(pos["X"], pos["Z"], dashed=True, head=False)
+        text(0.24, 0.55, "X-Z: " + _path_label(vals["X-Z"]))
+    text(0.76, 0.55, "Z-Y: " + _path_label(vals["Z-Y"]))
+    if "XZ-Y" in vals:
+        text(0.3, 0.1, "X-Y: " + _path_label(vals["X-Y"]))
+        text(0.62, 0.42, "XZ-Y (interaction, partial r):\n" + _path_label(vals["XZ-Y"]))
+    else:
+        from .pathsheet import SLOPES
+        text(0.3, 0.1, "X-Y at high Z: " + _path_label(vals[SLOPES[0]]))
+        text(0.7, 0.1, "X-Y at low Z: " + _path_label(vals[SLOPES[1]]))
+        text(0.62, 0.42, "Z: two groups")
+    ax.set_xlim(-0.02, 1.02)
+    ax.set_ylim(0.0, 1.0)
+    ax.axis("off")
+    ax.set_title("moderation: correlations of each pair, pooled and realistic", fontsize=9,
+                 loc="left")
+    return ax.figure
 
 
 def render_sheet_files(results, ps, options: dict, methods: str, fmt_: str = "png") -> dict:

@@ -766,25 +766,28 @@ class _Runner:
             self._client.close()
         return False
 
-    def map(self, tasks, progress=None, offset=0, total=None):
+    def map(self, tasks, progress=None, offset=0, total=None, fn=None):
+        """``fn`` (default: one chunk of replications) applied to each task, in order;
+        ``fn`` must be importable by the workers (a module-level function)."""
+        fn = fn or _run_chunk
         total = total or len(tasks)
         if self._client is not None:
             from dask.distributed import as_completed
-            futs = self._client.map(_run_chunk, tasks, pure=False)
+            futs = self._client.map(fn, tasks, pure=False)
             for done, _ in enumerate(as_completed(futs), start=1):
                 if progress:
                     progress(offset + done, total)
             return self._client.gather(futs)
         if self._pool is not None:
             from concurrent.futures import as_completed
-            futs = [self._pool.submit(_run_chunk, t) for t in tasks]
+            futs = [self._pool.submit(fn, t) for t in tasks]
             for done, _ in enumerate(as_completed(futs), start=1):
                 if progress:
                     progress(offset + done, total)
             return [f.result() for f in futs]
         out = []
         for done, t in enumerate(tasks, start=1):
-            out.append(_run_chunk(t))
+            out.append(fn(t))
             if progress:
                 progress(offset + done, total)
         return out
@@ -1448,3 +1451,73 @@ def design_from_correlations(name: str, r: dict):
                           "common residual correlation: make them equal")
     return ParallelMediation(tuple(a), tuple(float(x) for x in coef[1:]), float(coef[0]),
                              mediator_r=float(partial[0]))
+
+
+def moderation_from_correlations(r: dict, *, binary_moderator: bool = False) -> Moderation:
+    """A moderation design from pooled correlations: ``X-Y``, ``Z-Y``, ``X-Z`` and the
+    interaction's partial correlation ``XZ-Y`` (the product term's association with Y given
+    X and Z, which is what the t of the interaction coefficient gives).
+
+    The main effects are the standardized coefficients the X, Z, Y correlations imply,
+    (x, z) = R_XZ^-1 (r_XY, r_ZY), as in meta-analytic path analysis (Viswesvaran & Ones
+    1995); the centred product of symmetric X and Z is uncorrelated with both, so adding it
+    leaves them unchanged. The interaction coefficient follows from its partial correlation
+    r_p: Cohen's f² of one added predictor is r_p² / (1 - r_p²) (Cohen 1988, eq. 9.2.3 with
+    the partial R² of the added term), and f² = xz² Var(XZ) / (1 - R²_main - xz² Var(XZ)),
+    so xz = r_p sqrt((1 - R²_main) / Var(XZ)), with R²_main = x r_XY + z r_ZY and Var(XZ) =
+    1 + r_XZ² (normal X, Z) or 1 - r_XZ² (a -1/+1 moderator in two equal groups).
+
+    Examples
+    --------
+    >>> m = moderation_from_correlations({"X-Y": 0.3, "Z-Y": 0.2, "X-Z": 0.0, "XZ-Y": 0.15})
+    >>> round(m.x_effect, 4), round(m.z_effect, 4), round(m.interaction, 4)
+    (0.3, 0.2, 0.1399)
+    >>> r_p = 0.15; round(m.interaction_f2(), 6) == round(r_p ** 2 / (1 - r_p ** 2), 6)
+    True
+    """
+    # validation
+    need = ("X-Y", "Z-Y", "X-Z", "XZ-Y")
+    missing = [k for k in need if k not in r]
+    if missing:
+        raise OptionError(f"moderation from correlations needs {', '.join(missing)}")
+    for k in need:
+        if not -1 < r[k] < 1:
+            raise OptionError(f"the correlation {k} = {r[k]!r} must lie between -1 and 1")
+    rxz, rxy, rzy, rp = (float(r[k]) for k in ("X-Z", "X-Y", "Z-Y", "XZ-Y"))
+    mat = np.array([[1, rxz, rxy], [rxz, 1, rzy], [rxy, rzy, 1]])
+    if np.linalg.eigvalsh(mat).min() <= 1e-10:
+        raise OptionError("the correlations X-Y, Z-Y and X-Z cannot occur together (their "
+                          "matrix is not positive definite)")
+    x, z = np.linalg.solve(mat[:2, :2], mat[:2, 2])
+    r2_main = x * rxy + z * rzy
+    var_xz = 1 - rxz ** 2 if binary_moderator else 1 + rxz ** 2
+    xz = rp * math.sqrt((1 - r2_main) / var_xz)
+    return Moderation(float(x), float(z), float(xz), xz_r=rxz, binary_moderator=binary_moderator)
+
+
+def moderation_from_group_correlations(r_high: float, r_low: float, z_y: float = 0.0
+                                       ) -> Moderation:
+    """A moderation design with a binary moderator (two equal groups coded +1 / -1, X
+    independent of the group) from the X-Y correlation within each group and the
+    correlation of the group with Y.
+
+    With Y = x X + z G + xz X G + e and Var(Y) = 1, the slope of X in group +1 is
+    s_h = x + xz and in group -1 is s_l = x - xz; within a group the X-Y correlation is
+    r = s / sqrt(s² + σ²), so s = q σ with q = r / sqrt(1 - r²), and Var(Y) = 1 gives
+    σ² = (1 - z²) / (1 + (q_h² + q_l²) / 2); corr(G, Y) = z. Then x = (s_h + s_l) / 2 and
+    xz = (s_h - s_l) / 2 (the design's :meth:`Moderation.from_slopes`).
+
+    Examples
+    --------
+    >>> m = moderation_from_group_correlations(0.4, 0.1, 0.2)
+    >>> round(m.x_effect + m.interaction, 4), round(m.x_effect - m.interaction, 4)
+    (0.4077, 0.0939)
+    """
+    # validation
+    for name, v in (("r_high", r_high), ("r_low", r_low), ("z_y", z_y)):
+        if not -1 < v < 1:
+            raise OptionError(f"`{name}` must lie strictly between -1 and 1, not {v!r}")
+    qh, ql = (v / math.sqrt(1 - v * v) for v in (r_high, r_low))
+    sigma = math.sqrt((1 - z_y ** 2) / (1 + (qh * qh + ql * ql) / 2))
+    return Moderation.from_slopes(qh * sigma, ql * sigma, z_effect=float(z_y),
+                                  binary_moderator=True)

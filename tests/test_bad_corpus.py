@@ -1,6 +1,7 @@
 """The corpus of bad sheets (tests/bad_sheets/, listed in expected.csv with the fragment,
-row and column each message must name): `pooler run` on each exits 2 with one clear line,
-no traceback, and writes nothing."""
+row and column each message must name): `pooler run` on each (with `--design` for the path
+sheets of the simulated designs) exits 2 with one clear line per problem, no traceback, and
+writes nothing."""
 from __future__ import annotations
 
 import csv
@@ -14,13 +15,15 @@ CASES = list(csv.DictReader(open(HERE / "expected.csv", encoding="utf-8")))
 
 def test_corpus_is_large_enough():
     assert len(CASES) >= 75
+    assert sum(1 for c in CASES if c["design"]) >= 12   # path sheets
     assert all((HERE / c["file"]).exists() for c in CASES)
 
 
 @pytest.mark.parametrize("case", CASES, ids=[c["file"] for c in CASES])
 def test_bad_sheet(case, run_cli, tmp_path):
     out = tmp_path / "out"
-    res = run_cli("run", HERE / case["file"], "--out", out)
+    design = ["--design", case["design"]] if case.get("design") else []
+    res = run_cli("run", HERE / case["file"], "--out", out, *design)
     assert "Traceback" not in res.output
     err = res.stderr.strip()
     where = [case["file"]]

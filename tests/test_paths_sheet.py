@@ -222,7 +222,7 @@ def test_sheet_mistakes_in_options_exit_2(tmp_path):
     res = run(main, ["paths", str(s), "--design", "simple-mediation"])
     assert res.exit_code == 2 and "needs a 'path' column" in res.output and "row 1" in res.output
     res = run(main, ["paths", str(s), "--design", "moderation", "--interaction", "0.1"])
-    assert res.exit_code == 2 and "mediation designs" in res.output
+    assert res.exit_code == 2 and "--interaction: with a SHEET" in res.output
     res = run(main, ["paths", str(s), "--design", "parallel-mediation", "--mediator-r", "0.2"])
     assert res.exit_code == 2 and "--mediator-r does not apply" in res.output
 

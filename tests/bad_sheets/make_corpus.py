@@ -3,7 +3,8 @@
 Each file is a sheet a user could plausibly produce by hand; ``expected.csv`` lists, per
 file, a fragment of the message pooler must give, the row and column it must name
 (empty when the problem is not in one cell), the exit code (2: refused; 0: read with a
-warning) and how many problems the message lists. All content is invented.
+warning), how many problems the message lists and, for a path sheet, the simulated design it
+is run with (``pooler run FILE --design DESIGN``). All content is invented.
 """
 from __future__ import annotations
 
@@ -148,9 +149,55 @@ WARN = {
                                     'Cole 2003,"t(38) = 2.10",20,20\n',
                                     "moves the result across .05", "2", "reported"),
 }
+# Path sheets (a 'path' column) for the simulated designs: run with the design in the last
+# field (expected.csv's 'design' column; `pooler run FILE --design DESIGN`).
+P = "study,path,stat,value,n,df,predictors\n"
+MED = ("Ash 2001,X-M,r,0.3,120,,\nBay 2002,M-Y,r,0.3,110,,\nCole 2003,X-Y,r,0.1,90,,\n")
+MOD = ("Ash 2001,X-Y,r,0.3,120,,\nBay 2002,Z-Y,r,0.2,110,,\nCole 2003,XZ-Y,coef_t,2.2,,150,3\n")
+PATHS = {
+    "paths_empty_path.csv": (P + MED + "Dorn 2004,,r,0.2,80,,\n", "'path' is empty", "5",
+                             "path", "simple-mediation"),
+    "paths_not_a_pair.csv": (P + MED + "Dorn 2004,X,r,0.2,80,,\n",
+                             "is not a pair of two variables", "5", "path", "simple-mediation"),
+    "paths_same_variable.csv": (P + MED + "Dorn 2004,M-M,r,0.2,80,,\n",
+                                "is not a pair of two variables", "5", "path",
+                                "simple-mediation"),
+    "paths_unknown_variable.csv": (P + MED + "Dorn 2004,X-W,r,0.2,80,,\n",
+                                   "names W, which is not a variable of simple-mediation", "5",
+                                   "path", "simple-mediation"),
+    "paths_fifth_mediator.csv": (P + "Ash 2001,X-M1,r,0.3,120,,\nBay 2002,X-M5,r,0.2,90,,\n",
+                                 "parallel mediation takes 2 to 4 mediators", "3", "path",
+                                 "parallel-mediation"),
+    "paths_r_above_one.csv": (P + MED + "Dorn 2004,M-Y,r,1.2,80,,\n", "r = 1.2 is impossible",
+                              "5", "value", "simple-mediation"),
+    "paths_coef_t_without_df.csv": (P + MED + "Dorn 2004,M-Y,coef_t,2.4,,,\n",
+                                    "needs the residual df", "5", "n", "simple-mediation"),
+    "paths_std_coef_many_predictors.csv": (P + MED + "Dorn 2004,M-Y,std_coef,0.3,80,,3\n",
+                                           "is not the correlation of the pair", "5", "stat",
+                                           "simple-mediation"),
+    "paths_interaction_std_coef.csv": (P + MOD + "Dorn 2004,XZ-Y,std_coef,0.15,200,,3\n",
+                                       "is not the correlation of the pair", "5", "stat",
+                                       "moderation"),
+    "paths_product_with_x.csv": (P + MOD + "Dorn 2004,X-XZ,r,0.1,80,,\n",
+                                 "uncorrelated with X and with Z by construction", "5", "path",
+                                 "moderation"),
+    "paths_slopes_and_interaction.csv": (P + MOD + "Dorn 2004,X-Y at high Z,r,0.4,80,,\n"
+                                         "Dorn 2004,X-Y at low Z,r,0.1,80,,\n",
+                                         "gives the interaction by simple slopes", "2", "path",
+                                         "moderation"),
+    "paths_slope_misspelt.csv": (P + "Ash 2001,X-Y at hi Z,r,0.4,80,,\n"
+                                 "Ash 2001,X-Y at low Z,r,0.1,80,,\nBay 2002,Z-Y,r,0.1,90,,\n",
+                                 "write it like X-Y, XZ-Y (the interaction) or X-Y at high Z",
+                                 "2", "path", "moderation"),
+    "paths_many_problems.csv": (P + MED + "Dorn 2004,M-Y,r,1.2,80,,\nEast 2005,X-Q,r,0.2,80,,\n"
+                                "Fenn 2006,,r,0.2,80,,\n",
+                                "[problem 1 of 3; the others follow]", "5", "value",
+                                "simple-mediation"),
+}
 #: How many problems the message must list (default 1).
 PROBLEMS = {"many_problems.csv": 4, "many_conversion_problems.csv": 2,
-            "formula_without_value.xlsx": 2}
+            "formula_without_value.xlsx": 2, "paths_slopes_and_interaction.csv": 2,
+            "paths_many_problems.csv": 3}
 
 BYTES = {
     "latin1_accents.csv": ("study,stat,value,n1,n2\nMüller 2003,t,2.1,20,20\n".encode("latin-1"),
@@ -204,19 +251,22 @@ def main():
     rows = []
     for name, (text, frag, row, col) in TEXT.items():
         (HERE / name).write_text(text, encoding="utf-8")
-        rows.append((name, frag, row, col, 2, PROBLEMS.get(name, 1)))
+        rows.append((name, frag, row, col, 2, PROBLEMS.get(name, 1), ""))
     for name, (text, frag, row, col) in WARN.items():
         (HERE / name).write_text(text, encoding="utf-8")
-        rows.append((name, frag, row, col, 0, 0))
+        rows.append((name, frag, row, col, 0, 0, ""))
     for name, (data, frag, row, col) in BYTES.items():
         (HERE / name).write_bytes(data)
-        rows.append((name, frag, row, col, 2, 1))
+        rows.append((name, frag, row, col, 2, 1, ""))
     for name, (wb, frag, row, col) in xlsx_cases().items():
         wb.save(HERE / name)
-        rows.append((name, frag, row, col, 2, PROBLEMS.get(name, 1)))
+        rows.append((name, frag, row, col, 2, PROBLEMS.get(name, 1), ""))
+    for name, (text, frag, row, col, design) in PATHS.items():
+        (HERE / name).write_text(text, encoding="utf-8")
+        rows.append((name, frag, row, col, 2, PROBLEMS.get(name, 1), design))
     with open(HERE / "expected.csv", "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh)
-        w.writerow(["file", "fragment", "row", "column", "exit", "problems"])
+        w.writerow(["file", "fragment", "row", "column", "exit", "problems", "design"])
         w.writerows(sorted(rows))
     print(f"{len(rows)} bad sheets written")
 

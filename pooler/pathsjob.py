@@ -1,0 +1,221 @@
+"""The simulated-design job: paths (given, from a paths file, or pooled from a sheet) ->
+one design per scenario -> sample size (or power at one n) by simulation -> tables,
+JSON document and files.
+
+One implementation behind two commands: ``pooler paths`` and ``pooler run SHEET --design
+<a simulated design>`` both parse their options and call :func:`paths_job`; neither
+computes anything itself.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable
+
+from ._results import to_jsonable
+from .errors import OptionError
+
+SOBEL_NOTE = ("Sobel's test is shown for comparison only: it is low-powered "
+              "(MacKinnon et al. 2002); plan with joint, monte-carlo or bootstrap.")
+
+
+@dataclass(frozen=True)
+class PathsJob:
+    """What :func:`paths_job` computed.
+
+    Attributes
+    ----------
+    design_name : str
+    scenarios : dict
+        Scenario label -> design ("" when there is one unnamed scenario).
+    results : tuple
+        :class:`~pooler.simdesign.SampleSizeResult` per scenario (a search), or
+        :class:`~pooler.simdesign.PowerResult` per scenario (at ``fixed_n``).
+    fixed_n : int or None
+    options : dict
+        The settings that reproduce the job (recorded in results.json).
+    methods : str
+        The methods paragraph ('' at a fixed n).
+    sheet : pooler.pathsheet.PathSheet or None
+        Every path's pooling, when the paths came from a sheet.
+    note : str
+        A note printed under the table (Sobel's test is for comparison only).
+    """
+
+    design_name: str
+    scenarios: dict
+    results: tuple
+    fixed_n: int | None
+    options: dict
+    methods: str
+    sheet: object = None
+    note: str = ""
+    warnings: tuple = field(default=())
+
+    def to_dict(self) -> dict:
+        """The JSON document: ``pooler.paths/1`` (a search) or ``pooler.paths-power/1``."""
+        if self.fixed_n is not None:
+            doc = {"schema": "pooler.paths-power/1",
+                   "scenarios": [dict(r.to_dict(), scenario=lab)
+                                 for lab, r in zip(self.scenarios, self.results)]}
+        else:
+            from .pathsreport import SCHEMA
+            doc = {"schema": SCHEMA, "scenarios": [r.to_dict() for r in self.results],
+                   "options": self.options, "methods": self.methods}
+        if self.sheet is not None:
+            doc["paths"] = self.sheet.to_dict()
+            if self.fixed_n is None:
+                from .pathsreport import sheet_methods_paragraph
+                doc["methods"] = sheet_methods_paragraph(self.sheet) + " " + self.methods
+        return to_jsonable(doc)
+
+    def text(self) -> str:
+        """The terminal text: every path's pooling (from a sheet), then the planning table
+        (or the power at the fixed n) of each scenario."""
+        from .pathsreport import paths_sheet_text, plan_text, power_text
+        out = paths_sheet_text(self.sheet) + "\n" if self.sheet is not None else ""
+        if self.fixed_n is not None:
+            out += "\n".join((f"{lab}: " if lab else "") + power_text(r)
+                             for lab, r in zip(self.scenarios, self.results))
+            return out + (self.note + "\n" if self.note else "")
+        return out + plan_text(self.results, self.note)
+
+    def files(self, fmt: str = "png") -> dict:
+        """Every output file as name -> bytes: results.json, report.md, a power-curve figure
+        per scenario and, from a sheet, the path diagram (at a fixed n: results.json and
+        report.md)."""
+        import json
+        from .pathsreport import render_files, render_sheet_files
+        if self.fixed_n is not None:   # power at one n: the document and the tables
+            doc = json.dumps(self.to_dict(), indent=2, allow_nan=False, ensure_ascii=False)
+            md = f"# Power by simulation at n = {self.fixed_n:,}\n\n```\n{self.text()}```\n"
+            return {"results.json": (doc + "\n").encode(), "report.md": md.encode()}
+        if self.sheet is not None:
+            return render_sheet_files(self.results, self.sheet, self.options, self.methods,
+                                      fmt)
+        return render_files(self.results, self.options, self.methods, fmt)
+
+
+def _check_sheet_settings(settings: dict) -> None:
+    """Design settings that a sheet's pooled correlations already determine are refused."""
+    if settings.get("mediator_r"):
+        raise OptionError("`mediator_r` does not apply with a sheet: the mediators' "
+                          "residual correlation follows from their correlation (rows "
+                          "for M1-M2, or the M1-M2 pair given as an option)")
+    if any(settings.get(k, 1.0) != 1.0 for k in ("x_reliability", "z_reliability")):
+        raise OptionError("`x_reliability` and `z_reliability` do not apply with a sheet: "
+                          "the pooled correlations are observed-score values, already "
+                          "attenuated by the earlier studies' measurement error; plan "
+                          "with them as they are (or give the paths as options)")
+
+
+def scenarios_from_paths(design_name: str, given: dict, *, paths_file=None,
+                         as_correlations: bool = False, settings: dict | None = None,
+                         hints: dict | None = None) -> dict:
+    """The designs to plan, by scenario label, from path values given directly (``given``:
+    path -> value), and optionally a paths file of scenarios (values, or correlations with
+    ``as_correlations``)."""
+    from . import simdesign as sd
+    settings = dict(settings or {})
+    if as_correlations:
+        if not paths_file:
+            raise OptionError("`as_correlations` reads the correlations from `paths_file`")
+        return {label: sd.design_from_correlations(design_name, values)
+                for label, values in sd.read_paths_file(paths_file).items()}
+    if paths_file:
+        scenarios = {}
+        for label, values in sd.read_paths_file(paths_file).items():
+            both = sorted(set(values) & set(given))
+            if both:
+                raise OptionError(f"{', '.join(both)} is given both in {paths_file} "
+                                  f"(scenario {label}) and as an option; give it once")
+            scenarios[label] = sd.design_from_paths(design_name, {**given, **values},
+                                                    hints=hints, **settings)
+        return scenarios
+    return {"": sd.design_from_paths(design_name, given, hints=hints, **settings)}
+
+
+def paths_job(design_name: str, *, sheet=None, given: dict | None = None,
+              option_names: dict | None = None, paths_file=None, as_correlations: bool = False,
+              settings: dict | None = None, hints: dict | None = None, test: str | None = None,
+              fixed_n: int | None = None, powers=(0.8, 0.9, 0.95), alpha: float = 0.05,
+              reps: int | None = None, draws: int = 1000, resamples: int = 1000,
+              seed: int = 2026, workers: int = 1, scheduler=None,
+              progress: Callable | None = None, estimator: str = "reml",
+              interval: str = "hksj", adjuster: str = "default", safeguard_level: float = 0.6,
+              sample_r: float = 0.5, option_hints: bool = True) -> PathsJob:
+    """Plan a simulated design (mediation or moderation).
+
+    With ``sheet``, each pair of the model is pooled from its rows
+    (:func:`pooler.pathsheet.pool_paths`, with the analysis options ``estimator`` ...
+    ``sample_r``) and ``given`` holds the correlations of pairs without rows; otherwise
+    ``given`` holds the standardized paths (and ``paths_file`` scenarios of them);
+    ``option_hints`` lets a missing pair's message name ``pooler paths``' own options. Each
+    scenario is then searched for the n reaching ``powers``
+    (:func:`pooler.simdesign.plan_paths`), or simulated at ``fixed_n``
+    (:func:`pooler.simdesign.simulate_power`).
+
+    Returns
+    -------
+    PathsJob
+    """
+    from . import simdesign as sd
+    # validation
+    if design_name not in sd.DESIGNS:
+        raise OptionError(f"`design` must be one of {', '.join(sd.DESIGNS)}, "
+                          f"not {design_name!r}")
+    settings = dict(settings or {})
+    given = dict(given or {})
+    ps = None
+    if sheet is not None:
+        from .pathsheet import pool_paths
+        if paths_file or as_correlations:
+            raise OptionError("give the paths either in a sheet or in `paths_file`, not both")
+        _check_sheet_settings(settings)
+        ps = pool_paths(sheet, design_name, given, option_names=option_names,
+                        estimator=estimator, interval=interval, adjuster=adjuster,
+                        safeguard_level=safeguard_level, sample_r=sample_r,
+                        binary_moderator=bool(settings.get("binary_moderator")),
+                        option_hints=option_hints)
+        scenarios = dict(ps.designs)
+    else:
+        scenarios = scenarios_from_paths(design_name, given, paths_file=paths_file,
+                                         as_correlations=as_correlations, settings=settings,
+                                         hints=hints)
+    common = dict(test=test, alpha=alpha, seed=seed, draws=draws, resamples=resamples,
+                  progress=progress)
+    note = SOBEL_NOTE if test == "sobel" else ""
+    warnings = ps.warnings if ps is not None else ()
+    if fixed_n is not None:
+        res = tuple(sd.simulate_power(d, fixed_n, reps=reps, stream=i, workers=workers,
+                                      scheduler=scheduler, **common)
+                    for i, d in enumerate(scenarios.values()))
+        return PathsJob(design_name, scenarios, res, fixed_n, {}, "", ps, note, warnings)
+    search_reps = reps or (200 if test == "bootstrap" else 1000)
+    results = sd.plan_paths(scenarios, powers=tuple(powers or (0.8, 0.9, 0.95)),
+                            reps=search_reps, workers=workers, scheduler=scheduler, **common)
+    from .pathsreport import methods_paragraph
+    methods = methods_paragraph(results, search_reps, draws, resamples)
+    options = {"design": design_name, "test": results[0].test, "alpha": alpha,
+               "reps": search_reps, "draws": draws, "resamples": resamples, "seed": seed,
+               "paths_file": str(paths_file) if paths_file else None,
+               "sheet": str(sheet) if sheet is not None else None}
+    return PathsJob(design_name, scenarios, results, None, options, methods, ps, note, warnings)
+
+
+def paths_stress(design_name: str, sheet, *, given: dict | None = None,
+                 option_names: dict | None = None, settings: dict | None = None,
+                 literatures: int = 40, selection=(1.0, 0.2), seed: int = 2026,
+                 workers: int = 1, scheduler=None, progress: Callable | None = None,
+                 option_hints: bool = True):
+    """Pool ``sheet``'s paths as :func:`paths_job` does, then stress-check that route
+    (:func:`pooler.pathstress.stress_paths`): literatures like the sheet's, simulated from
+    its realistic correlations, each planned through the same stages."""
+    from .pathsheet import pool_paths
+    from .pathstress import stress_paths
+    settings = dict(settings or {})
+    _check_sheet_settings(settings)
+    ps = pool_paths(sheet, design_name, dict(given or {}), option_names=option_names,
+                    binary_moderator=bool(settings.get("binary_moderator")),
+                    option_hints=option_hints)
+    return stress_paths(ps, literatures=literatures, selection=selection, seed=seed,
+                        workers=workers, scheduler=scheduler, progress=progress)
