@@ -328,6 +328,8 @@ class _Raw:
     #: for a partial correlation: the n of the zero-order correlation with the same
     #: sampling distribution, n - q (Fisher 1924); Fisher z's variance is 1/(this - 3)
     n_fisher: float | None = None
+    #: the ``published`` column, normalised ("published", "unpublished" or None)
+    published: str | None = None
 
     @property
     def a(self) -> float:
@@ -400,6 +402,26 @@ def _design(ctx: _Ctx, rec: Record) -> str:
         return "within"
     raise ctx.err(rec, "design", f"design '{rec.get('design')}' is not understood; "
                                  "use 'between' or 'within'")
+
+
+_PUBLISHED = {"yes": "published", "y": "published", "true": "published", "1": "published",
+              "published": "published", "no": "unpublished", "n": "unpublished",
+              "false": "unpublished", "0": "unpublished", "unpublished": "unpublished"}
+
+
+def _published(ctx: _Ctx, rec: Record) -> str | None:
+    """The ``published`` column as "published" / "unpublished" (empty: not said)."""
+    raw = rec.get("published")
+    if raw is None or str(raw).strip() == "":
+        return None
+    text = str(raw).strip().lower()
+    if text.endswith(".0"):   # 1.0 / 0.0 from a spreadsheet
+        text = text[:-2]
+    if text not in _PUBLISHED:
+        raise ctx.err(rec, "published", f"published '{raw}' is not understood; use 'yes' "
+                                        "(in a journal or book) or 'no' (thesis, preprint, "
+                                        "data shared on request ...)")
+    return _PUBLISHED[text]
 
 
 def _within_r(ctx: _Ctx, rec: Record, raw_notes: list[str]) -> float:
@@ -887,6 +909,7 @@ def convert(sheet: Sheet, metric: str = "d", *, within_r: float = 0.5,
             raw = CONVERTERS[rec.stat](ctx, rec_used) if rec.stat in CONVERTERS else None
             if raw is None:
                 raise ctx.err(rec, "stat", f"unknown statistic '{rec.stat}'")
+            raw.published = _published(ctx, rec)
             y, v = _to_metric(raw, metric)
             if not (math.isfinite(y) and math.isfinite(v) and v > 0):
                 raise ctx.err(rec, "value", "the reported numbers give no finite effect with a "
@@ -1002,7 +1025,7 @@ def _unit(label, item, raw) -> Unit:
     rec, _, y, v = item
     return Unit(label=label, effect=y, variance=v, n_total=raw.n_total, n1=raw.n1, n2=raw.n2,
                 design=raw.design, rows=(rec.row,), year=rec.get("year"),
-                subgroup=rec.get("subgroup"), published=rec.get("published"),
+                subgroup=rec.get("subgroup"), published=raw.published,
                 within_r=raw.within_r)
 
 
