@@ -377,7 +377,7 @@ def _sign(ctx: _Ctx, rec: Record, value: float, *, required: bool) -> float:
     if d is None:
         if required:
             raise ctx.err(rec, "direction",
-                          f"'direction' is empty; a {rec.stat} carries no sign, so say '+' if the "
+                          f"'direction' is empty; {_a(rec.stat)} carries no sign, so say '+' if the "
                           "result favours the hypothesis and '-' if it goes the other way")
         return 1.0
     d = d.strip().lower()
@@ -392,6 +392,16 @@ def _sign(ctx: _Ctx, rec: Record, value: float, *, required: bool) -> float:
         raise ctx.err(rec, "direction", f"the value {value:g} is negative but direction is '+'; "
                                         "give the value unsigned with direction '-', or fix the sign")
     return s if value >= 0 else 1.0
+
+
+def _a(stat: str) -> str:
+    """'a t', 'an F', 'an r', 'a chi2': the article as the letter (or word) is spoken.
+
+    >>> _a("F"), _a("r"), _a("chi2"), _a("t"), _a("odds_ratio")
+    ('an F', 'an r', 'a chi2', 'a t', 'an odds_ratio')
+    """
+    vowel = "aefhilmnorsx" if len(stat) == 1 else "aeiou"
+    return ("an " if stat[:1].lower() in vowel else "a ") + stat
 
 
 def _design(ctx: _Ctx, rec: Record) -> str:
@@ -620,7 +630,8 @@ def _r_groups(ctx: _Ctx, rec: Record, notes: list[str]) -> tuple[float, float | 
     if n is None and rec.get("df") is not None:
         n = _n_from_df(ctx.positive(rec, "df", ""), 2.0, notes)
     if n is None:
-        raise ctx.err(rec, "n", f"'n' is empty; a {rec.stat} needs the total N")
+        raise ctx.err(rec, "n", f"'n' is empty; {_a(rec.stat)} needs the total N (add a column "
+                                "'n' if the sheet has none)")
     return n, None, None
 
 

@@ -863,6 +863,12 @@ def pool_studies(studies, metric, estimator="reml", interval="hksj", level=0.95,
                           f"random effects, {ESTIMATOR_NAMES[estimator]} tau^2, "
                           f"{INTERVAL_NAMES[interval]} interval")
     het = heterogeneity(y, v, fit.tau2, level)
+    if het.tau2_ci.high == 0.0:
+        notes.append(f"the Q-profile interval of tau^2 is [0, 0] because Q = {het.q:.2f} lies "
+                     f"below the {100 * (1 - level) / 2:g}th percentile of chi^2({k - 1}): the "
+                     "studies agree more closely than their sampling errors imply, so the "
+                     "interval is set to 0 (Viechtbauer 2007); this does not show that the "
+                     "effects are homogeneous, only that these studies cannot show any variation")
     pred = prediction_interval(fit, level)
     if k == 2:
         notes.append("two studies: the random-effects estimate is shown but tau^2 is very "

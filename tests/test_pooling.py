@@ -303,3 +303,14 @@ def test_published_against_unpublished_is_a_subgroup_comparison(write_sheet):
     doc = res.to_dict()
     assert doc["by_publication"]["q_between"] == bp.q_between
     assert "no 'published' column" in str(same.to_dict()["by_publication"])
+
+
+def test_an_empty_q_profile_interval_is_explained():
+    """Q(0) below the 2.5th percentile of chi^2(k - 1) puts both Q-profile limits at 0
+    (Viechtbauer 2007); the result says why instead of printing [0, 0] as if certain."""
+    from scipy import stats
+    y, v = np.array([0.30, 0.301, 0.299, 0.30]), np.array([0.04, 0.05, 0.04, 0.06])
+    res = pool(make_effects(y, v))
+    assert q_statistic(y, v) < stats.chi2.ppf(0.025, 3)
+    assert res.heterogeneity.tau2_ci.high == 0.0
+    assert any("Q-profile interval of tau^2 is [0, 0]" in n for n in res.notes)
