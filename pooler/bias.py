@@ -767,9 +767,13 @@ def adjuster_choices() -> tuple[str, ...]:
 
 
 def _egger_row(e) -> tuple:
+    k = e.df + 2
+    few = (f"; with {k} studies the test has little power to find asymmetry and a significant "
+           "one can come from heterogeneity alone (tests for funnel asymmetry need 10 or more "
+           "studies; Sterne et al. 2011, BMJ 343:d4002)" if k < 10 else "")
     return ("Egger's test", None, None,
             f"asymmetry: intercept {e.estimate:.2f} [{e.ci.low:.2f}, {e.ci.high:.2f}], "
-            f"{p_text(e.p)}")
+            f"{p_text(e.p)}{few}")
 
 
 def _selection_note(r) -> str:

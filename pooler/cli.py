@@ -373,8 +373,9 @@ def _planning_options(f=None, *, simulated: bool = False):
                      help="Expected fraction of participants lost; totals to recruit are "
                           "inflated to n / (1 - attrition)."),
         click.option("--n", "n_total", type=click.IntRange(min=1), default=None,
-                     help="A fixed feasible total N: adds power under each scenario and the "
-                          "smallest detectable effect."),
+                     help="A fixed feasible total N, counted as people analysed (after "
+                          "attrition): adds power under each scenario and the smallest "
+                          "detectable effect."),
         click.option("--allocation", "ratio", type=str, metavar="N1:N2", default="1:1",
                      show_default=True,
                      callback=_allocation,

@@ -328,6 +328,8 @@ class _Raw:
     #: for a partial correlation: the n of the zero-order correlation with the same
     #: sampling distribution, n - q (Fisher 1924); Fisher z's variance is 1/(this - 3)
     n_fisher: float | None = None
+    #: the ``published`` column, normalised ("published", "unpublished" or None)
+    published: str | None = None
 
     @property
     def a(self) -> float:
@@ -375,7 +377,7 @@ def _sign(ctx: _Ctx, rec: Record, value: float, *, required: bool) -> float:
     if d is None:
         if required:
             raise ctx.err(rec, "direction",
-                          f"'direction' is empty; a {rec.stat} carries no sign, so say '+' if the "
+                          f"'direction' is empty; {_a(rec.stat)} carries no sign, so say '+' if the "
                           "result favours the hypothesis and '-' if it goes the other way")
         return 1.0
     d = d.strip().lower()
@@ -392,6 +394,16 @@ def _sign(ctx: _Ctx, rec: Record, value: float, *, required: bool) -> float:
     return s if value >= 0 else 1.0
 
 
+def _a(stat: str) -> str:
+    """'a t', 'an F', 'an r', 'a chi2': the article as the letter (or word) is spoken.
+
+    >>> _a("F"), _a("r"), _a("chi2"), _a("t"), _a("odds_ratio")
+    ('an F', 'an r', 'a chi2', 'a t', 'an odds_ratio')
+    """
+    vowel = "aefhilmnorsx" if len(stat) == 1 else "aeiou"
+    return ("an " if stat[:1].lower() in vowel else "a ") + stat
+
+
 def _design(ctx: _Ctx, rec: Record) -> str:
     d = (rec.get("design") or "between").strip().lower()
     if d in ("between", "b", "independent", "two-group", "between-subject", "between-subjects"):
@@ -400,6 +412,26 @@ def _design(ctx: _Ctx, rec: Record) -> str:
         return "within"
     raise ctx.err(rec, "design", f"design '{rec.get('design')}' is not understood; "
                                  "use 'between' or 'within'")
+
+
+_PUBLISHED = {"yes": "published", "y": "published", "true": "published", "1": "published",
+              "published": "published", "no": "unpublished", "n": "unpublished",
+              "false": "unpublished", "0": "unpublished", "unpublished": "unpublished"}
+
+
+def _published(ctx: _Ctx, rec: Record) -> str | None:
+    """The ``published`` column as "published" / "unpublished" (empty: not said)."""
+    raw = rec.get("published")
+    if raw is None or str(raw).strip() == "":
+        return None
+    text = str(raw).strip().lower()
+    if text.endswith(".0"):   # 1.0 / 0.0 from a spreadsheet
+        text = text[:-2]
+    if text not in _PUBLISHED:
+        raise ctx.err(rec, "published", f"published '{raw}' is not understood; use 'yes' "
+                                        "(in a journal or book) or 'no' (thesis, preprint, "
+                                        "data shared on request ...)")
+    return _PUBLISHED[text]
 
 
 def _within_r(ctx: _Ctx, rec: Record, raw_notes: list[str]) -> float:
@@ -598,7 +630,8 @@ def _r_groups(ctx: _Ctx, rec: Record, notes: list[str]) -> tuple[float, float | 
     if n is None and rec.get("df") is not None:
         n = _n_from_df(ctx.positive(rec, "df", ""), 2.0, notes)
     if n is None:
-        raise ctx.err(rec, "n", f"'n' is empty; a {rec.stat} needs the total N")
+        raise ctx.err(rec, "n", f"'n' is empty; {_a(rec.stat)} needs the total N (add a column "
+                                "'n' if the sheet has none)")
     return n, None, None
 
 
@@ -887,6 +920,7 @@ def convert(sheet: Sheet, metric: str = "d", *, within_r: float = 0.5,
             raw = CONVERTERS[rec.stat](ctx, rec_used) if rec.stat in CONVERTERS else None
             if raw is None:
                 raise ctx.err(rec, "stat", f"unknown statistic '{rec.stat}'")
+            raw.published = _published(ctx, rec)
             y, v = _to_metric(raw, metric)
             if not (math.isfinite(y) and math.isfinite(v) and v > 0):
                 raise ctx.err(rec, "value", "the reported numbers give no finite effect with a "
@@ -1002,7 +1036,7 @@ def _unit(label, item, raw) -> Unit:
     rec, _, y, v = item
     return Unit(label=label, effect=y, variance=v, n_total=raw.n_total, n1=raw.n1, n2=raw.n2,
                 design=raw.design, rows=(rec.row,), year=rec.get("year"),
-                subgroup=rec.get("subgroup"), published=rec.get("published"),
+                subgroup=rec.get("subgroup"), published=raw.published,
                 within_r=raw.within_r)
 
 

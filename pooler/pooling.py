@@ -679,6 +679,10 @@ class PooledResult(ShowsAsTable):
         ``weights`` are random-effects weights as fractions summing to 1.
     leave_one_out, cumulative : tuple of InfluenceRow or NotEstimable
     subgroups : Subgroups, NotEstimable or None
+    by_publication : Subgroups, NotEstimable or None
+        Published against unpublished studies (the ``published`` column), as separate
+        random-effects estimates with the Q-between test: a sensitivity analysis for
+        publication bias (Borenstein et al. 2009, ch. 30; None without the column).
     studies : tuple of pooler.effects.Unit
         The pooled studies themselves (effect, variance, n per group, design, within-r,
         sheet rows), so later stages need nothing but this result.
@@ -703,6 +707,7 @@ class PooledResult(ShowsAsTable):
     subgroups: Subgroups | NotEstimable | None
     notes: tuple[str, ...] = ()
     studies: tuple = ()
+    by_publication: Subgroups | NotEstimable | None = None
 
     @property
     def tau2(self) -> float:
@@ -745,6 +750,8 @@ class PooledResult(ShowsAsTable):
                            else self.cumulative),
             "subgroups": self.subgroups if self.subgroups is not None else
             NotEstimable("no 'subgroup' column"),
+            "by_publication": self.by_publication if self.by_publication is not None else
+            NotEstimable("no 'published' column"),
             "notes": list(self.notes),
         }
         if self.metric == "z":
@@ -856,6 +863,12 @@ def pool_studies(studies, metric, estimator="reml", interval="hksj", level=0.95,
                           f"random effects, {ESTIMATOR_NAMES[estimator]} tau^2, "
                           f"{INTERVAL_NAMES[interval]} interval")
     het = heterogeneity(y, v, fit.tau2, level)
+    if het.tau2_ci.high == 0.0:
+        notes.append(f"the Q-profile interval of tau^2 is [0, 0] because Q = {het.q:.2f} lies "
+                     f"below the {100 * (1 - level) / 2:g}th percentile of chi^2({k - 1}): the "
+                     "studies agree more closely than their sampling errors imply, so the "
+                     "interval is set to 0 (Viechtbauer 2007); this does not show that the "
+                     "effects are homogeneous, only that these studies cannot show any variation")
     pred = prediction_interval(fit, level)
     if k == 2:
         notes.append("two studies: the random-effects estimate is shown but tau^2 is very "
@@ -892,20 +905,26 @@ def pool_studies(studies, metric, estimator="reml", interval="hksj", level=0.95,
 
     subs = None
     if any(u.subgroup for u in units):
-        subs = _subgroups(units, y, v, estimator, interval, level)
+        subs = _subgroups([u.subgroup or "(no subgroup)" for u in units], y, v, estimator,
+                          interval, level)
+    by_pub = None
+    if any(getattr(u, "published", None) for u in units):
+        by_pub = _subgroups([getattr(u, "published", None) or "(not said)" for u in units],
+                            y, v, estimator, interval, level, what="publication status")
     return PooledResult(metric, k, estimator, interval, level, pooled, fixed, het, pred,
                         fit.tau2_fit, labels, tuple(float(x) for x in y),
-                        tuple(float(x) for x in v), weights, loo, cum, subs, tuple(notes), units)
+                        tuple(float(x) for x in v), weights, loo, cum, subs, tuple(notes), units,
+                        by_pub)
 
 
-def _subgroups(units, y, v, estimator, interval, level) -> Subgroups | NotEstimable:
-    """Separate-τ² subgroup estimates and Q_between = Σ w_j (μ_j - μ̄)², w_j = 1/SE_j²
-    (Borenstein et al. 2009, ch. 19), SE_j from the Wald fit."""
+def _subgroups(names, y, v, estimator, interval, level,
+               what="subgroup") -> Subgroups | NotEstimable:
+    """Separate-τ² estimates of the groups of studies named by ``names`` and Q_between =
+    Σ w_j (μ_j - μ̄)², w_j = 1/SE_j² (Borenstein et al. 2009, ch. 19), SE_j from the Wald fit."""
     from scipy import special
-    names = [u.subgroup or "(no subgroup)" for u in units]
     groups = list(dict.fromkeys(names))
     if len(groups) < 2:
-        return NotEstimable("only one subgroup")
+        return NotEstimable(f"every study has the same {what}")
     rows, mus, ses = [], [], []
     for g in groups:
         m = np.array([n == g for n in names])

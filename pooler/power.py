@@ -777,6 +777,10 @@ class AssuranceResult:
                      for t, n, nt, a in zip(self.targets, self.n, self.n_total, self.achieved)]})
 
 
+#: A target assurance within this distance of its ceiling is reported as not useful.
+NEAR_CEILING = 0.01
+
+
 def n_for_assurance(mean, sd, targets=(0.8,), design="two-group", alpha=0.05,
                     alternative="two-sided", metric="d", *, density=None) -> AssuranceResult:
     """Smallest n whose assurance reaches each target, or why it cannot.
@@ -801,7 +805,8 @@ def n_for_assurance(mean, sd, targets=(0.8,), design="two-group", alpha=0.05,
     for t in targets:
         if t >= ceiling - 1e-9:
             reason = NotEstimable(f"cannot be reached: even an unlimited sample gives at most "
-                                  f"{ceiling:.3f}, the chance that the true effect is positive")
+                                  f"{ceiling:.3f}, the chance that the new study's true effect "
+                                  "is positive")
             ns.append(reason), nts.append(reason), ach.append(reason)
             continue
         def fn(n):
@@ -812,6 +817,15 @@ def n_for_assurance(mean, sd, targets=(0.8,), design="two-group", alpha=0.05,
             ns.append(reason), nts.append(reason), ach.append(reason)
             continue
         ni = int(n)
+        if t > ceiling - NEAR_CEILING:
+            # pooler's own threshold: the n needed grows without bound as the target nears
+            # the ceiling, so a target this close buys almost nothing for its cost
+            reason = NotEstimable(
+                f"not a useful target: {t:g} lies within {NEAR_CEILING:g} of the ceiling "
+                f"{ceiling:.3f} (the chance that the new study's true effect is positive), "
+                f"where the n needed ({ni:,} per group) grows without bound")
+            ns.append(reason), nts.append(reason), ach.append(reason)
+            continue
         ns.append(ni)
         nts.append(int(des.n_total(ni)))
         ach.append(float(fn(np.asarray(ni))))

@@ -216,3 +216,14 @@ def test_narrow_callable_density_is_not_missed():
     assert_allclose([dens.mean, dens.sd], [0.4, 0.03], atol=1e-9)
     n = np.array([20, 100, 1000])
     assert_allclose(assurance_over(dens, n), assurance(0.4, 0.03, n), atol=1e-8)
+
+
+def test_a_target_just_below_the_ceiling_is_not_useful():
+    """Normal(0.4, 0.25²) has ceiling Φ(0.4/0.25) = 0.9452 (scipy.special.ndtr): 0.94 is
+    within 0.01 of it and said to be not useful (with the n it would need), 0.93 is planned."""
+    from scipy.special import ndtr
+    ceiling = float(ndtr(0.4 / 0.25))
+    assert abs(ceiling - 0.9452) < 1e-4
+    res = n_for_assurance(0.4, 0.25, (0.93, 0.94))
+    assert isinstance(res.n[0], int)
+    assert not res.n[1] and "not a useful target" in str(res.n[1]) and "per group" in str(res.n[1])

@@ -429,3 +429,13 @@ def test_size_based_se_regression_matches_statsmodels_wls():
     ref = sm.WLS(y, sm.add_constant(np.sqrt(v0)), weights=1 / v0).fit()
     fit = pet(y, np.full(9, 0.1), v0)
     assert_allclose([fit.estimate, fit.se], [ref.params[0], ref.bse[0]], rtol=1e-10)
+
+
+def test_egger_row_warns_below_ten_studies():
+    """Sterne et al. (2011, BMJ 343:d4002): tests for funnel asymmetry need 10 or more
+    studies; below that the row says so beside the p-value."""
+    from pooler.bias import _egger_row
+    y5, v5 = literature(5, seed=3)[:2]
+    y12, v12 = literature(12, seed=3)[:2]
+    assert "Sterne et al. 2011" in _egger_row(egger_test(y5, v5))[3]
+    assert "Sterne" not in _egger_row(egger_test(y12, v12))[3]

@@ -279,3 +279,38 @@ def test_all_rows_excluded_is_a_clean_error(write_sheet, run_cli):
                          "exclude": "pilot"}])
     res = run_cli("pool", path)
     assert res.exit_code == 2 and "no rows are left to pool" in res.stderr
+
+
+def test_published_against_unpublished_is_a_subgroup_comparison(write_sheet):
+    """The `published` column (yes/no) gives separate random-effects estimates for published
+    and unpublished studies with Q-between (Borenstein et al. 2009, ch. 19 and 30), the same
+    computation as a `subgroup` column with those labels."""
+    from pooler import convert, read_sheet
+    rows = [{"study": f"S{i}", "stat": "t", "value": t, "n1": n, "n2": n, "published": p}
+            for i, (t, n, p) in enumerate([(2.6, 20, "yes"), (2.3, 25, "Yes"), (2.9, 18, "y"),
+                                           (0.8, 30, "no"), (1.1, 40, "No"), (0.4, 35, "0"),
+                                           (2.2, 22, "yes")])]
+    res = pool(convert(read_sheet(write_sheet(rows))))
+    same = pool(convert(read_sheet(write_sheet(
+        [{**{k: v for k, v in r.items() if k != "published"},
+          "subgroup": "published" if r["published"].lower() in ("yes", "y") else "unpublished"}
+         for r in rows]))))
+    bp, sg = res.by_publication, same.subgroups
+    assert [r.label for r in bp.rows] == ["published", "unpublished"]
+    assert_allclose([r.estimate for r in bp.rows], [r.estimate for r in sg.rows], rtol=1e-12)
+    assert_allclose([bp.q_between, bp.p], [sg.q_between, sg.p], rtol=1e-12)
+    assert bp.rows[0].estimate > bp.rows[1].estimate
+    doc = res.to_dict()
+    assert doc["by_publication"]["q_between"] == bp.q_between
+    assert "no 'published' column" in str(same.to_dict()["by_publication"])
+
+
+def test_an_empty_q_profile_interval_is_explained():
+    """Q(0) below the 2.5th percentile of chi^2(k - 1) puts both Q-profile limits at 0
+    (Viechtbauer 2007); the result says why instead of printing [0, 0] as if certain."""
+    from scipy import stats
+    y, v = np.array([0.30, 0.301, 0.299, 0.30]), np.array([0.04, 0.05, 0.04, 0.06])
+    res = pool(make_effects(y, v))
+    assert q_statistic(y, v) < stats.chi2.ppf(0.025, 3)
+    assert res.heterogeneity.tau2_ci.high == 0.0
+    assert any("Q-profile interval of tau^2 is [0, 0]" in n for n in res.notes)

@@ -56,6 +56,8 @@ TEXT = {
                         "value"),
     "one_tailed_p_large.csv": (H + "Ash 2001,p,0.8,20,20,,,,+,,,1,\n", "other way", "2", "value"),
     "tails_three.csv": (H + "Ash 2001,p,0.03,20,20,,,,+,,,3,\n", "use 1 or 2", "2", "tails"),
+    "published_unclear.csv": ("study,stat,value,n1,n2,published\nAsh 2001,t,2.1,20,20,maybe\n",
+                              "use 'yes'", "2", "published"),
     "counts_exceed_n.csv": ("study,stat,events1,n1,events2,n2\nAsh 2001,counts,25,20,4,20\n",
                             "events1 = 25 is impossible", "2", "events1"),
     "counts_missing_events.csv": ("study,stat,events1,n1,events2,n2\nAsh 2001,counts,5,20,,20\n",
