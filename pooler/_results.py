@@ -111,13 +111,16 @@ def fmt(x: Any, digits: int = 3) -> str:
     return str(x)
 
 
-def text_table(headers: list[str], rows: list[list[Any]], digits: int = 3) -> str:
+def text_table(headers: list[str], rows: list[list[Any]], digits: int = 3,
+               numeric: list[bool] | None = None) -> str:
     """A plain aligned text table (no pandas, so the quick commands stay quick).
 
-    Columns whose values are all numbers (or empty) are right-aligned.
+    Columns whose values are all numbers (or empty) are right-aligned, or the columns
+    ``numeric`` says when the cells are already formatted text.
     """
-    numeric = [all(isinstance(r[i], (int, float)) and not isinstance(r[i], bool) or r[i] is None
-                   for r in rows) for i in range(len(headers))]
+    if numeric is None:
+        numeric = [all(isinstance(r[i], (int, float)) and not isinstance(r[i], bool)
+                       or r[i] is None for r in rows) for i in range(len(headers))]
     cells = [[fmt(c, digits) for c in r] for r in rows]
     widths = [max([len(h)] + [len(r[i]) for r in cells]) for i, h in enumerate(headers)]
 

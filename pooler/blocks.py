@@ -45,12 +45,6 @@ def brief(blocks) -> list[Block]:
     return [b for b in blocks if not b.detail]
 
 
-def as_detail(blocks) -> list[Block]:
-    """The same blocks, every one marked ``detail``."""
-    from dataclasses import replace
-    return [replace(b, detail=True) for b in blocks]
-
-
 def md_escape(text: str) -> str:
     """Escape user text for Markdown (and for the HTML many Markdown renderers allow)."""
     text = str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
@@ -78,16 +72,11 @@ def _plain(t) -> str:
 
 def _text_table(headers, rows) -> list[str]:
     """An aligned table; a column whose cells are all numbers (or empty) is right-aligned."""
+    from ._results import text_table
     cells = [[_plain(c) for c in r] for r in rows]
-    heads = [_plain(h) for h in headers]
     numeric = [bool(cells) and all(_NUMBER.match(r[i]) for r in cells)
-               for i in range(len(heads))]
-    widths = [max([len(h)] + [len(r[i]) for r in cells]) for i, h in enumerate(heads)]
-
-    def line(vals):
-        return "  ".join(v.rjust(w) if num else v.ljust(w)
-                         for v, w, num in zip(vals, widths, numeric)).rstrip()
-    return [line(heads), "  ".join("-" * w for w in widths)] + [line(r) for r in cells]
+               for i in range(len(headers))]
+    return text_table([_plain(h) for h in headers], cells, numeric=numeric).split("\n")
 
 
 def to_text(blocks, width: int = 100) -> str:
@@ -102,14 +91,14 @@ def to_text(blocks, width: int = 100) -> str:
         elif b.kind == "h3":
             out += ["", _plain(b.text) + ":"]
         elif b.kind == "p":
-            out += (textwrap.wrap(_plain(b.text), width) or [""]) + [""]
+            out += (textwrap.wrap(_plain(b.text), width, break_on_hyphens=False) or [""]) + [""]
         elif b.kind == "note":
             out += textwrap.wrap(_plain(b.text), width, initial_indent="  note: ",
-                                 subsequent_indent="        ")
+                                 subsequent_indent="        ", break_on_hyphens=False)
         elif b.kind == "list":
             for i in b.items:
                 out += textwrap.wrap(_plain(i), width, initial_indent="  - ",
-                                     subsequent_indent="    ")
+                                     subsequent_indent="    ", break_on_hyphens=False)
             out.append("")
         elif b.kind in ("table", "key"):
             out += _text_table(b.headers, b.rows) + [""]

@@ -10,7 +10,7 @@ every block, the terminal summary the ones not marked ``detail``. The renderers 
 from __future__ import annotations
 
 from ._results import estimable, fmt, plural
-from .blocks import Block, brief, md_escape, to_html, to_markdown, to_text  # noqa: F401
+from .blocks import Block, brief, md_escape, to_html, to_markdown  # noqa: F401 (outputs.py)
 from .report import (bias_blocks, ci_text, conversion_blocks, plan_blocks, pooled_blocks,
                      scenario_blocks, sizes_and_total)
 
