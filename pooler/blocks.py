@@ -60,6 +60,20 @@ def safe_md(text: str) -> str:
 # ------------------------------------------------------------------ terminal
 
 _NUMBER = re.compile(r"^[-+]?(\d{1,3}(,\d{3})+|\d+)?(\.\d+)?%?$")
+_INTERVAL = re.compile(r"^\[[-+\d.,% ]+\]$")
+
+
+def _column_kinds(rows) -> list[str]:
+    """Per column: "num" when every cell is a number (or empty), "ci" when every cell is an
+    interval "[low, high]" (or empty), else "". Renderers align and keep these whole."""
+    if not rows:
+        return []
+    kinds = []
+    for col in zip(*rows):
+        cells = [_plain(c) for c in col]
+        kinds.append("num" if all(_NUMBER.match(c) for c in cells) else
+                     "ci" if all(not c or _INTERVAL.match(c) for c in cells) else "")
+    return kinds
 
 
 def _plain(t) -> str:
@@ -73,10 +87,9 @@ def _plain(t) -> str:
 def _text_table(headers, rows) -> list[str]:
     """An aligned table; a column whose cells are all numbers (or empty) is right-aligned."""
     from ._results import text_table
-    cells = [[_plain(c) for c in r] for r in rows]
-    numeric = [bool(cells) and all(_NUMBER.match(r[i]) for r in cells)
-               for i in range(len(headers))]
-    return text_table([_plain(h) for h in headers], cells, numeric=numeric).split("\n")
+    numeric = [k == "num" for k in _column_kinds(rows)] or [False] * len(headers)
+    return text_table([_plain(h) for h in headers], [[_plain(c) for c in r] for r in rows],
+                      numeric=numeric).split("\n")
 
 
 def to_text(blocks, width: int = 100) -> str:
@@ -143,6 +156,7 @@ h2{font-size:1.2rem;border-bottom:1px solid #ddd;padding-bottom:.2rem;margin-top
 h3{font-size:1rem;margin:1.2rem 0 .3rem}p.note{font-size:.9rem;color:#444}
 table{border-collapse:collapse;font-size:.85rem;margin:.6rem 0}td,th{padding:.2rem .5rem;
 border-bottom:1px solid #eee;text-align:left}th{background:#f4f4f4}
+.num{text-align:right;white-space:nowrap}.ci{white-space:nowrap}
 figure{margin:1rem 0}figure img{max-width:100%}figcaption{font-size:.85rem;color:#555}
 code,pre{background:#f6f6f6;padding:.1rem .3rem}pre{padding:.6rem;overflow-x:auto}
 h1{margin:1rem 0 .6rem}section.decision{border-left:4px solid #2a6f97;background:#f3f8fb;
@@ -174,8 +188,11 @@ def html_fragment(blocks, figures_png: dict[str, bytes] | None = None) -> str:
         elif b.kind == "list":
             out.append("<ul>" + "".join(f"<li>{_inline(i)}</li>" for i in b.items) + "</ul>")
         elif b.kind in ("table", "key"):
-            head = "".join(f"<th>{_inline(h)}</th>" for h in b.headers)
-            body = "".join("<tr>" + "".join(f"<td>{_inline(c)}</td>" for c in r) + "</tr>"
+            kinds = [f' class="{k}"' if k else "" for k in _column_kinds(b.rows)]
+            head = "".join(f"<th{k}>{_inline(h)}</th>"
+                           for h, k in zip(b.headers, kinds or [""] * len(b.headers)))
+            body = "".join("<tr>" + "".join(f"<td{k}>{_inline(c)}</td>"
+                                            for c, k in zip(r, kinds)) + "</tr>"
                            for r in b.rows)
             out.append(f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
         elif b.kind == "figure" and figures_png and b.src in figures_png:

@@ -170,4 +170,5 @@ def test_text_renderer_aligns_numbers_and_strips_markdown():
     assert "| a\\_b | 1,234 | [0.1, 0.2] |" in md and "Note: a note" in md
     page = html_fragment(blocks)
     assert "<td>a_b</td>" in page and "<strong>Bold</strong>" in page
+    assert '<td class="num">1,234</td>' in page and '<td class="ci">[0.1, 0.2]</td>' in page
     assert "&lt;tags&gt;" in page and "<tags>" not in page
