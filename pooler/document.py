@@ -11,8 +11,8 @@ from __future__ import annotations
 
 from ._results import estimable, fmt, plural
 from .blocks import Block, brief, md_escape, to_html, to_markdown  # noqa: F401 (outputs.py)
-from .report import (bias_blocks, ci_text, conversion_blocks, plan_blocks, pooled_blocks,
-                     scenario_blocks, sizes_and_total)
+from .report import (bias_blocks, conversion_blocks, interval_text, plan_blocks,
+                     pooled_blocks, scenario_blocks, sizes_and_total)
 
 #: The caution, first as the two sentences every output shows, then the rest (report only).
 CAUTION = (
@@ -28,10 +28,6 @@ CAUTION = (
     "not corrections that recover the truth: each assumes a particular way in which studies "
     "went missing.",
 )
-
-
-def _interval(ci, digits: int = 3) -> str:
-    return ci_text(ci.low, ci.high, digits) if ci is not None and estimable(ci) else ""
 
 
 # ------------------------------------------------------------------ building
@@ -288,14 +284,14 @@ def methods_paragraph(run) -> str:
                    f"tau^2; {INTERVAL_NAMES[pooled.interval]} confidence interval"
                    + ("; Hartung & Knapp, 2001" if pooled.interval == "hksj" else "")
                    + f") gave {sym} = {p.estimate:.2f}, {100 * pooled.level:g}% CI "
-                   f"{_interval(p.ci, 2)}")
+                   f"{interval_text(p.ci, 2)}")
         h = pooled.heterogeneity
         if estimable(h):
             txt[-1] += f", with tau^2 = {h.tau2:.3f} and I^2 = {100 * h.i2:.0f}% (Higgins & Thompson, 2002)"
         if estimable(pooled.prediction):
             txt[-1] += (f"; the {100 * pooled.level:g}% prediction interval for the true "
-                        f"effect of a new study was {_interval(pooled.prediction, 2)} (Higgins et "
-                        "al., 2009)")
+                        f"effect of a new study was {interval_text(pooled.prediction, 2)} "
+                        "(Higgins et al., 2009)")
         txt[-1] += "."
     methods = bias.cited()
     if methods:
@@ -372,7 +368,7 @@ def _posterior_methods(sc, post, lab, eff_r, eff_p, eff_o) -> str:
                         "told apart, so the priors carry much of the planning effect.")
     if sc.supported:
         iv = sc.realistic_interval(0.95)
-        ci = f", 95% credible interval {_interval(iv, 2)}" if estimable(iv) else ""
+        ci = f", 95% credible interval {interval_text(iv, 2)}" if estimable(iv) else ""
         return (f"The planning effect comes from {models}: we planned on the posterior median "
                 f"of the mean effect given a positive effect, {lab} = {eff_r:.2f}{ci} ({odds}), "
                 f"rather than the published estimate of {eff_o:.2f}, and checked a pessimistic "

@@ -26,7 +26,7 @@ def ci_text(low: float, high: float, digits: int = 3) -> str:
     return f"[{low:.{digits}f}, {high:.{digits}f}]"
 
 
-def _interval(ci, digits: int = 3) -> str:
+def interval_text(ci, digits: int = 3) -> str:
     """An :class:`~pooler._results.Interval` (or None / not estimable: empty)."""
     return ci_text(ci.low, ci.high, digits) if ci is not None and estimable(ci) else ""
 
@@ -87,7 +87,7 @@ def conversion_blocks(eff, sheet=None) -> list[Block]:
         said = (_reported(r, recs[r.row]) if r.row in recs
                 else " ".join((r.reported or r.stat or "").split()))
         rows.append((str(r.row), md_escape(r.study), md_escape(said), r.design, fmt(r.effect),
-                     fmt(r.se), _interval(ci), "" if r.n_total is None else _count(r.n_total),
+                     fmt(r.se), interval_text(ci), "" if r.n_total is None else _count(r.n_total),
                      r.status, md_escape(r.reason or "; ".join(r.notes))))
     out = [Block("h2", "Conversions"),
            Block("p", f"{md_escape(name)}: {plural(len(eff.rows), 'row')} read, "
@@ -405,7 +405,7 @@ def bias_blocks(bias, audit=None) -> list[Block]:
         elif isinstance(est, NotEstimable):
             rows.append((method, "not estimable", "", md_escape(est.reason)))
         else:
-            rows.append((method, fmt(est), _interval(ci), md_escape(note)))
+            rows.append((method, fmt(est), interval_text(ci), md_escape(note)))
     out = [Block("h2", "Bias-sensitivity suite"),
            Block("table", headers=("method", sym, "95% CI", "note"), rows=tuple(rows))]
     sr = bias.selection_ratio
@@ -458,7 +458,7 @@ def model_average_lines(scen) -> list[str]:
     iv = scen.realistic_interval(0.95)
     if estimable(iv) and scen.supported:
         out.append(f"Realistic {sym} = {scen.realistic.effect:.3f}: 95% credible interval "
-                   f"{_interval(iv)} (given a positive effect)")
+                   f"{interval_text(iv)} (given a positive effect)")
     sens = scen.sensitivity
     if isinstance(sens, dict):
         out.append(f"With wider priors (every scale doubled): realistic {sens['realistic']:.3f}, "
@@ -512,7 +512,7 @@ def scenario_blocks(scen, audit=None) -> list[Block]:
     elif estimable(iv):
         out.append(Block("p", f"Realistic {sym} = {scen.realistic.effect:.3f} (SE "
                               f"{scen.realistic.se:.3f}); {100 * iv.level:g}% safeguard "
-                              f"interval {_interval(iv)}, 95% interval {_interval(ci)}."))
+                              f"interval {interval_text(iv)}, 95% interval {interval_text(ci)}."))
     out.append(Block("p", md_escape(scen.verdict)))
     out += _audit_blocks(audit.literature if audit is not None else None, sym)
     return out
