@@ -97,7 +97,8 @@ def to_text(blocks, width: int = 100) -> str:
     paragraphs wrapped at ``width``, notes indented, tables aligned; figures are left out."""
     import textwrap
     out: list[str] = []
-    for b in blocks:
+    blocks = list(blocks)
+    for i, b in enumerate(blocks):
         if b.kind in ("h1", "h2"):
             t = _plain(b.text)
             out += ["", t, ("=" if b.kind == "h1" else "-") * min(len(t), width)]
@@ -108,6 +109,8 @@ def to_text(blocks, width: int = 100) -> str:
         elif b.kind == "note":
             out += textwrap.wrap(_plain(b.text), width, initial_indent="  note: ",
                                  subsequent_indent="        ", break_on_hyphens=False)
+            if i + 1 == len(blocks) or blocks[i + 1].kind != "note":
+                out.append("")
         elif b.kind == "list":
             for i in b.items:
                 out += textwrap.wrap(_plain(i), width, initial_indent="  - ",

@@ -20,13 +20,12 @@ CAUTION = (
     "or the regulations that apply where the study will run; for clinical or "
     "safety-relevant studies have the sample size reviewed by a qualified statistician "
     "before recruitment.",
-    "The power "
-    "calculations assume the planned analysis and its assumptions hold: normally distributed "
-    "outcomes without floor or ceiling effects, the stated correlations, independent "
-    "observations and no missing data beyond the stated attrition. Real data usually fall "
-    "short of these, so real needs are higher. The bias adjustments are sensitivity analyses, "
-    "not corrections that recover the truth: each assumes a particular way in which studies "
-    "went missing.",
+    "The power calculations assume the planned analysis and its assumptions hold: normally "
+    "distributed outcomes without floor or ceiling effects, the stated correlations, "
+    "independent observations and no missing data beyond the stated attrition. Real data "
+    "usually fall short of these, so real needs are higher. The bias adjustments are "
+    "sensitivity analyses, not corrections that recover the truth: each assumes a particular "
+    "way in which studies went missing.",
 )
 
 
