@@ -96,7 +96,7 @@ def conversion_blocks(eff, sheet=None) -> list[Block]:
            Block("table", headers=("row", "study", "reported", "design", safe_md(metric), "SE",
                                    "95% CI", "n", "status", "note"), rows=tuple(rows))]
     if eff.assumptions:
-        out += [Block("p", "Assumptions made while converting:"),
+        out += [Block("p", "Assumptions:"),
                 Block("list", items=tuple(md_escape(a) for a in eff.assumptions))]
     if sheet is not None and sheet.notes:
         out += [Block("p", "Reading notes:"),
