@@ -21,6 +21,11 @@ TEXT_SHOWN_ROWS = 20
 _ALL_ROWS = "every row is in the JSON output"
 
 
+def _json_rows(k: int) -> str:
+    """Where the rest of a summarised table of ``k`` rows is."""
+    return _ALL_ROWS
+
+
 def ci_text(low: float, high: float, digits: int = 3) -> str:
     """An interval as every output prints it: "[0.251, 0.498]"."""
     return f"[{low:.{digits}f}, {high:.{digits}f}]"
@@ -339,7 +344,7 @@ def pooled_blocks(res, eff=None) -> list[Block]:
     out.append(Block("h3", "Studies", detail=True))
     if k > TEXT_MAX_ROWS:
         out.append(Block("p", f"Showing the {TEXT_SHOWN_ROWS} of {k:,} with the largest "
-                              f"weight ({_ALL_ROWS}).", detail=True))
+                              f"weight ({_json_rows(k)}).", detail=True))
     rows = []
     for i in shown:
         y, se = res.effects[i], math.sqrt(res.variances[i])
@@ -360,11 +365,11 @@ def pooled_blocks(res, eff=None) -> list[Block]:
                               kind="stable")[:TEXT_SHOWN_ROWS]
             tab = tuple(tab[i] for i in sorted(pick))
             out.append(Block("p", f"Showing the {TEXT_SHOWN_ROWS} of {k:,} omissions that "
-                                  f"move the estimate most ({_ALL_ROWS}).", detail=True))
+                                  f"move the estimate most ({_json_rows(k)}).", detail=True))
         elif len(tab) > TEXT_MAX_ROWS:
             pick = np.unique(np.linspace(0, len(tab) - 1, TEXT_SHOWN_ROWS).round().astype(int))
             out.append(Block("p", f"Showing {len(pick)} of {len(tab):,} steps, evenly spaced "
-                                  f"({_ALL_ROWS}).", detail=True))
+                                  f"({_json_rows(k)}).", detail=True))
             tab = tuple(tab[i] for i in pick)
         out.append(_influence_block(tab, sym))
     s = res.subgroups
@@ -446,8 +451,8 @@ def model_average_lines(scen) -> list[str]:
     for m in avg.models:
         comp[m.bias] = comp.get(m.bias, 0.0) + m.posterior
     ci = avg.mu.interval
-    out = [f"Model average over {len(avg.models)} publication-bias models (deterministic quadrature): "
-           f"mean effect {sym} median {avg.mu.median:.3f} {ci_text(ci.low, ci.high)}, "
+    out = [f"Model average over {len(avg.models)} publication-bias models (deterministic "
+           f"quadrature): mean effect {sym} median {avg.mu.median:.3f} {ci_text(ci.low, ci.high)}, "
            f"tau median {avg.tau.median:.3f} "
            f"{ci_text(avg.tau.interval.low, avg.tau.interval.high)}, "
            f"P(effect > 0) = {avg.p_positive:.2f}",
@@ -483,7 +488,8 @@ def _audit_blocks(a, sym) -> list[Block]:
         pick = order[np.unique(np.linspace(0, len(rows) - 1, TEXT_SHOWN_ROWS).round()
                                .astype(int))]
         out.append(Block("p", f"Showing {len(pick)} of {len(rows):,} studies at evenly spaced "
-                              f"ranks of power, lowest first ({_ALL_ROWS}).", detail=True))
+                              f"ranks of power, lowest first ({_json_rows(len(rows))}).",
+                         detail=True))
         rows = [rows[i] for i in pick]
     out.append(Block("table", headers=("study", "power", "how"),
                      rows=tuple((md_escape(r.label), fmt(r.power, 2), md_escape(r.how))
