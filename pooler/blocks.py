@@ -61,6 +61,10 @@ def safe_md(text: str) -> str:
 
 _NUMBER = re.compile(r"^[-+]?(\d{1,3}(,\d{3})+|\d+)?(\.\d+)?%?$")
 _INTERVAL = re.compile(r"^\[[-+\d.,% ]+\]$")
+_BOLD = re.compile(r"(?<!\\)\*\*(.+?)(?<!\\)\*\*")
+_CODE = re.compile(r"`([^`]*)`")
+_ESCAPED = re.compile(r"\\([\\`*_\[\]|#!])")
+_MARKS = re.compile(r"[*`\\&]")      # text without these is already plain
 
 
 def _column_kinds(rows) -> list[str]:
@@ -78,9 +82,10 @@ def _column_kinds(rows) -> list[str]:
 
 def _plain(t) -> str:
     """Markdown-safe block text as plain text: bold and code marks and escapes removed."""
-    t = re.sub(r"(?<!\\)\*\*(.+?)(?<!\\)\*\*", r"\1", str(t))
-    t = re.sub(r"`([^`]*)`", r"\1", t)
-    t = re.sub(r"\\([\\`*_\[\]|#!])", r"\1", t)
+    t = str(t)
+    if not _MARKS.search(t):
+        return t
+    t = _ESCAPED.sub(r"\1", _CODE.sub(r"\1", _BOLD.sub(r"\1", t)))
     return html.unescape(t)
 
 
@@ -172,9 +177,10 @@ def _inline(text: str) -> str:
     is already entity-escaped by :func:`md_escape`), then the few Markdown marks our
     blocks use."""
     text = str(text).replace("<", "&lt;").replace(">", "&gt;")
-    text = re.sub(r"`([^`]*)`", r"<code>\1</code>", text)
-    text = re.sub(r"(?<!\\)\*\*(.+?)(?<!\\)\*\*", r"<strong>\1</strong>", text)
-    return re.sub(r"\\([\\`*_\[\]|#!])", r"\1", text)
+    if not _MARKS.search(text.replace("&", "")):
+        return text
+    text = _BOLD.sub(r"<strong>\1</strong>", _CODE.sub(r"<code>\1</code>", text))
+    return _ESCAPED.sub(r"\1", text)
 
 
 def html_fragment(blocks, figures_png: dict[str, bytes] | None = None) -> str:
