@@ -49,6 +49,12 @@ def _sym(metric: str) -> str:
     return "g" if metric == "g" else "z"
 
 
+def _file_name(eff) -> str:
+    """The sheet's file name without its folder."""
+    from pathlib import Path
+    return Path(eff.file).name
+
+
 def _sentence(text: str) -> str:
     """A reason as a sentence of its own: capital first, full stop last."""
     text = str(text).rstrip(".")
@@ -85,7 +91,7 @@ def conversion_blocks(eff, sheet=None) -> list[Block]:
     string (or the statistic's name)."""
     recs = {r.row: r for r in sheet.records} if sheet is not None else {}
     metric = eff.metric_label
-    name = sheet.name if sheet is not None else eff.file.replace("\\", "/").rsplit("/", 1)[-1]
+    name = sheet.name if sheet is not None else _file_name(eff)
     rows = []
     for r in eff.rows:
         ci = r.ci()
@@ -326,8 +332,7 @@ def pooled_blocks(res, eff=None) -> list[Block]:
     sym = _sym(res.metric)
     out = [Block("h2", "Pooled estimate")]
     if eff is not None:
-        name = eff.file.replace("\\", "/").rsplit("/", 1)[-1]
-        out.append(Block("p", f"{md_escape(name)}: k = {plural(res.k, 'independent sample')} "
+        out.append(Block("p", f"{md_escape(_file_name(eff))}: k = {plural(res.k, 'independent sample')} "
                               f"({plural(eff.n_used, 'row')} used, {eff.n_excluded:,} "
                               f"excluded); metric {eff.metric_label}."))
     if res.metric == "z":
