@@ -111,13 +111,16 @@ def fmt(x: Any, digits: int = 3) -> str:
     return str(x)
 
 
-def text_table(headers: list[str], rows: list[list[Any]], digits: int = 3) -> str:
+def text_table(headers: list[str], rows: list[list[Any]], digits: int = 3,
+               numeric: list[bool] | None = None) -> str:
     """A plain aligned text table (no pandas, so the quick commands stay quick).
 
-    Columns whose values are all numbers (or empty) are right-aligned.
+    Columns whose values are all numbers (or empty) are right-aligned, or the columns
+    ``numeric`` says when the cells are already formatted text.
     """
-    numeric = [all(isinstance(r[i], (int, float)) and not isinstance(r[i], bool) or r[i] is None
-                   for r in rows) for i in range(len(headers))]
+    if numeric is None:
+        numeric = [all(isinstance(r[i], (int, float)) and not isinstance(r[i], bool)
+                       or r[i] is None for r in rows) for i in range(len(headers))]
     cells = [[fmt(c, digits) for c in r] for r in rows]
     widths = [max([len(h)] + [len(r[i]) for r in cells]) for i, h in enumerate(headers)]
 
@@ -137,8 +140,14 @@ def csv_safe(value):
 
 
 class ShowsAsTable:
-    """Mixin: a result with ``to_frame()`` shows as that table in a notebook (Jupyter calls
-    ``_repr_html_``), so a stage's result reads the same there as in its DataFrame."""
+    """Mixin: a stage result shows in a notebook (Jupyter calls ``_repr_html_``) as the same
+    section the terminal and the report show (:data:`pooler.report.NOTEBOOK_SECTIONS`, the
+    one content model), or as its ``to_frame()`` table when it has no section."""
 
     def _repr_html_(self) -> str:
-        return self.to_frame().to_html(index=False, na_rep="")
+        from .blocks import html_fragment
+        from .report import NOTEBOOK_SECTIONS
+        section = NOTEBOOK_SECTIONS.get(type(self).__name__)
+        if section is None:
+            return self.to_frame().to_html(index=False, na_rep="")
+        return html_fragment(section(self))

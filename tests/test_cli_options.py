@@ -91,8 +91,9 @@ def test_odd_n_with_two_equal_groups_is_said(run_cli):
     # output says so (before, the 121 was printed and 120 silently used)
     res = run_cli("plan", "--effect", "0.3", "--n", "121", "--power", "0.8")
     assert res.exit_code == 0
-    assert "a total N of 121 does not split into whole groups" in res.stdout
-    assert "60 per group, 120 in all" in res.stdout
+    said = " ".join(res.stdout.split())          # the note is wrapped like every paragraph
+    assert "a total N of 121 does not split into whole groups" in said
+    assert "60 per group, 120 in all" in said
     doc = json.loads(run_cli("plan", "--effect", "0.3", "--n", "121", "--power", "0.8",
                              "--json").stdout)
     assert doc["fixed_n"]["n_total"] == 121 and doc["fixed_n"]["n_total_used"] == 120
@@ -106,7 +107,7 @@ def test_odd_n_with_two_equal_groups_is_said(run_cli):
     # 2x2 cells: 121 -> 30 per cell, 120 in all
     res = run_cli("plan", "--effect", "0.3", "--n", "121", "--design", "interaction-2x2",
                   "--power", "0.8")
-    assert "30 per cell, 120 in all" in res.stdout
+    assert "30 per cell, 120 in all" in " ".join(res.stdout.split())
 
 
 def test_template_into_a_missing_folder(tmp_path, run_cli):

@@ -24,7 +24,8 @@ def test_readme_python_api_block_runs():
 
 
 def test_results_show_as_tables_in_a_notebook(demo_path):
-    # Jupyter shows an object's _repr_html_: each stage's result shows its to_frame() table
+    # Jupyter shows an object's _repr_html_: each stage's result shows the section the terminal
+    # and the report show (one content model), headed and with its table
     from pooler import adjust, convert, planning_scenarios, plan, pool, read_sheet
     from pooler.planning import PlanningEffect
     eff = convert(read_sheet(demo_path))
@@ -32,6 +33,20 @@ def test_results_show_as_tables_in_a_notebook(demo_path):
     bias = adjust(pooled)
     sc = planning_scenarios(pooled, bias)
     p = plan([PlanningEffect("given", 0.3)], "two-group")
-    for res in (eff, pooled, bias, sc, p):
+    heads = {"Conversions": eff, "Pooled estimate": pooled, "Bias-sensitivity suite": bias,
+             "Planning scenarios": sc, "Planning table": p}
+    for head, res in heads.items():
         html = res._repr_html_()
-        assert html.startswith("<table") and html.count("<tr") == len(res.to_frame()) + 1
+        assert html.startswith(f"<h2>{head}") and "<table><thead>" in html
+    # one table row per sheet row, per bias method, per scenario, as in to_frame()
+    for res in (eff, bias, sc):
+        assert html_rows(res._repr_html_()) == len(res.to_frame())
+    # a result without a section of its own still shows its to_frame() table
+    avg = sc.posterior
+    html = avg._repr_html_()
+    assert html.startswith("<table") and html.count("<tr") == len(avg.to_frame()) + 1
+
+
+def html_rows(html: str) -> int:
+    """Body rows of the first table of an HTML fragment."""
+    return html.split("<tbody>", 1)[1].split("</tbody>", 1)[0].count("<tr>")
