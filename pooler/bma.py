@@ -845,15 +845,16 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
 
     def incl(pred):
         pi = sum(m.prior for m in mfits if pred(m))
-        qi = sum(m.posterior for m in mfits if pred(m))
         if pi <= 0 or pi >= 1:
             return NotEstimable("every model (or none) includes it")
-        if qi <= 0:
-            return 0.0
-        if qi >= 1:
-            return NotEstimable("the posterior excludes every model without it "
-                                "(the Bayes factor exceeds the floating-point range)")
-        return float((qi / (1 - qi)) / (pi / (1 - pi)))
+        # from the log marginal likelihoods, not from 1 - P(included | data), which loses
+        # every digit once the posterior odds pass about 1e16
+        inside = np.array([pred(m) for m in mfits])
+        log_bf = (np.logaddexp.reduce(logs[inside]) - np.logaddexp.reduce(logs[~inside])
+                  - math.log(pi / (1 - pi)))
+        if log_bf > 709:
+            return NotEstimable("the Bayes factor exceeds the floating-point range")
+        return float(math.exp(log_bf))
 
     bf = {"effect": incl(lambda m: m.effect),
           "heterogeneity": incl(lambda m: m.heterogeneity),

@@ -269,7 +269,9 @@ def check_record(rec, column_of) -> tuple[list[Inconsistency], object, list[str]
                         f"'trust' is 'p' but the printed p ({parsed.p.text()}) is an inequality; "
                         "there is no exact p to convert, so trust the statistic or give the "
                         "exact p", file=None, row=rec.row, column=column_of(TRUST_COLUMN))
-                mag = statistic_from_p(stat, parsed.p.number.value, df_use, n_r)
+                # a one-tailed printed p is half the two-sided p the inversion expects
+                p_two = parsed.p.number.value * (2.0 if (rec.get("tails") or 2.0) == 1 else 1.0)
+                mag = statistic_from_p(stat, min(p_two, 1.0), df_use, n_r)
                 sign = -1.0 if (rec.get("value") or 0) < 0 else 1.0
                 new_rec = replace(rec, values={**rec.values, "value": sign * mag})
                 notes.append(f"statistic recomputed from the printed p ({parsed.p.text()}) "

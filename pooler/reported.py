@@ -310,6 +310,9 @@ def parse_reported(text: str, *, file: str | None = None, row: int | None = None
     if len(ps) > 1:
         raise err("it holds more than one p-value; paste one result per row")
     if ps:
+        if re.match(r"\s?(?:[eE]\s?[-+]?\s?\d|[x\u00d7*]\s?10)", s[ps[0].end():]):
+            raise err("the p-value is printed in scientific notation; write it as a decimal "
+                      "(p = .000012) or as an inequality (p < .001)")
         take(ps[0])
         rel = ps[0].group("rel")
         p = ReportedP(rel, _num(ps[0].group("val")))
