@@ -194,7 +194,9 @@ def _assurance_blocks(plan) -> list[Block]:
     scale = "Fisher z" if a.metric in ("r", "z") else "d"
     dist = _DENSITY_WORDS[getattr(a, "form", "normal")](a)
     out = [Block("p", f"{head}: the true effect ~ {dist} on the {scale} scale; ceiling "
-                      f"P(effect > 0) = {a.ceiling:.3f}.")]
+                      f"P(new study's true effect > 0) = {a.ceiling:.3f} (a new study's true "
+                      "effect varies around the mean effect, so this differs from "
+                      "P(effect > 0) of the mean effect).")]
     rows, why = [], []
     for t, n, nt, got in zip(a.targets, a.n, a.n_total, a.achieved):
         if isinstance(n, NotEstimable):
