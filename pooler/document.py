@@ -31,6 +31,12 @@ CAUTION = (
 
 # ------------------------------------------------------------------ building
 
+def _leans_null(bf) -> bool:
+    """The data favour no effect (inclusion Bayes factor below 1), but not strongly enough
+    for the refusal rule (pooler.bma.NULL_BF)."""
+    return isinstance(bf, float) and bf < 1.0
+
+
 def decision_blocks(run) -> list[Block]:
     """The decision, first in the terminal summary, ``report.md`` and ``report.html``: the
     verdict in one sentence; for each scenario the planning effect and the whole people to
@@ -56,15 +62,25 @@ def decision_blocks(run) -> list[Block]:
     who = recruit(real)
     sesoi = sc.sesoi
     post = getattr(sc, "posterior", None)
-    if who is not None and sc.supported and post is not None:
+    bf = post.inclusion_bf.get("effect") if post is not None else None
+    if who is not None and sc.supported and post is not None and _leans_null(bf):
+        # between the refusal threshold and even odds: plan, but say first that the data
+        # favour no effect, so that the n reads as the price of testing whether it exists
+        verdict = (f"The literature leans towards no effect (Bayes factor {bf:.2f} for an "
+                   f"effect; P(effect > 0) = {post.p_positive:.2f}; published estimate "
+                   f"{lab} = {opt.effect:.2f}), so recruiting {who} for {pw} power at "
+                   f"{lab} = {real.effect:.2f}, its most likely size if it exists, tests whether "
+                   "it exists at all; if an effect that small would not matter, plan on the "
+                   "smallest effect that would (--smallest-effect).")
+    elif who is not None and sc.supported and post is not None:
         verdict = (f"Recruit {who} for {pw} power at the realistic {lab} = {real.effect:.2f}, "
                    "the model-averaged estimate once publication bias is allowed for, given "
-                   f"a positive effect (P(effect > 0) = {post.p_positive:.2f}; as published: "
-                   f"{opt.effect:.2f}).")
+                   f"a positive effect (P(effect > 0) = {post.p_positive:.2f}; published "
+                   f"estimate {lab} = {opt.effect:.2f}).")
     elif who is not None and sc.supported:
         verdict = (f"Recruit {who} for {pw} power at the realistic {lab} = "
                    f"{real.effect:.2f}, the effect the literature supports once publication "
-                   f"bias is allowed for (as published: {opt.effect:.2f}).")
+                   f"bias is allowed for (published estimate {lab} = {opt.effect:.2f}).")
     elif who is not None and sesoi is not None:
         verdict = (f"The literature does not support an effect of at least the smallest "
                    f"effect of interest ({lab} = {real.effect:.2f}), so the plan rests on that "
@@ -281,7 +297,10 @@ def methods_paragraph(run) -> str:
         p = pooled.pooled
         txt.append(f"A random-effects model ({ESTIMATOR_NAMES[pooled.estimator]} estimate of "
                    f"tau^2; {INTERVAL_NAMES[pooled.interval]} confidence interval"
-                   + ("; Hartung & Knapp, 2001" if pooled.interval == "hksj" else "")
+                   + ({"hksj": "; Hartung & Knapp, 2001, its variance factor kept at 1 or "
+                               "more so that it is never narrower than the Wald interval, "
+                               "Knapp & Hartung, 2003",
+                       "hksj-plain": "; Hartung & Knapp, 2001"}.get(pooled.interval, ""))
                    + f") gave {sym} = {p.estimate:.2f}, {100 * pooled.level:g}% CI "
                    f"{interval_text(p.ci, 2)}")
         h = pooled.heterogeneity

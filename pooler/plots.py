@@ -254,7 +254,7 @@ def power_curves(plan, *, ax=None, n_max=None):
         pick = pick[pick < len(totals)]
         asr = assurance(a.mean, a.sd, per[pick], des, plan.alpha, plan.alternative, a.metric)
         ax.plot(totals[pick], asr, color=PURPLE, lw=1.4, ls="--",
-                label="assurance (realistic)")
+                label="assurance (over the predictive distribution)")
     for p in plan.powers:
         ax.axhline(p, color=GREY, lw=0.6, ls=":")
     if chosen is not None:

@@ -33,7 +33,7 @@ from .choices import ESTIMATORS, INTERVALS
 from .errors import OptionError
 ESTIMATOR_NAMES = {"reml": "restricted maximum likelihood (REML)", "ml": "maximum likelihood",
                    "pm": "Paule-Mandel", "dl": "DerSimonian-Laird"}
-INTERVAL_NAMES = {"hksj": "Hartung-Knapp-Sidik-Jonkman (never narrower than Wald)",
+INTERVAL_NAMES = {"hksj": "Hartung-Knapp-Sidik-Jonkman",
                   "hksj-plain": "Hartung-Knapp-Sidik-Jonkman (untruncated)",
                   "wald": "Wald (normal)"}
 

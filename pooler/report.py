@@ -194,7 +194,9 @@ def _assurance_blocks(plan) -> list[Block]:
     scale = "Fisher z" if a.metric in ("r", "z") else "d"
     dist = _DENSITY_WORDS[getattr(a, "form", "normal")](a)
     out = [Block("p", f"{head}: the true effect ~ {dist} on the {scale} scale; ceiling "
-                      f"P(effect > 0) = {a.ceiling:.3f}.")]
+                      f"P(new study's true effect > 0) = {a.ceiling:.3f} (a new study's true "
+                      "effect varies around the mean effect, so this differs from "
+                      "P(effect > 0) of the mean effect).")]
     rows, why = [], []
     for t, n, nt, got in zip(a.targets, a.n, a.n_total, a.achieved):
         if isinstance(n, NotEstimable):
@@ -377,14 +379,16 @@ def pooled_blocks(res, eff=None) -> list[Block]:
                                   f"({_json_rows(k)}).", detail=True))
             tab = tuple(tab[i] for i in pick)
         out.append(_influence_block(tab, sym))
-    s = res.subgroups
-    if s is not None and estimable(s):
-        out += [Block("h3", "Subgroups (separate tau^2)", detail=True),
-                Block("p", f"Q between = {s.q_between:.2f}, df = {s.df}, {p_text(s.p)}.",
-                      detail=True),
-                _influence_block(s.rows, sym, first="subgroup")]
-    elif s is not None:
-        out.append(Block("p", f"Subgroups: {md_escape(s)}.", detail=True))
+    for title, s, first in (("Subgroups (separate tau^2)", res.subgroups, "subgroup"),
+                            ("Published against unpublished studies (separate tau^2)",
+                             getattr(res, "by_publication", None), "status")):
+        if s is not None and estimable(s):
+            out += [Block("h3", title, detail=True),
+                    Block("p", f"Q between = {s.q_between:.2f}, df = {s.df}, {p_text(s.p)}.",
+                          detail=True),
+                    _influence_block(s.rows, sym, first=first)]
+        elif s is not None:
+            out.append(Block("p", f"{title.split(' (')[0]}: {md_escape(s)}.", detail=True))
     return out
 
 

@@ -263,3 +263,20 @@ def test_power_figure_rises_smoothly_and_marks_the_realistic_n(design):
     marks = [ln for ln in ax.lines if len(ln.get_xdata()) == 1]
     assert [float(m.get_xdata()[0]) for m in marks] == [real.n_total]
     assert any(f"realistic: N = {real.n_total:,}" in t.get_text() for t in ax.texts)
+
+
+def test_a_literature_leaning_to_no_effect_says_so_before_the_n(run_cli):
+    """Twelve just-significant invented studies (new-user trial, inflated.csv): the inclusion
+    Bayes factor for an effect lies between the refusal threshold (1/10) and 1, so the plan
+    is given, but the verdict first says the data favour no effect and what the n tests."""
+    import json
+    from pathlib import Path
+    sheet = Path(__file__).parent / "data" / "newuser" / "inflated.csv"
+    res = run_cli("pool", sheet, "--json")
+    post = json.loads(res.stdout)["scenarios"]
+    out = run_cli("run", sheet, "--design", "two-group").stdout
+    verdict = out.split("The decision", 1)[1].split("Numbers for", 1)[0]
+    assert "leans towards no effect (Bayes factor" in verdict
+    assert "tests whether it exists at all" in verdict and "--smallest-effect" in verdict
+    assert "Recruit" not in verdict.split("leans")[0]
+    assert post["realistic"]["effect"] > 0
