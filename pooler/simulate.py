@@ -39,6 +39,16 @@ def estimator_names() -> tuple[str, ...]:
 #: Planning rules whose recommended n is evaluated.
 RULES = ("random effects", "median of adjusters", "realistic", "pessimistic")
 CHUNK = 20
+#: The trade-off grid of the model-average rule, evaluated from one fit per literature
+#: (:meth:`pooler.bma.ModelAverage.with_model_prior`): prior probability of "no bias" ×
+#: quantile of the mean effect given a positive effect (0.5 = the realistic scenario).
+TRADEOFF_P_NO_BIAS = (0.5, 0.35, 0.2, 0.1)
+TRADEOFF_QUANTILES = (0.1, 0.15, 0.2, 0.25, 0.33, 0.4, 0.5)
+
+
+def tradeoff_points() -> tuple[tuple[float, float], ...]:
+    """The (prior probability of no bias, posterior quantile) points of the trade-off grid."""
+    return tuple((w, q) for w in TRADEOFF_P_NO_BIAS for q in TRADEOFF_QUANTILES)
 
 
 @dataclass(frozen=True)
@@ -149,14 +159,19 @@ def _studies_for(y, v, idx, shapes):
 
 
 def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0.8,
-                        alpha=0.05) -> tuple[dict, dict]:
-    """Run the pipeline on one literature: (estimates by estimator, true power by rule).
+                        alpha=0.05) -> tuple[dict, dict, dict]:
+    """Run the pipeline on one literature: (estimates by estimator, true power by rule,
+    extras).
 
     A rule whose planning effect is ≤ 0 recommends no study; its true power is NaN and is
-    counted as "no positive planning effect".
+    counted as "no positive planning effect". ``extras`` holds ``n_ratio`` (rule -> the n it
+    recommends over the n that the true δ needs: the oracle n) and ``tradeoff`` ((p_no_bias,
+    quantile) -> (true power, n ratio)) for the points of :func:`tradeoff_points`, all from
+    the one model-average fit of the default rule re-weighted without a refit.
     """
     from .bias import bias_suite
     from .bias import planning_methods
+    from .bma import posterior_scenarios
     from .pooling import pool_studies
     from .power import n_for_power, power_at
     from .scenarios import make_scenarios
@@ -170,10 +185,27 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
     est.update({"median of adjusters": statistics.median(e for e, _ in adj.values()) if adj
                 else pooled.mu,
                 "realistic": sc.realistic.effect, "pessimistic": sc.pessimistic.effect})
-    plan_eff = np.array([est[r] for r in RULES])
-    res = n_for_power(np.where(plan_eff > 0, plan_eff, 0.0), power, design, alpha)
+    points = tradeoff_points()
+    grid_eff = dict.fromkeys(points, math.nan)
+    avg = sc.posterior
+    if avg is not None:
+        for w in TRADEOFF_P_NO_BIAS:
+            a_w = avg if w == avg.priors.p_no_bias else avg.with_model_prior(p_no_bias=w)
+            if a_w.p_positive <= 0 or posterior_scenarios(a_w).favours_null:
+                continue   # the rule makes no positive plan here
+            for q in TRADEOFF_QUANTILES:
+                grid_eff[(w, q)] = a_w.mu_quantile(q, positive=True)
+    plan_eff = np.array([est[r] for r in RULES] + [grid_eff[p] for p in points] + [delta])
+    ok = np.isfinite(plan_eff) & (plan_eff > 0)
+    res = n_for_power(np.where(ok, plan_eff, 0.0), power, design, alpha)
     true = np.where(res.reachable, power_at(delta, np.maximum(res.n, 2), design, alpha), np.nan)
-    return est, dict(zip(RULES, (float(x) for x in true)))
+    oracle = float(res.n[-1]) if res.reachable[-1] else math.nan
+    ratio = np.where(res.reachable, res.n / oracle, np.nan)
+    nr = len(RULES)
+    extras = {"n_ratio": dict(zip(RULES, (float(x) for x in ratio[:nr]))),
+              "tradeoff": {p: (float(true[nr + i]), float(ratio[nr + i]))
+                           for i, p in enumerate(points)}}
+    return est, dict(zip(RULES, (float(x) for x in true[:nr]))), extras
 
 
 @single_threaded
@@ -182,14 +214,33 @@ def _run_chunk(args):
     rng = np.random.default_rng(seed_seq)
     ests = {e: [] for e in estimator_names()}
     pows = {r: [] for r in RULES}
+    ratios = {r: [] for r in RULES}
+    grid = {p: [] for p in tradeoff_points()}
     for _ in range(reps):
         y, v, idx = simulate_literature(rng, cell, shapes)
-        est, pw = evaluate_literature(y, v, idx, shapes, cell.delta, design=design, power=power)
+        est, pw, extra = evaluate_literature(y, v, idx, shapes, cell.delta, design=design,
+                                             power=power)
         for kname in ests:
             ests[kname].append(est[kname])
         for r in RULES:
             pows[r].append(pw[r])
-    return ests, pows
+            ratios[r].append(extra["n_ratio"][r])
+        for p in grid:
+            grid[p].append(extra["tradeoff"][p])
+    return ests, pows, ratios, grid
+
+
+def _power_summary(power, ratio=None) -> dict:
+    """Median and 10th percentile of the true power over the literatures that got a plan, the
+    share that got none, and (when given) the median n relative to the oracle n."""
+    ok = power[np.isfinite(power)]
+    out = {"median_power": float(np.median(ok)) if ok.size else None,
+           "p10_power": float(np.quantile(ok, 0.1)) if ok.size else None,
+           "share_no_positive_effect": float(np.mean(~np.isfinite(power)))}
+    if ratio is not None:
+        r = ratio[np.isfinite(ratio)]
+        out["median_n_ratio"] = float(np.median(r)) if r.size else None
+    return out
 
 
 @dataclass(frozen=True)
@@ -199,6 +250,10 @@ class CellResult:
     cell: Cell
     estimates: dict = field(repr=False)   # estimator -> array
     true_power: dict = field(repr=False)  # rule -> array (NaN: no positive planning effect)
+    #: rule -> array of the recommended n over the oracle n (the n the true δ needs)
+    n_ratio: dict = field(default_factory=dict, repr=False)
+    #: (p_no_bias, quantile) -> (true power array, n ratio array): the trade-off grid
+    tradeoff: dict = field(default_factory=dict, repr=False)
 
     @property
     def reps(self) -> int:
@@ -207,11 +262,10 @@ class CellResult:
     def summary(self) -> dict:
         out = {"cell": self.cell.__dict__, "reps": self.reps, "rules": {}, "estimators": {}}
         for r, a in self.true_power.items():
-            ok = a[np.isfinite(a)]
-            out["rules"][r] = {
-                "median_power": float(np.median(ok)) if ok.size else None,
-                "p10_power": float(np.quantile(ok, 0.1)) if ok.size else None,
-                "share_no_positive_effect": float(np.mean(~np.isfinite(a)))}
+            out["rules"][r] = _power_summary(a, self.n_ratio.get(r))
+        if self.tradeoff:
+            out["tradeoff"] = [{"p_no_bias": w, "quantile": q, **_power_summary(*arrs)}
+                               for (w, q), arrs in self.tradeoff.items()]
         for e, a in self.estimates.items():
             ok = a[np.isfinite(a)]
             out["estimators"][e] = {
@@ -245,6 +299,8 @@ class StressResult:
     def to_dict(self) -> dict:
         return to_jsonable({"schema": "pooler.stress/1", "reps": self.reps, "seed": self.seed,
                             "shapes": self.shapes, "design": self.design, "power": self.power,
+                            "tradeoff_grid": {"p_no_bias": list(TRADEOFF_P_NO_BIAS),
+                                              "quantiles": list(TRADEOFF_QUANTILES)},
                             "cells": [c.summary() for c in self.cells]})
 
     def to_frame(self):
@@ -314,7 +370,12 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
                 for e in results[ci][0][0]}
         pows = {r: np.concatenate([np.array(ch[1][r], float) for ch in results[ci]])
                 for r in RULES}
-        out.append(CellResult(cell, ests, pows))
+        ratios = {r: np.concatenate([np.array(ch[2][r], float) for ch in results[ci]])
+                  for r in RULES}
+        grid = {p: tuple(np.concatenate([np.array(ch[3][p], float).reshape(-1, 2)[:, j]
+                                         for ch in results[ci]]) for j in (0, 1))
+                for p in tradeoff_points()}
+        out.append(CellResult(cell, ests, pows, ratios, grid))
     return StressResult(tuple(out), reps, seed, shapes.label, str(design), power)
 
 
