@@ -24,6 +24,7 @@ import numpy as np
 
 from ._results import estimable, to_jsonable
 from ._threads import single_threaded
+from .choices import MODEL_AVERAGE_DEFAULTS
 from .errors import OptionError
 
 
@@ -159,7 +160,7 @@ def _studies_for(y, v, idx, shapes):
 
 
 def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0.8,
-                        alpha=0.05) -> tuple[dict, dict, dict]:
+                        alpha=0.05, rule_options=None) -> tuple[dict, dict, dict]:
     """Run the pipeline on one literature: (estimates by estimator, true power by rule,
     extras).
 
@@ -168,16 +169,21 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
     recommends over the n that the true δ needs: the oracle n) and ``tradeoff`` ((p_no_bias,
     quantile) -> (true power, n ratio)) for the points of :func:`tradeoff_points`, all from
     the one model-average fit of the default rule re-weighted without a refit.
+    ``rule_options`` holds the model-average settings by their option names
+    (``pooler.choices.MODEL_AVERAGE_OPTIONS``; default: the defaults).
     """
     from .bias import bias_suite
     from .bias import planning_methods
     from .bma import posterior_scenarios
     from .pooling import pool_studies
     from .power import n_for_power, power_at
-    from .scenarios import make_scenarios
+    from .scenarios import make_scenarios, model_average_priors
+    opts = dict(rule_options or {})
+    quantile = opts.pop("pessimistic_quantile", MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"])
     pooled = pool_studies(_studies_for(y, v, idx, shapes), "g", influence=False, file="simulated")
     bias = bias_suite(pooled)
-    sc = make_scenarios(pooled, bias, sensitivity=False)
+    sc = make_scenarios(pooled, bias, sensitivity=False, priors=model_average_priors(**opts),
+                        pessimistic_quantile=quantile)
     adj = bias.adjusted()
     est = {"random effects": pooled.mu}
     for m in planning_methods():
@@ -210,7 +216,7 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
 
 @single_threaded
 def _run_chunk(args):
-    cell, shapes, reps, seed_seq, design, power = args
+    cell, shapes, reps, seed_seq, design, power, rule_options = args
     rng = np.random.default_rng(seed_seq)
     ests = {e: [] for e in estimator_names()}
     pows = {r: [] for r in RULES}
@@ -219,7 +225,7 @@ def _run_chunk(args):
     for _ in range(reps):
         y, v, idx = simulate_literature(rng, cell, shapes)
         est, pw, extra = evaluate_literature(y, v, idx, shapes, cell.delta, design=design,
-                                             power=power)
+                                             power=power, rule_options=rule_options)
         for kname in ests:
             ests[kname].append(est[kname])
         for r in RULES:
@@ -285,6 +291,8 @@ class StressResult:
     shapes: str
     design: str
     power: float
+    #: the model-average settings the default rule ran with (option names; {} = defaults)
+    rule_options: dict = field(default_factory=dict)
 
     @property
     def rules(self) -> tuple[str, ...]:
@@ -299,6 +307,7 @@ class StressResult:
     def to_dict(self) -> dict:
         return to_jsonable({"schema": "pooler.stress/1", "reps": self.reps, "seed": self.seed,
                             "shapes": self.shapes, "design": self.design, "power": self.power,
+                            "rule_options": dict(self.rule_options),
                             "tradeoff_grid": {"p_no_bias": list(TRADEOFF_P_NO_BIAS),
                                               "quantiles": list(TRADEOFF_QUANTILES)},
                             "cells": [c.summary() for c in self.cells]})
@@ -314,7 +323,7 @@ class StressResult:
 
 
 def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design="two-group",
-                power=0.8, progress=None) -> StressResult:
+                power=0.8, progress=None, rule_options=None) -> StressResult:
     """Simulate ``reps`` literatures in every cell and evaluate each planning rule.
 
     Parameters
@@ -329,12 +338,22 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
     workers : int
         Processes (1 = in this process). Results do not depend on it.
     progress : callable(done, total) or None
+    rule_options : dict, optional
+        Settings of the model-average rule by their option names (``effect_prior_sd``, ...,
+        ``pessimistic_quantile``; ``pooler.choices.MODEL_AVERAGE_OPTIONS``).
     """
     # validation
     if reps < 1:
         raise OptionError(f"`reps` must be at least 1, not {reps!r}")
     if workers < 1:
         raise OptionError(f"`workers` must be at least 1, not {workers!r}")
+    rule_options = dict(rule_options or {})
+    from .scenarios import model_average_priors
+    model_average_priors(**{k: v for k, v in rule_options.items()
+                            if k != "pessimistic_quantile"})   # checks names and ranges
+    q = rule_options.get("pessimistic_quantile", MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"])
+    if not (isinstance(q, (int, float)) and 0 < q <= 0.5):
+        raise OptionError(f"`pessimistic_quantile` must lie in (0, 0.5], not {q!r}")
     cells = tuple(cells)
     for c in cells:
         if c.k < 2 or not 0 < c.pi <= 1 or c.tau < 0:
@@ -346,7 +365,7 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
     for ci, (cell, cs) in enumerate(zip(cells, cell_seqs)):
         for j, ss in enumerate(cs.spawn(n_chunks)):
             size = min(CHUNK, reps - j * CHUNK)
-            tasks.append(((ci, j), (cell, shapes, size, ss, design, power)))
+            tasks.append(((ci, j), (cell, shapes, size, ss, design, power, rule_options)))
     results: dict[int, list] = {i: [None] * n_chunks for i in range(len(cells))}
 
     def finished(key, value, done):
@@ -376,7 +395,8 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
                                          for ch in results[ci]]) for j in (0, 1))
                 for p in tradeoff_points()}
         out.append(CellResult(cell, ests, pows, ratios, grid))
-    return StressResult(tuple(out), reps, seed, shapes.label, str(design), power)
+    return StressResult(tuple(out), reps, seed, shapes.label, str(design), power,
+                        rule_options)
 
 
 def grid_around(analysis, scale=(0.5, 1.0, 1.5), pis=(1.0, 0.2, 0.05)) -> list[Cell]:
