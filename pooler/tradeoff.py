@@ -191,6 +191,10 @@ def tradeoff_text(t: TradeOff) -> str:
                 f"oracle, >= {REALISTIC_PROTECTION:.2f} under strong selection; pessimistic >= "
                 f"{PESSIMISTIC_PROTECTION:.2f} under strong selection; no plan <= "
                 f"{100 * NO_PLAN_LIMIT:g}%."]
+    c = choose_default(t)
+    out.append(f"The principle of pooler.tradeoff.choose_default picks prior P(no bias) = "
+               f"{c.p_no_bias:g} and pessimistic quantile {c.pessimistic_quantile:g} on this "
+               "grid: " + "; ".join(c.reasons) + ".")
     return "\n".join(out)
 
 
@@ -264,3 +268,75 @@ def tradeoff_plot(t: TradeOff):
     fig.suptitle("Protection under selection against cost without it (numbers: posterior "
                  "quantile; ring: default)", fontsize=8.5, x=0.02, ha="left")
     return fig
+
+
+@dataclass(frozen=True)
+class Choice:
+    """The default point a :class:`TradeOff` calls for (:func:`choose_default`)."""
+
+    p_no_bias: float
+    pessimistic_quantile: float
+    reasons: tuple
+
+    def to_dict(self) -> dict:
+        return to_jsonable({"p_no_bias": self.p_no_bias,
+                            "pessimistic_quantile": self.pessimistic_quantile,
+                            "reasons": list(self.reasons)})
+
+
+def _all(xs, ok):
+    return all(x is not None and ok(x) for x in xs)
+
+
+def choose_default(t: TradeOff, *, current=None) -> Choice:
+    """Choose the default rule from a trade-off table by a fixed principle.
+
+    1. The realistic scenario (quantile 0.5) carries the cost limit: without selection its
+       median true power stays at most ``REALISTIC_BAND[1]`` and its median n at most
+       ``REALISTIC_N_RATIO`` times the oracle n, at every k, with no plan in at most
+       ``NO_PLAN_LIMIT`` of literatures with δ ≥ 0.2 on average. Among the prior
+       probabilities of no bias that keep it, take the one whose realistic scenario protects
+       most under strong selection at the worst k (max-min over k; ties: the larger prior
+       probability, the published default side).
+    2. The pessimistic scenario: with that prior, the highest quantile (the cheapest) whose
+       protection under strong selection is at least ``PESSIMISTIC_PROTECTION`` at every k;
+       when no quantile of the grid reaches it at every k, the current quantile stays (no
+       move to an extreme for the sake of one k) and the reasons say so.
+
+    The whole grid is judged on medians over cells, never on one cell.
+    """
+    from .choices import ANALYSIS_DEFAULTS
+    if current is None:
+        current = (ANALYSIS_DEFAULTS["chance_of_no_bias"],
+                   ANALYSIS_DEFAULTS["pessimistic_quantile"])
+    reasons = []
+    realistic = [p for p in t.points if abs(p.quantile - 0.5) < 1e-9]
+    ok = [p for p in realistic
+          if _all(p.power_unselected, lambda x: x <= REALISTIC_BAND[1] + 1e-12)
+          and _all(p.n_ratio_unselected, lambda x: x <= REALISTIC_N_RATIO + 1e-12)
+          and p.no_plan_mean <= NO_PLAN_LIMIT]
+    if ok:
+        best = max(ok, key=lambda p: (min(x for x in p.protection if x is not None),
+                                      p.p_no_bias))
+        reasons.append(f"prior P(no bias) {best.p_no_bias:g}: of "
+                       f"{', '.join(f'{p.p_no_bias:g}' for p in ok)} (the priors whose "
+                       "realistic scenario keeps the cost limit at every k) it protects most "
+                       "at the worst k")
+        w = best.p_no_bias
+    else:
+        w = current[0]
+        reasons.append(f"no prior P(no bias) of the grid keeps the realistic cost limit at "
+                       f"every k; the current {w:g} stays")
+    pess = sorted((p for p in t.points if abs(p.p_no_bias - w) < 1e-9 and p.quantile < 0.5),
+                  key=lambda p: -p.quantile)
+    meet = [p for p in pess if _all(p.protection, lambda x: x >= PESSIMISTIC_PROTECTION)]
+    if meet:
+        q = meet[0].quantile
+        reasons.append(f"pessimistic quantile {q:g}: the highest (cheapest) whose protection "
+                       f"under strong selection is at least {PESSIMISTIC_PROTECTION:.2f} at "
+                       "every k")
+    else:
+        q = current[1]
+        reasons.append(f"no quantile of the grid reaches {PESSIMISTIC_PROTECTION:.2f} under "
+                       f"strong selection at every k; the current {q:g} stays")
+    return Choice(w, q, tuple(reasons))

@@ -106,3 +106,36 @@ def test_a_document_without_the_grid_is_refused():
     from pooler.errors import OptionError
     with pytest.raises(OptionError, match="no trade-off grid"):
         tradeoff_table({"cells": [{"cell": {"k": 5}}]})
+
+
+def _point(w, q, prot, free, ratio, nop=0.0):
+    from pooler.tradeoff import TradeOffPoint
+    return TradeOffPoint(w, q, prot, free, ratio, nop, nop)
+
+
+def test_choose_default_follows_its_principle():
+    from pooler.tradeoff import TradeOff, choose_default
+    pts = (
+        # realistic points: 0.5 keeps the cost limit, 0.2 protects more and keeps it too,
+        # 0.1 protects most but over-asks at k = 10 (n 1.3x the oracle)
+        _point(0.5, 0.5, (0.40, 0.50), (0.82, 0.86), (1.0, 1.1)),
+        _point(0.2, 0.5, (0.45, 0.58), (0.85, 0.89), (1.1, 1.2)),
+        _point(0.1, 0.5, (0.50, 0.62), (0.87, 0.90), (1.2, 1.3)),
+        # pessimistic candidates under 0.2: 0.33 misses k = 5, 0.25 meets both
+        _point(0.2, 0.33, (0.70, 0.85), (0.95, 0.97), (1.8, 1.9)),
+        _point(0.2, 0.25, (0.80, 0.90), (0.98, 0.99), (2.5, 2.6)),
+        _point(0.2, 0.1, (0.95, 0.97), (1.0, 1.0), (9.0, 6.0)),
+        _point(0.5, 0.25, (0.70, 0.80), (0.97, 0.98), (2.0, 2.1)),
+        _point(0.1, 0.25, (0.85, 0.92), (0.99, 0.99), (3.0, 3.1)),
+    )
+    t = TradeOff((5, 10), pts, 40, (0.5, 0.5, 0.25))
+    c = choose_default(t, current=(0.5, 0.25))
+    assert (c.p_no_bias, c.pessimistic_quantile) == (0.2, 0.25)
+    # a no-plan rate above the limit rules a prior out
+    pts2 = tuple(_point(p.p_no_bias, p.quantile, p.protection, p.power_unselected,
+                        p.n_ratio_unselected, 0.05 if p.p_no_bias == 0.2 else 0.0)
+                 for p in pts)
+    c2 = choose_default(TradeOff((5, 10), pts2, 40, (0.5, 0.5, 0.25)), current=(0.5, 0.25))
+    assert c2.p_no_bias == 0.5
+    # under 0.5 no quantile reaches 0.80 at every k: the current quantile stays
+    assert c2.pessimistic_quantile == 0.25 and "stays" in c2.reasons[1]
