@@ -1087,7 +1087,7 @@ def _atom(avg) -> float:
     return float(avg._mu_cdf[2])
 
 
-def posterior_scenarios(avg: ModelAverage, *, pessimistic_quantile: float = 0.25,
+def posterior_scenarios(avg: ModelAverage, *, pessimistic_quantile: float = 0.15,
                         sesoi: float | None = None, level: float = 0.95,
                         null_bf: float = NULL_BF) -> PosteriorScenarios:
     """Realistic and pessimistic planning effects from a :class:`ModelAverage`.
@@ -1096,8 +1096,8 @@ def posterior_scenarios(avg: ModelAverage, *, pessimistic_quantile: float = 0.25
     ----------
     avg : ModelAverage
     pessimistic_quantile : float
-        Quantile of μ given μ > 0 used as the pessimistic effect (0.25 by default; lower is
-        more protective and costs more participants).
+        Quantile of μ given μ > 0 used as the pessimistic effect (0.15 by default, chosen by
+        calibration; lower is more protective and costs more participants).
     sesoi : float, optional
         Smallest effect size of interest on the literature's metric: the pessimistic effect
         is never below it.

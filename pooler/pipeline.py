@@ -54,7 +54,7 @@ def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="re
             interval="hksj", adjuster="default", safeguard_level=0.6, sesoi=None,
             effect_prior_sd=1.0, heterogeneity_prior_shape=1.0, heterogeneity_prior_scale=0.15,
             pet_prior_scale=1.0, peese_prior_scale=5.0, chance_of_effect=0.5,
-            chance_of_heterogeneity=0.5, chance_of_no_bias=0.5, pessimistic_quantile=0.25,
+            chance_of_heterogeneity=0.5, chance_of_no_bias=0.5, pessimistic_quantile=0.15,
             progress=None) -> Analysis:
     """Read, convert, pool, run the bias suite and derive the planning scenarios.
 

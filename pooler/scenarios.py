@@ -3,7 +3,8 @@
 The default rule (``adjuster="default"``; :func:`posterior_rule`): optimistic = the
 random-effects estimate; realistic = the posterior median of the mean effect given a positive
 effect from the Bayesian model average over publication-bias models (:mod:`pooler.bma`);
-pessimistic = its 25th percentile, never below the SESOI, never above the realistic effect.
+pessimistic = its 15th percentile (chosen by calibration; README), never below the SESOI,
+never above the realistic effect.
 
 The earlier rule (``adjuster="safeguard"``; DEVELOPERS.md, "The planning-effect rule"):
 
@@ -185,7 +186,7 @@ def selection_identified(sm, k) -> tuple[bool, str]:
 
 
 def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
-                   sesoi=None, pessimistic_quantile=0.25, priors=None,
+                   sesoi=None, pessimistic_quantile=0.15, priors=None,
                    sensitivity=True) -> Scenarios:
     """Derive the optimistic / realistic / pessimistic planning effects.
 
@@ -340,7 +341,7 @@ def _reason(bias, key) -> str:
 # ------------------------------------------------------------------ the model-average rule
 
 def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
-                   pessimistic_quantile=0.25, priors=None, sensitivity=True) -> Scenarios:
+                   pessimistic_quantile=0.15, priors=None, sensitivity=True) -> Scenarios:
     """The default rule: realistic and pessimistic effects from the Bayesian model average
     over publication-bias models (:mod:`pooler.bma`; Bartoš et al. 2023).
 
@@ -538,7 +539,7 @@ def _describe_priors(pr) -> list[str]:
             f"P(no bias) = {pr.p_no_bias:g}"]
 
 
-def priors_note(priors, pessimistic_quantile=0.25) -> str:
+def priors_note(priors, pessimistic_quantile=0.15) -> str:
     """One sentence naming the settings of the model-average rule that differ from the
     defaults (priors on the d scale), or "" when every one is the default."""
     from .bma import DEFAULT_PRIORS

@@ -291,7 +291,8 @@ class StressResult:
     shapes: str
     design: str
     power: float
-    #: the model-average settings the default rule ran with (option names; {} = defaults)
+    #: the model-average settings the default rule ran with (option names; every one, so
+    #: that a saved run still says what it ran after the defaults change)
     rule_options: dict = field(default_factory=dict)
 
     @property
@@ -396,7 +397,7 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
                 for p in tradeoff_points()}
         out.append(CellResult(cell, ests, pows, ratios, grid))
     return StressResult(tuple(out), reps, seed, shapes.label, str(design), power,
-                        rule_options)
+                        {**MODEL_AVERAGE_DEFAULTS, **rule_options})
 
 
 def grid_around(analysis, scale=(0.5, 1.0, 1.5), pis=(1.0, 0.2, 0.05)) -> list[Cell]:

@@ -250,7 +250,7 @@ def tradeoff_plot(t: TradeOff):
             ax.axhline(level, color=GREY, ls=":", lw=0.7)
         ax.axvline(REALISTIC_N_RATIO, color=GREY, ls=":", lw=0.7)
         ax.set_xscale("log")
-        ax.xaxis.set_major_locator(FixedLocator([0.5, 0.75, 1, 1.25, 1.5, 2, 3, 5, 10, 20, 50]))
+        ax.xaxis.set_major_locator(FixedLocator([0.5, 0.75, 1, 1.5, 2, 3, 5, 10, 20, 50]))
         ax.xaxis.set_major_formatter(FuncFormatter(lambda x, _: f"{x:g}"))
         ax.xaxis.set_minor_formatter(NullFormatter())
         ax.set_title(f"k = {k} studies", fontsize=8, loc="left")
@@ -297,7 +297,8 @@ def choose_default(t: TradeOff, *, current=None) -> Choice:
        ``NO_PLAN_LIMIT`` of literatures with δ ≥ 0.2 on average. Among the prior
        probabilities of no bias that keep it, take the one whose realistic scenario protects
        most under strong selection at the worst k (max-min over k; ties: the larger prior
-       probability, the published default side).
+       probability, the published default side); when none keeps it, the one whose largest
+       n ratio is smallest.
     2. The pessimistic scenario: with that prior, the highest quantile (the cheapest) whose
        protection under strong selection is at least ``PESSIMISTIC_PROTECTION`` at every k;
        when no quantile of the grid reaches it at every k, the current quantile stays (no
@@ -324,9 +325,12 @@ def choose_default(t: TradeOff, *, current=None) -> Choice:
                        "at the worst k")
         w = best.p_no_bias
     else:
-        w = current[0]
+        # none keeps it: the prior whose realistic scenario over-asks least (lower priors
+        # on no bias only ask for more)
+        w = min(realistic, key=lambda p: (max(x for x in p.n_ratio_unselected
+                                              if x is not None), -p.p_no_bias)).p_no_bias
         reasons.append(f"no prior P(no bias) of the grid keeps the realistic cost limit at "
-                       f"every k; the current {w:g} stays")
+                       f"every k; {w:g} over-asks least")
     pess = sorted((p for p in t.points if abs(p.p_no_bias - w) < 1e-9 and p.quantile < 0.5),
                   key=lambda p: -p.quantile)
     meet = [p for p in pess if _all(p.protection, lambda x: x >= PESSIMISTIC_PROTECTION)]

@@ -64,7 +64,8 @@ def test_pool_reports_the_priors_it_used(run_cli, write_sheet):
                              "--effect-prior-sd", "0.5").stdout)
     pri = doc["model_average"]["priors"]
     assert pri["p_no_bias"] == 0.2 and pri["effect"] == "normal(0, 0.5)"
-    assert doc["model_average"]["pessimistic_quantile"] == 0.25
+    assert (doc["model_average"]["pessimistic_quantile"]
+            == MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"])
     text = run_cli("pool", sheet, "--chance-of-no-bias", "0.2").stdout
     assert "Settings changed from the defaults: P(no bias) = 0.2" in text
     # the defaults name nothing as changed
@@ -120,3 +121,14 @@ def test_stress_runs_the_rule_with_the_options(run_cli, demo_path, monkeypatch):
     # the rule under test is the grid point it names (one fit, re-weighted or not)
     assert cell["rules"]["realistic"]["median_power"] == by_point[(0.2, 0.5)]["median_power"]
     assert cell["rules"]["pessimistic"]["median_power"] == by_point[(0.2, 0.1)]["median_power"]
+
+
+def test_library_defaults_of_the_rule_are_the_canonical_ones():
+    import inspect
+    from pooler.bma import DEFAULT_PRIORS, posterior_scenarios
+    from pooler.pipeline import analyse
+    from pooler.scenarios import make_scenarios, model_average_priors, posterior_rule
+    q = MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"]
+    for fn in (analyse, make_scenarios, posterior_rule, posterior_scenarios):
+        assert inspect.signature(fn).parameters["pessimistic_quantile"].default == q, fn
+    assert model_average_priors() == DEFAULT_PRIORS
