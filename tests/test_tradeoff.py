@@ -9,6 +9,7 @@ import math
 import numpy as np
 import pytest
 
+from pooler.choices import MODEL_AVERAGE_DEFAULTS
 from pooler.simulate import (Cell, Shapes, evaluate_literature, simulate_literature,
                              stress_test, tradeoff_points)
 from pooler.tradeoff import tradeoff_markdown, tradeoff_plot, tradeoff_table, tradeoff_text
@@ -21,10 +22,13 @@ def small_run():
     return stress_test(cells, Shapes.calibration(), reps=3, seed=11, workers=1)
 
 
+W, Q = MODEL_AVERAGE_DEFAULTS["chance_of_no_bias"], MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"]
+
+
 def test_default_point_is_the_realistic_and_pessimistic_rule(small_run):
     for c in small_run.cells:
-        np.testing.assert_array_equal(c.tradeoff[(0.5, 0.5)][0], c.true_power["realistic"])
-        np.testing.assert_array_equal(c.tradeoff[(0.5, 0.25)][0], c.true_power["pessimistic"])
+        np.testing.assert_array_equal(c.tradeoff[(W, 0.5)][0], c.true_power["realistic"])
+        np.testing.assert_array_equal(c.tradeoff[(W, Q)][0], c.true_power["pessimistic"])
         np.testing.assert_array_equal(c.tradeoff[(0.5, 0.5)][1], c.n_ratio["realistic"])
         assert set(c.tradeoff) == set(tradeoff_points())
 
@@ -91,7 +95,7 @@ def test_table_text_markdown_and_figure(small_run):
     txt = tradeoff_text(t)
     assert txt.count("*") >= 2 and "n / oracle n" in txt
     md = tradeoff_markdown(t)
-    assert md.count("**0.5**") == 1 and md.count("**0.25**") == 1
+    assert md.count("**0.5**") == 1 and md.count(f"**{Q:g}**") == 1
     fig = tradeoff_plot(t)
     visible = [ax for ax in fig.axes if ax.get_visible()]
     assert len(visible) == 2
