@@ -202,7 +202,8 @@ def tradeoff_markdown(t: TradeOff) -> str:
     """The trade-off table as Markdown (for the README)."""
     ks = " / ".join(map(str, t.ks))
     out = [f"| P(no bias) | quantile | strong selection (π ≤ 0.2), k = {ks} | no selection "
-           f"(π = 1), k = {ks} | n / oracle n, no selection | no plan, δ ≥ 0.2 (mean / worst) |",
+           f"(π = 1), k = {ks} | n / oracle n, no selection "
+           "| no plan, δ ≥ 0.2 (mean / worst) |",
            "|---|---|---|---|---|---|"]
     for p in t.points:
         default = (abs(p.p_no_bias - t.default[0]) < 1e-9
