@@ -143,3 +143,15 @@ def test_choose_default_follows_its_principle():
     assert c2.p_no_bias == 0.5
     # under 0.5 no quantile reaches 0.80 at every k: the current quantile stays
     assert c2.pessimistic_quantile == 0.25 and "stays" in c2.reasons[1]
+
+
+def test_choose_default_when_no_prior_keeps_the_cost_limit():
+    from pooler.tradeoff import TradeOff, choose_default
+    pts = (_point(0.5, 0.5, (0.40, 0.50), (0.82, 0.86), (1.1, 1.29)),
+           _point(0.2, 0.5, (0.45, 0.58), (0.85, 0.92), (1.2, 1.45)),
+           _point(0.5, 0.15, (0.85, 0.90), (1.0, 1.0), (4.0, 4.5)),
+           _point(0.5, 0.2, (0.76, 0.83), (1.0, 1.0), (3.0, 3.1)))
+    c = choose_default(TradeOff((5, 10), pts, 40, (0.5, 0.5, 0.25)), current=(0.5, 0.25))
+    # the prior that over-asks least, and the cheapest quantile reaching 0.80 at every k
+    assert (c.p_no_bias, c.pessimistic_quantile) == (0.5, 0.15)
+    assert "over-asks least" in c.reasons[0]
