@@ -691,6 +691,66 @@ class ModelAverage(ShowsAsTable):
                          and (effect is None or m.effect == effect)
                          and (heterogeneity is None or m.heterogeneity == heterogeneity)))
 
+    def with_model_prior(self, *, p_no_bias=None, p_effect=None, p_heterogeneity=None,
+                         bias_shares=None) -> "ModelAverage":
+        """The same model average under other prior model probabilities, without a refit.
+
+        A model's posterior probability is its prior probability times its marginal
+        likelihood, normalised over the models (Hoeting et al. 1999, eq. 2), and each model's
+        own posterior of μ, τ and its bias parameters does not involve the prior model
+        probabilities; so only the weights change. The result equals a full
+        :func:`model_average` with those priors to rounding (the same grids are reused;
+        tests/test_bma_reweight.py checks 1e-12). Prior scales (``effect_sd``, ``tau_scale``,
+        ...) change the models' own posteriors and need a refit.
+
+        Parameters
+        ----------
+        p_no_bias, p_effect, p_heterogeneity : float in [0, 1], optional
+            New prior probabilities (unchanged when not given).
+        bias_shares : tuple of (name, share), optional
+            How 1 - p_no_bias is split between the bias models.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> y = np.array([0.42, 0.18, 0.55, 0.31, 0.08, 0.47])   # invented
+        >>> v = np.array([0.040, 0.031, 0.062, 0.045, 0.028, 0.051])
+        >>> avg = model_average(y, v)
+        >>> more_bias = avg.with_model_prior(p_no_bias=0.2)
+        >>> more_bias.priors.p_no_bias
+        0.2
+        >>> more_bias.posterior_of(bias="no bias") < avg.posterior_of(bias="no bias")
+        True
+        """
+        changes = {name: val for name, val in (("p_no_bias", p_no_bias), ("p_effect", p_effect),
+                                               ("p_heterogeneity", p_heterogeneity))
+                   if val is not None}
+        for name, val in changes.items():
+            if not (isinstance(val, (int, float)) and 0 <= val <= 1):
+                raise OptionError(f"`{name}` must lie in [0, 1], not {val!r}")
+        if bias_shares is not None:
+            bias_shares = tuple((str(b), float(s)) for b, s in bias_shares)
+            bad = [b for b, s in bias_shares if b not in BIAS_MODELS or not s >= 0]
+            if bad:
+                raise OptionError(f"`bias_shares`: {bad[0]!r} is not a bias model with a "
+                                  "share >= 0")
+            changes["bias_shares"] = bias_shares
+        pr = replace(self.priors, **changes)
+        weight = {(b, e, h): p for b, e, h, p in _model_list(pr, None)}
+        fitted = {(m.bias, m.effect, m.heterogeneity) for m in self.models}
+        missing = [key for key, p in weight.items() if p > 0 and key not in fitted]
+        if missing:
+            raise OptionError("these priors give weight to a model that was not fitted ("
+                              f"{missing[0][0]}); fit again with pooler.bma.model_average")
+        fits = [(m.bias, m.effect, m.heterogeneity, weight.get((m.bias, m.effect,
+                                                               m.heterogeneity), 0.0), m.grid)
+                for m in self.models]
+        fits = [f for f in fits if f[3] > 0]
+        if not fits:
+            raise OptionError("these priors give no model any weight")
+        return _assemble(self.metric, self.k, pr, fits, self.warnings,
+                         self.mu.interval.level)
+
     def to_dict(self) -> dict:
         comp = {b: {"prior": sum(m.prior for m in self.models if m.bias == b),
                     "posterior": self.posterior_of(bias=b)}
@@ -835,6 +895,14 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
             + tuple(model.dims(pr))
         g = _fit_model(model, d, dims, not eff, not het, pr, resolution)
         fits.append((b, eff, het, p, g))
+    return _assemble(metric, k, pr, fits, tuple(warnings), level)
+
+
+def _assemble(metric, k, pr, fits, warnings, level) -> ModelAverage:
+    """The model average from fitted models: ``fits`` holds (bias, effect, heterogeneity,
+    prior weight, grid) per model. Posterior model probabilities are prior weight × marginal
+    likelihood, normalised (Hoeting et al. 1999, eq. 2); everything else is averaged from the
+    models' own posteriors, which do not depend on the prior model probabilities."""
     ptot = sum(f[3] for f in fits)
     logs = np.array([math.log(f[3] / ptot) + f[4].log_ml if f[3] > 0 else -np.inf
                      for f in fits])
@@ -879,7 +947,7 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
     p_pos = float(max(0.0, (1 - atom) - np.interp(0.0, g_all, c_all, left=0.0)))
 
     res = ModelAverage(metric, k, pr, mfits, bf, None, None, p_pos, None, None, 0.0,
-                       tuple(warnings), mu_cdf)
+                       warnings, mu_cdf)
     lo_q, hi_q = (1 - level) / 2, (1 + level) / 2
     mu_s = Summary(res.mu_quantile(0.5), Interval(res.mu_quantile(lo_q),
                                                   res.mu_quantile(hi_q), level))
@@ -1020,7 +1088,7 @@ def _atom(avg) -> float:
     return float(avg._mu_cdf[2])
 
 
-def posterior_scenarios(avg: ModelAverage, *, pessimistic_quantile: float = 0.25,
+def posterior_scenarios(avg: ModelAverage, *, pessimistic_quantile: float = 0.15,
                         sesoi: float | None = None, level: float = 0.95,
                         null_bf: float = NULL_BF) -> PosteriorScenarios:
     """Realistic and pessimistic planning effects from a :class:`ModelAverage`.
@@ -1029,8 +1097,8 @@ def posterior_scenarios(avg: ModelAverage, *, pessimistic_quantile: float = 0.25
     ----------
     avg : ModelAverage
     pessimistic_quantile : float
-        Quantile of μ given μ > 0 used as the pessimistic effect (0.25 by default; lower is
-        more protective and costs more participants).
+        Quantile of μ given μ > 0 used as the pessimistic effect (0.15 by default, chosen by
+        calibration; lower is more protective and costs more participants).
     sesoi : float, optional
         Smallest effect size of interest on the literature's metric: the pessimistic effect
         is never below it.

@@ -20,6 +20,84 @@ INTERVALS = ("hksj", "hksj-plain", "wald")
 ADJUSTERS = ("default", "safeguard", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls")
 
 
+@dataclass(frozen=True)
+class ModelAverageOption:
+    """One setting of the model-average rule as an option: its name (the flag is the name
+    with dashes), default, allowed range, the ``pooler.bma.Priors`` field it sets (None for
+    the pessimistic quantile) and its help text."""
+
+    name: str
+    default: float
+    low: float
+    high: float
+    low_open: bool
+    high_open: bool
+    prior_field: str | None
+    help: str
+
+    @property
+    def flag(self) -> str:
+        return "--" + self.name.replace("_", "-")
+
+    def allows(self, value) -> bool:
+        import math
+        if not isinstance(value, (int, float)) or not math.isfinite(value):
+            return False
+        above = self.low < value if self.low_open else self.low <= value
+        below = value < self.high if self.high_open else value <= self.high
+        return above and below
+
+    def range_text(self) -> str:
+        lo = ("(" if self.low_open else "[") + f"{self.low:g}"
+        hi = ("inf)" if self.high == float("inf") else f"{self.high:g}"
+              + (")" if self.high_open else "]"))
+        return f"{lo}, {hi}"
+
+
+_INF = float("inf")
+#: The priors and the pessimistic quantile of the default rule (``--adjuster default``), as
+#: options of run, pool, plan SHEET, demo and stress. Scales are on Cohen's d; for
+#: correlations pooler converts them to Fisher z (pooler.bma.Priors.on_metric). Defaults:
+#: the published ones (Bartoš et al. 2023; see pooler/bma.py) and the 15th percentile, chosen
+#: from the calibration's trade-off table by pooler.tradeoff.choose_default (README,
+#: "Calibration"): the cheapest quantile of the grid whose median true power under strong
+#: selection reaches 0.80 at every k of 5 to 40 studies (0.25, the earlier default, reached
+#: 0.65 at k = 5 and 0.76 at k = 10).
+MODEL_AVERAGE_OPTIONS = (
+    ModelAverageOption("effect_prior_sd", 1.0, 0, _INF, True, True, "effect_sd",
+                       "Model average: prior SD of the mean effect (d scale), a normal prior "
+                       "centred on 0."),
+    ModelAverageOption("heterogeneity_prior_shape", 1.0, 0, _INF, True, True, "tau_shape",
+                       "Model average: shape of the inverse-gamma prior on the between-study "
+                       "SD tau."),
+    ModelAverageOption("heterogeneity_prior_scale", 0.15, 0, _INF, True, True, "tau_scale",
+                       "Model average: scale of the inverse-gamma prior on the between-study "
+                       "SD tau (d scale); larger expects more heterogeneity."),
+    ModelAverageOption("pet_prior_scale", 1.0, 0, _INF, True, True, "pet_scale",
+                       "Model average: scale of the half-Cauchy prior on the PET slope (the "
+                       "effect's rise per unit of standard error)."),
+    ModelAverageOption("peese_prior_scale", 5.0, 0, _INF, True, True, "peese_scale",
+                       "Model average: scale of the half-Cauchy prior on the PEESE slope (per "
+                       "unit of sampling variance; d scale)."),
+    ModelAverageOption("chance_of_effect", 0.5, 0, 1, True, False, "p_effect",
+                       "Model average: prior probability that there is an effect at all."),
+    ModelAverageOption("chance_of_heterogeneity", 0.5, 0, 1, False, False, "p_heterogeneity",
+                       "Model average: prior probability that the true effects vary between "
+                       "studies."),
+    ModelAverageOption("chance_of_no_bias", 0.5, 0, 1, False, False, "p_no_bias",
+                       "Model average: prior probability that the literature is free of "
+                       "publication bias (the rest is shared by the selection, PET and PEESE "
+                       "models). Lower values plan more cautiously."),
+    ModelAverageOption("pessimistic_quantile", 0.15, 0, 0.5, True, False, None,
+                       "Model average: the pessimistic scenario is this quantile of the "
+                       "posterior of the mean effect given a positive effect (the realistic "
+                       "one is its median). Lower protects more against an inflated "
+                       "literature and asks for more participants."),
+)
+#: name -> default of the model-average options
+MODEL_AVERAGE_DEFAULTS = MappingProxyType({o.name: o.default for o in MODEL_AVERAGE_OPTIONS})
+
+
 
 @dataclass(frozen=True)
 class AnalysisOptions:
@@ -35,6 +113,15 @@ class AnalysisOptions:
     adjuster: str = "default"
     safeguard_level: float = 0.6
     sesoi: float | None = None
+    effect_prior_sd: float = MODEL_AVERAGE_DEFAULTS["effect_prior_sd"]
+    heterogeneity_prior_shape: float = MODEL_AVERAGE_DEFAULTS["heterogeneity_prior_shape"]
+    heterogeneity_prior_scale: float = MODEL_AVERAGE_DEFAULTS["heterogeneity_prior_scale"]
+    pet_prior_scale: float = MODEL_AVERAGE_DEFAULTS["pet_prior_scale"]
+    peese_prior_scale: float = MODEL_AVERAGE_DEFAULTS["peese_prior_scale"]
+    chance_of_effect: float = MODEL_AVERAGE_DEFAULTS["chance_of_effect"]
+    chance_of_heterogeneity: float = MODEL_AVERAGE_DEFAULTS["chance_of_heterogeneity"]
+    chance_of_no_bias: float = MODEL_AVERAGE_DEFAULTS["chance_of_no_bias"]
+    pessimistic_quantile: float = MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"]
 
     def to_dict(self) -> dict:
         return asdict(self)

@@ -11,8 +11,8 @@ import sys
 import click
 
 from ._threads import limit_before_numpy
-from .choices import (ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS, POWERS,
-                      AnalysisOptions)
+from .choices import (ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS,
+                      MODEL_AVERAGE_OPTIONS, POWERS, AnalysisOptions)
 from .design_choices import DESIGN_OPTIONS, PLANNED_DESIGNS, SIMULATED_DESIGNS, used_by
 from .errors import OptionError, PoolerError
 
@@ -283,8 +283,26 @@ def _scenario_options(f):
     return f
 
 
+def _in_range(spec):
+    """Callback checking one model-average option against its range in pooler.choices."""
+    def check(ctx, param, value):
+        if value is not None and not spec.allows(_finite(value, param)):
+            raise click.BadParameter(f"{value:g} is outside {spec.range_text()}", param=param)
+        return value
+    return check
+
+
+def _model_average_options(f):
+    """The priors and the pessimistic quantile of the default rule (pooler.choices)."""
+    for spec in reversed(MODEL_AVERAGE_OPTIONS):
+        f = click.option(spec.flag, spec.name, type=float, default=spec.default,
+                         show_default=True, callback=_in_range(spec), help=spec.help)(f)
+    return f
+
+
 def _analysis_options(f):
-    for deco in reversed((_conversion_options, _pooling_options, _scenario_options)):
+    for deco in reversed((_conversion_options, _pooling_options, _scenario_options,
+                          _model_average_options)):
         f = deco(f)
     return f
 
@@ -297,12 +315,12 @@ def _check_sesoi(sesoi, metric):
 
 
 def _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster, safeguard_level,
-             sesoi):
+             sesoi, **model_average):
     from .pipeline import analyse
     _check_sesoi(sesoi, metric)
     a = analyse(sheet, metric=metric, within_r=within_r, sample_r=sample_r, estimator=estimator,
                 interval=interval, adjuster=adjuster, safeguard_level=safeguard_level,
-                sesoi=sesoi)
+                sesoi=sesoi, **model_average)
     _echo_warnings(a.effects.warnings)
     return a
 
@@ -312,7 +330,7 @@ def _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
 @_analysis_options
 @_json_option
 def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, safeguard_level,
-             sesoi, as_json):
+             sesoi, as_json, **model_average):
     """Pool the studies in SHEET, test for bias, and derive the planning scenarios.
 
     Prints the random- and common-effect estimates, heterogeneity (tau^2 with its Q-profile
@@ -331,7 +349,7 @@ def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
     """
     from .report import bias_text, pooled_text, scenarios_text
     a = _analyse(sheet, metric or ANALYSIS_DEFAULTS["metric"], within_r, sample_r, estimator,
-                 interval, adjuster, safeguard_level, sesoi)
+                 interval, adjuster, safeguard_level, sesoi, **model_average)
     if as_json:
         _print_json(a.pool_document())
     else:
@@ -483,6 +501,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     from .errors import OptionError
     from .planning import PlanningEffect, make_plan
     from .report import plan_text
+    model_average = {o.name: design_options.pop(o.name) for o in MODEL_AVERAGE_OPTIONS}
     des = _make_design(design, design_options)
     analysis = None
     if sheet and effects:
@@ -493,7 +512,7 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     metric = _planning_metric(metric, design)
     if sheet:
         analysis = _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster,
-                            safeguard_level, sesoi)
+                            safeguard_level, sesoi, **model_average)
         sc = analysis.scenarios
         scen = sc.planning_effects()
         predictive = sc.assurance_density()
@@ -767,12 +786,14 @@ def demo_cmd(ctx, **params):
               callback=_fraction(0, 1, percent=True, hint="a target power such as 0.8"),
               help="Target power the planning rules are asked for.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
-              help="Folder for stress.json and the figure stress.<format>.")
+              help="Folder for stress.json and the figure stress.<format> (with "
+                   "--calibration also the trade-off figure tradeoff.<format>).")
 @_figure_file_options
 @_conversion_options
+@_model_average_options
 @_json_option
 def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force, metric,
-           within_r, sample_r, as_json):
+           within_r, sample_r, as_json, **model_average):
     """Stress-test the planning rules on literatures simulated like SHEET.
 
     Simulates literatures with the same number of studies and the same designs and sample
@@ -780,7 +801,14 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
     times it) and three strengths of publication selection (non-significant results
     published with probability pi = 1, 0.2, 0.05). Each runs the real pipeline; the table
     shows the true power that the n recommended at --power by each rule would reach, and
-    each estimator's bias and RMSE.
+    each estimator's bias and RMSE. The model-average options (priors, pessimistic quantile)
+    set the rule under test.
+
+    With --calibration it also prints the trade-off table of the model-average rule: every
+    literature is fitted once and the rule re-weighted to other prior probabilities of no
+    bias (0.5, 0.35, 0.2, 0.1) and posterior quantiles (0.1 to 0.5), giving the protection
+    under strong selection against the cost without selection (n over the n the true
+    effect needs) for each.
 
     \b
     Example:
@@ -802,7 +830,8 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
     else:
         d = ANALYSIS_DEFAULTS
         a = _analyse(sheet, metric or d["metric"], within_r, sample_r, d["estimator"],
-                     d["interval"], d["adjuster"], d["safeguard_level"], d["sesoi"])
+                     d["interval"], d["adjuster"], d["safeguard_level"], d["sesoi"],
+                     **model_average)
         cells, shapes = grid_around(a), Shapes.from_effects(a.effects)
         note = grid_note(a)
     bar = None
@@ -812,24 +841,36 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
             click.echo(f"\rsimulating [{'#' * filled}{'.' * (30 - filled)}] {done}/{total}",
                        err=True, nl=done == total)
     res = stress_test(cells, shapes, reps=reps, seed=seed, workers=workers, power=target,
-                      progress=bar)
+                      progress=bar, rule_options=model_average)
+    doc = res.to_dict()
+    trade = None
+    if calibration:
+        from .tradeoff import tradeoff_table, tradeoff_text
+        trade = tradeoff_table(doc)
+        doc["tradeoff"] = trade.to_dict()
     if out_dir:
         import json as _json
         from . import plots
         from .outputs import write
         import io
-        fig = plots.stress_plot(res)
-        buf = io.BytesIO()
-        plots.save(fig, buf, fmt)
-        files = {"stress.json": (_json.dumps(res.to_dict(), indent=2, allow_nan=False)
-                                 + "\n").encode(), f"stress.{fmt}": buf.getvalue()}
+        figs = {"stress": plots.stress_plot(res)}
+        if trade is not None:
+            from .tradeoff import tradeoff_plot
+            figs["tradeoff"] = tradeoff_plot(trade)
+        files = {"stress.json": (_json.dumps(doc, indent=2, allow_nan=False) + "\n").encode()}
+        for name, fig in figs.items():
+            buf = io.BytesIO()
+            plots.save(fig, buf, fmt)
+            files[f"{name}.{fmt}"] = buf.getvalue()
         paths = write(files, out_dir, force=force)
     if as_json:
-        _print_json(res.to_dict())
+        _print_json(doc)
     else:
         if note:
             click.echo(note + "\n")
         click.echo(stress_text(res))
+        if trade is not None:
+            click.echo("\n" + tradeoff_text(trade))
         if out_dir:
             click.echo(f"\nWritten to {out_dir}/: " + ", ".join(p.name for p in paths))
 

@@ -378,8 +378,9 @@ def _posterior_methods(sc, post, lab, eff_r, eff_p, eff_o) -> str:
     bf = post.inclusion_bf["effect"]
     bf_txt = f"{bf:.2f}" if isinstance(bf, float) else "beyond the computable range"
     odds = f"P(effect > 0) = {post.p_positive:.2f}; inclusion Bayes factor for an effect {bf_txt}"
-    frequentist = ("The frequentist adjustments above are reported beside it as sensitivity "
-                   "analyses.")
+    from .scenarios import priors_sentence
+    frequentist = (priors_sentence(sc) + " The frequentist adjustments above are reported "
+                   "beside it as sensitivity analyses.").lstrip()
     k = post.k
     if k <= 2:
         frequentist += (f" With only {plural(k, 'study', 'studies')} the bias models cannot be "

@@ -52,11 +52,22 @@ class Analysis:
 @single_threaded
 def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="reml",
             interval="hksj", adjuster="default", safeguard_level=0.6, sesoi=None,
+            effect_prior_sd=1.0, heterogeneity_prior_shape=1.0, heterogeneity_prior_scale=0.15,
+            pet_prior_scale=1.0, peese_prior_scale=5.0, chance_of_effect=0.5,
+            chance_of_heterogeneity=0.5, chance_of_no_bias=0.5, pessimistic_quantile=0.15,
             progress=None) -> Analysis:
     """Read, convert, pool, run the bias suite and derive the planning scenarios.
 
+    The model-average settings (``effect_prior_sd`` ... ``pessimistic_quantile``; see
+    ``pooler.choices.MODEL_AVERAGE_OPTIONS``) apply to the default rule.
     ``progress``, if given, is called with a short message before each slow step.
     """
+    from .scenarios import model_average_priors
+    priors = model_average_priors(
+        effect_prior_sd=effect_prior_sd, heterogeneity_prior_shape=heterogeneity_prior_shape,
+        heterogeneity_prior_scale=heterogeneity_prior_scale, pet_prior_scale=pet_prior_scale,
+        peese_prior_scale=peese_prior_scale, chance_of_effect=chance_of_effect,
+        chance_of_heterogeneity=chance_of_heterogeneity, chance_of_no_bias=chance_of_no_bias)
     say = progress or (lambda msg: None)
     from .audit import audit_literature
     from .bias import bias_suite
@@ -72,7 +83,8 @@ def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="re
     say("bias-sensitivity suite (selection model from several starting points)")
     bias = bias_suite(pooled)
     scen = make_scenarios(pooled, bias, adjuster=adjuster,
-                          safeguard_level=safeguard_level, sesoi=sesoi)
+                          safeguard_level=safeguard_level, sesoi=sesoi, priors=priors,
+                          pessimistic_quantile=pessimistic_quantile)
     return Analysis(sheet, effects, pooled, bias, scen,
                     audit_literature(pooled, scen.realistic.effect))
 

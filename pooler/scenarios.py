@@ -3,7 +3,8 @@
 The default rule (``adjuster="default"``; :func:`posterior_rule`): optimistic = the
 random-effects estimate; realistic = the posterior median of the mean effect given a positive
 effect from the Bayesian model average over publication-bias models (:mod:`pooler.bma`);
-pessimistic = its 25th percentile, never below the SESOI, never above the realistic effect.
+pessimistic = its 15th percentile (chosen by calibration; README), never below the SESOI,
+never above the realistic effect.
 
 The earlier rule (``adjuster="safeguard"``; DEVELOPERS.md, "The planning-effect rule"):
 
@@ -97,6 +98,8 @@ class Scenarios(ShowsAsTable):
     #: (nodes, probabilities) of the model-averaged predictive distribution of a new
     #: study's true effect, on the literature's metric
     predictive_table: object = None
+    #: model-average rule: the posterior quantile that is the pessimistic scenario
+    pessimistic_quantile: float | None = None
 
     def realistic_interval(self, level: float | None = None):
         """Interval around the realistic effect, or NotEstimable. Under the model-average
@@ -183,7 +186,7 @@ def selection_identified(sm, k) -> tuple[bool, str]:
 
 
 def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
-                   sesoi=None, pessimistic_quantile=0.25, priors=None,
+                   sesoi=None, pessimistic_quantile=0.15, priors=None,
                    sensitivity=True) -> Scenarios:
     """Derive the optimistic / realistic / pessimistic planning effects.
 
@@ -338,7 +341,7 @@ def _reason(bias, key) -> str:
 # ------------------------------------------------------------------ the model-average rule
 
 def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
-                   pessimistic_quantile=0.25, priors=None, sensitivity=True) -> Scenarios:
+                   pessimistic_quantile=0.15, priors=None, sensitivity=True) -> Scenarios:
     """The default rule: realistic and pessimistic effects from the Bayesian model average
     over publication-bias models (:mod:`pooler.bma`; Bartoš et al. 2023).
 
@@ -348,7 +351,8 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
     for an effect is below 1/10, or P(effect < 0) > ½, the posterior favours no positive
     effect: the verdict says so and, with a SESOI, both scenarios plan on it.
     """
-    from .bma import DEFAULT_PRIORS, WIDE_PRIORS, model_average, posterior_scenarios
+    from dataclasses import replace
+    from .bma import DEFAULT_PRIORS, model_average, posterior_scenarios
     metric = pooled.metric
     sym = "g" if metric == "g" else "z"
     k = pooled.k
@@ -409,9 +413,15 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
                    f"(95% credible interval {iv.low:.3f} to {iv.high:.3f}, given a positive "
                    f"effect), P(effect > 0) = {avg.p_positive:.2f}, against {optimistic.effect:.3f} "
                    f"as published.{few}")
+    own = priors_note(pr, pessimistic_quantile)
+    if own:
+        verdict += " " + own
     sens = None
     if sensitivity:
-        wide = model_average(y, v, metric, WIDE_PRIORS)
+        # every scale of the priors in use doubled (the defaults give pooler.bma.WIDE_PRIORS)
+        wide = model_average(y, v, metric, replace(
+            pr, effect_sd=2 * pr.effect_sd, tau_scale=2 * pr.tau_scale,
+            pet_scale=2 * pr.pet_scale, peese_scale=2 * pr.peese_scale))
         if wide.p_positive > 0:
             wps = posterior_scenarios(wide, pessimistic_quantile=pessimistic_quantile,
                                       sesoi=sesoi_m)
@@ -426,7 +436,8 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
     predictive = ((mean, sd) if sd > 0 else NotEstimable("the predictive distribution has no spread"))
     return Scenarios(metric, optimistic, realistic, pessimistic, "default", safeguard_level, sesoi,
                      supported, verdict, predictive, posterior=avg,
-                     sensitivity=sens, predictive_table=(nodes, probs))
+                     sensitivity=sens, predictive_table=(nodes, probs),
+                     pessimistic_quantile=pessimistic_quantile)
 
 
 def model_average_summary(sc: Scenarios) -> dict:
@@ -436,6 +447,7 @@ def model_average_summary(sc: Scenarios) -> dict:
     avg = sc.posterior
     d = avg.to_dict()
     d["sensitivity"] = sc.sensitivity
+    d["pessimistic_quantile"] = sc.pessimistic_quantile
     return to_jsonable(d)
 
 
@@ -487,3 +499,86 @@ def predictive_effect_density(avg):
         f = np.concatenate([fn, [f0], f[pos]])
     metric = "z" if avg.metric == "z" else "d"
     return EffectDensity.from_grid(x, f, metric=metric)
+
+
+# ------------------------------------------------------------------ the rule's settings
+
+def model_average_priors(**options):
+    """The :class:`pooler.bma.Priors` from the model-average options by their plain names
+    (``effect_prior_sd``, ``chance_of_no_bias``, ...; ``pooler.choices.MODEL_AVERAGE_OPTIONS``),
+    each checked against its range; the names not given keep their defaults.
+
+    Examples
+    --------
+    >>> model_average_priors(chance_of_no_bias=0.2).p_no_bias
+    0.2
+    """
+    from dataclasses import replace
+    from .bma import DEFAULT_PRIORS
+    from .choices import MODEL_AVERAGE_OPTIONS
+    spec = {o.name: o for o in MODEL_AVERAGE_OPTIONS if o.prior_field}
+    changes = {}
+    for name, value in options.items():
+        if name not in spec:
+            raise OptionError(f"unknown model-average prior {name!r}; choose from "
+                              f"{', '.join(spec)}")
+        o = spec[name]
+        if not o.allows(value):
+            raise OptionError(f"`{name}` must lie in {o.range_text()}, not {value!r}",
+                              parameter=name)
+        changes[o.prior_field] = float(value)
+    return replace(DEFAULT_PRIORS, **changes)
+
+
+def _describe_priors(pr) -> list[str]:
+    return [f"effect ~ Normal(0, {pr.effect_sd:g}^2)",
+            f"tau ~ inverse-gamma({pr.tau_shape:g}, {pr.tau_scale:g})",
+            f"PET slope ~ half-Cauchy(0, {pr.pet_scale:g})",
+            f"PEESE slope ~ half-Cauchy(0, {pr.peese_scale:g})",
+            f"P(effect) = {pr.p_effect:g}", f"P(heterogeneity) = {pr.p_heterogeneity:g}",
+            f"P(no bias) = {pr.p_no_bias:g}"]
+
+
+def priors_note(priors, pessimistic_quantile=0.15) -> str:
+    """One sentence naming the settings of the model-average rule that differ from the
+    defaults (priors on the d scale), or "" when every one is the default."""
+    from .bma import DEFAULT_PRIORS
+    from .choices import MODEL_AVERAGE_DEFAULTS
+    mine, base = _describe_priors(priors), _describe_priors(DEFAULT_PRIORS)
+    changed = [a for a, b in zip(mine, base) if a != b]
+    if abs(pessimistic_quantile - MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"]) > 1e-12:
+        changed.append(f"pessimistic quantile {pessimistic_quantile:g}")
+    if not changed:
+        return ""
+    return ("Settings changed from the defaults: " + "; ".join(changed)
+            + " (priors on the d scale).")
+
+
+def priors_sentence(scen) -> str:
+    """The priors behind a model-average :class:`Scenarios` in words, for the methods
+    paragraph: the published defaults, or the settings changed from them."""
+    post = scen.posterior
+    if post is None:
+        return ""
+    pr = post.priors if scen.metric == "g" else _back_to_d(post.priors)
+    q = _pessimistic_quantile(scen)
+    note = priors_note(pr, q)
+    if not note:
+        return ("The priors were the published defaults (Bartoš et al., 2023): "
+                + ", ".join(_describe_priors(pr)[:4]) + ", half the prior probability on "
+                "no publication bias.")
+    return "The priors were the published defaults (Bartoš et al., 2023) except: " + \
+        note.removeprefix("Settings changed from the defaults: ")
+
+
+def _back_to_d(pr):
+    """Undo :meth:`pooler.bma.Priors.on_metric` for Fisher z (to describe the priors on d)."""
+    from dataclasses import replace
+    return replace(pr, effect_sd=pr.effect_sd * 2, tau_scale=pr.tau_scale * 2,
+                   peese_scale=pr.peese_scale / 2)
+
+
+def _pessimistic_quantile(scen) -> float:
+    from .choices import MODEL_AVERAGE_DEFAULTS
+    q = getattr(scen, "pessimistic_quantile", None)
+    return MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"] if q is None else q

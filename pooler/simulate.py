@@ -24,6 +24,7 @@ import numpy as np
 
 from ._results import estimable, to_jsonable
 from ._threads import single_threaded
+from .choices import MODEL_AVERAGE_DEFAULTS
 from .errors import OptionError
 
 
@@ -39,6 +40,16 @@ def estimator_names() -> tuple[str, ...]:
 #: Planning rules whose recommended n is evaluated.
 RULES = ("random effects", "median of adjusters", "realistic", "pessimistic")
 CHUNK = 20
+#: The trade-off grid of the model-average rule, evaluated from one fit per literature
+#: (:meth:`pooler.bma.ModelAverage.with_model_prior`): prior probability of "no bias" ×
+#: quantile of the mean effect given a positive effect (0.5 = the realistic scenario).
+TRADEOFF_P_NO_BIAS = (0.5, 0.35, 0.2, 0.1)
+TRADEOFF_QUANTILES = (0.1, 0.15, 0.2, 0.25, 0.33, 0.4, 0.5)
+
+
+def tradeoff_points() -> tuple[tuple[float, float], ...]:
+    """The (prior probability of no bias, posterior quantile) points of the trade-off grid."""
+    return tuple((w, q) for w in TRADEOFF_P_NO_BIAS for q in TRADEOFF_QUANTILES)
 
 
 @dataclass(frozen=True)
@@ -149,20 +160,30 @@ def _studies_for(y, v, idx, shapes):
 
 
 def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0.8,
-                        alpha=0.05) -> tuple[dict, dict]:
-    """Run the pipeline on one literature: (estimates by estimator, true power by rule).
+                        alpha=0.05, rule_options=None) -> tuple[dict, dict, dict]:
+    """Run the pipeline on one literature: (estimates by estimator, true power by rule,
+    extras).
 
     A rule whose planning effect is ≤ 0 recommends no study; its true power is NaN and is
-    counted as "no positive planning effect".
+    counted as "no positive planning effect". ``extras`` holds ``n_ratio`` (rule -> the n it
+    recommends over the n that the true δ needs: the oracle n) and ``tradeoff`` ((p_no_bias,
+    quantile) -> (true power, n ratio)) for the points of :func:`tradeoff_points`, all from
+    the one model-average fit of the default rule re-weighted without a refit.
+    ``rule_options`` holds the model-average settings by their option names
+    (``pooler.choices.MODEL_AVERAGE_OPTIONS``; default: the defaults).
     """
     from .bias import bias_suite
     from .bias import planning_methods
+    from .bma import posterior_scenarios
     from .pooling import pool_studies
     from .power import n_for_power, power_at
-    from .scenarios import make_scenarios
+    from .scenarios import make_scenarios, model_average_priors
+    opts = dict(rule_options or {})
+    quantile = opts.pop("pessimistic_quantile", MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"])
     pooled = pool_studies(_studies_for(y, v, idx, shapes), "g", influence=False, file="simulated")
     bias = bias_suite(pooled)
-    sc = make_scenarios(pooled, bias, sensitivity=False)
+    sc = make_scenarios(pooled, bias, sensitivity=False, priors=model_average_priors(**opts),
+                        pessimistic_quantile=quantile)
     adj = bias.adjusted()
     est = {"random effects": pooled.mu}
     for m in planning_methods():
@@ -170,26 +191,62 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
     est.update({"median of adjusters": statistics.median(e for e, _ in adj.values()) if adj
                 else pooled.mu,
                 "realistic": sc.realistic.effect, "pessimistic": sc.pessimistic.effect})
-    plan_eff = np.array([est[r] for r in RULES])
-    res = n_for_power(np.where(plan_eff > 0, plan_eff, 0.0), power, design, alpha)
+    points = tradeoff_points()
+    grid_eff = dict.fromkeys(points, math.nan)
+    avg = sc.posterior
+    if avg is not None:
+        for w in TRADEOFF_P_NO_BIAS:
+            a_w = avg if w == avg.priors.p_no_bias else avg.with_model_prior(p_no_bias=w)
+            if a_w.p_positive <= 0 or posterior_scenarios(a_w).favours_null:
+                continue   # the rule makes no positive plan here
+            for q in TRADEOFF_QUANTILES:
+                grid_eff[(w, q)] = a_w.mu_quantile(q, positive=True)
+    plan_eff = np.array([est[r] for r in RULES] + [grid_eff[p] for p in points] + [delta])
+    ok = np.isfinite(plan_eff) & (plan_eff > 0)
+    res = n_for_power(np.where(ok, plan_eff, 0.0), power, design, alpha)
     true = np.where(res.reachable, power_at(delta, np.maximum(res.n, 2), design, alpha), np.nan)
-    return est, dict(zip(RULES, (float(x) for x in true)))
+    oracle = float(res.n[-1]) if res.reachable[-1] else math.nan
+    ratio = np.where(res.reachable, res.n / oracle, np.nan)
+    nr = len(RULES)
+    extras = {"n_ratio": dict(zip(RULES, (float(x) for x in ratio[:nr]))),
+              "tradeoff": {p: (float(true[nr + i]), float(ratio[nr + i]))
+                           for i, p in enumerate(points)}}
+    return est, dict(zip(RULES, (float(x) for x in true[:nr]))), extras
 
 
 @single_threaded
 def _run_chunk(args):
-    cell, shapes, reps, seed_seq, design, power = args
+    cell, shapes, reps, seed_seq, design, power, rule_options = args
     rng = np.random.default_rng(seed_seq)
     ests = {e: [] for e in estimator_names()}
     pows = {r: [] for r in RULES}
+    ratios = {r: [] for r in RULES}
+    grid = {p: [] for p in tradeoff_points()}
     for _ in range(reps):
         y, v, idx = simulate_literature(rng, cell, shapes)
-        est, pw = evaluate_literature(y, v, idx, shapes, cell.delta, design=design, power=power)
+        est, pw, extra = evaluate_literature(y, v, idx, shapes, cell.delta, design=design,
+                                             power=power, rule_options=rule_options)
         for kname in ests:
             ests[kname].append(est[kname])
         for r in RULES:
             pows[r].append(pw[r])
-    return ests, pows
+            ratios[r].append(extra["n_ratio"][r])
+        for p in grid:
+            grid[p].append(extra["tradeoff"][p])
+    return ests, pows, ratios, grid
+
+
+def _power_summary(power, ratio=None) -> dict:
+    """Median and 10th percentile of the true power over the literatures that got a plan, the
+    share that got none, and (when given) the median n relative to the oracle n."""
+    ok = power[np.isfinite(power)]
+    out = {"median_power": float(np.median(ok)) if ok.size else None,
+           "p10_power": float(np.quantile(ok, 0.1)) if ok.size else None,
+           "share_no_positive_effect": float(np.mean(~np.isfinite(power)))}
+    if ratio is not None:
+        r = ratio[np.isfinite(ratio)]
+        out["median_n_ratio"] = float(np.median(r)) if r.size else None
+    return out
 
 
 @dataclass(frozen=True)
@@ -199,6 +256,10 @@ class CellResult:
     cell: Cell
     estimates: dict = field(repr=False)   # estimator -> array
     true_power: dict = field(repr=False)  # rule -> array (NaN: no positive planning effect)
+    #: rule -> array of the recommended n over the oracle n (the n the true δ needs)
+    n_ratio: dict = field(default_factory=dict, repr=False)
+    #: (p_no_bias, quantile) -> (true power array, n ratio array): the trade-off grid
+    tradeoff: dict = field(default_factory=dict, repr=False)
 
     @property
     def reps(self) -> int:
@@ -207,11 +268,10 @@ class CellResult:
     def summary(self) -> dict:
         out = {"cell": self.cell.__dict__, "reps": self.reps, "rules": {}, "estimators": {}}
         for r, a in self.true_power.items():
-            ok = a[np.isfinite(a)]
-            out["rules"][r] = {
-                "median_power": float(np.median(ok)) if ok.size else None,
-                "p10_power": float(np.quantile(ok, 0.1)) if ok.size else None,
-                "share_no_positive_effect": float(np.mean(~np.isfinite(a)))}
+            out["rules"][r] = _power_summary(a, self.n_ratio.get(r))
+        if self.tradeoff:
+            out["tradeoff"] = [{"p_no_bias": w, "quantile": q, **_power_summary(*arrs)}
+                               for (w, q), arrs in self.tradeoff.items()]
         for e, a in self.estimates.items():
             ok = a[np.isfinite(a)]
             out["estimators"][e] = {
@@ -231,6 +291,9 @@ class StressResult:
     shapes: str
     design: str
     power: float
+    #: the model-average settings the default rule ran with (option names; every one, so
+    #: that a saved run still says what it ran after the defaults change)
+    rule_options: dict = field(default_factory=dict)
 
     @property
     def rules(self) -> tuple[str, ...]:
@@ -245,6 +308,9 @@ class StressResult:
     def to_dict(self) -> dict:
         return to_jsonable({"schema": "pooler.stress/1", "reps": self.reps, "seed": self.seed,
                             "shapes": self.shapes, "design": self.design, "power": self.power,
+                            "rule_options": dict(self.rule_options),
+                            "tradeoff_grid": {"p_no_bias": list(TRADEOFF_P_NO_BIAS),
+                                              "quantiles": list(TRADEOFF_QUANTILES)},
                             "cells": [c.summary() for c in self.cells]})
 
     def to_frame(self):
@@ -258,7 +324,7 @@ class StressResult:
 
 
 def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design="two-group",
-                power=0.8, progress=None) -> StressResult:
+                power=0.8, progress=None, rule_options=None) -> StressResult:
     """Simulate ``reps`` literatures in every cell and evaluate each planning rule.
 
     Parameters
@@ -273,12 +339,22 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
     workers : int
         Processes (1 = in this process). Results do not depend on it.
     progress : callable(done, total) or None
+    rule_options : dict, optional
+        Settings of the model-average rule by their option names (``effect_prior_sd``, ...,
+        ``pessimistic_quantile``; ``pooler.choices.MODEL_AVERAGE_OPTIONS``).
     """
     # validation
     if reps < 1:
         raise OptionError(f"`reps` must be at least 1, not {reps!r}")
     if workers < 1:
         raise OptionError(f"`workers` must be at least 1, not {workers!r}")
+    rule_options = dict(rule_options or {})
+    from .scenarios import model_average_priors
+    model_average_priors(**{k: v for k, v in rule_options.items()
+                            if k != "pessimistic_quantile"})   # checks names and ranges
+    q = rule_options.get("pessimistic_quantile", MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"])
+    if not (isinstance(q, (int, float)) and 0 < q <= 0.5):
+        raise OptionError(f"`pessimistic_quantile` must lie in (0, 0.5], not {q!r}")
     cells = tuple(cells)
     for c in cells:
         if c.k < 2 or not 0 < c.pi <= 1 or c.tau < 0:
@@ -290,7 +366,7 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
     for ci, (cell, cs) in enumerate(zip(cells, cell_seqs)):
         for j, ss in enumerate(cs.spawn(n_chunks)):
             size = min(CHUNK, reps - j * CHUNK)
-            tasks.append(((ci, j), (cell, shapes, size, ss, design, power)))
+            tasks.append(((ci, j), (cell, shapes, size, ss, design, power, rule_options)))
     results: dict[int, list] = {i: [None] * n_chunks for i in range(len(cells))}
 
     def finished(key, value, done):
@@ -314,8 +390,14 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
                 for e in results[ci][0][0]}
         pows = {r: np.concatenate([np.array(ch[1][r], float) for ch in results[ci]])
                 for r in RULES}
-        out.append(CellResult(cell, ests, pows))
-    return StressResult(tuple(out), reps, seed, shapes.label, str(design), power)
+        ratios = {r: np.concatenate([np.array(ch[2][r], float) for ch in results[ci]])
+                  for r in RULES}
+        grid = {p: tuple(np.concatenate([np.array(ch[3][p], float).reshape(-1, 2)[:, j]
+                                         for ch in results[ci]]) for j in (0, 1))
+                for p in tradeoff_points()}
+        out.append(CellResult(cell, ests, pows, ratios, grid))
+    return StressResult(tuple(out), reps, seed, shapes.label, str(design), power,
+                        {**MODEL_AVERAGE_DEFAULTS, **rule_options})
 
 
 def grid_around(analysis, scale=(0.5, 1.0, 1.5), pis=(1.0, 0.2, 0.05)) -> list[Cell]:

@@ -49,6 +49,12 @@ EFFECT_RUNS = {
 ANALYSIS_OPTIONS = ["--metric", "d", "--within-r", "0.8", "--sample-r", "0.9", "--estimator",
                     "dl", "--interval", "wald", "--adjuster", "pet-peese", "--safeguard", "0.8"]
 SESOI = ["--smallest-effect", "0.3"]
+# the model-average rule's settings, every one away from its default
+MODEL_AVERAGE = ["--effect-prior-sd", "0.6", "--heterogeneity-prior-shape", "2",
+                 "--heterogeneity-prior-scale", "0.3", "--pet-prior-scale", "0.5",
+                 "--peese-prior-scale", "3", "--chance-of-effect", "0.7",
+                 "--chance-of-heterogeneity", "0.6", "--chance-of-no-bias", "0.3",
+                 "--pessimistic-quantile", "0.2"]
 
 
 def _doc(run_cli, key):
@@ -146,10 +152,33 @@ def test_analysis_options_reach_the_analysis(run_cli, write_sheet):
     assert doc_r["metric"] == "r"
 
 
+def test_model_average_options_reach_the_posterior(run_cli, write_sheet):
+    # reference: the model average computed directly with the same priors (pooler.bma),
+    # on the studies the analysis pooled
+    import numpy as np
+    from pooler.bma import Priors, model_average
+    from pooler.pipeline import analyse
+    sheet = write_sheet(SHEET_ROWS, columns=["study", "sample", "stat", "value", "n1", "n2",
+                                             "n", "design"])
+    res = run_cli("plan", sheet, *MODEL_AVERAGE, "--power", "0.8", "--json")
+    assert res.exit_code == 0, res.stderr
+    doc = json.loads(res.stdout)
+    pooled = analyse(sheet, adjuster="safeguard").pooled
+    y = np.array([u.effect for u in pooled.studies])
+    v = np.array([u.variance for u in pooled.studies])
+    pr = Priors(effect_sd=0.6, tau_shape=2.0, tau_scale=0.3, pet_scale=0.5, peese_scale=3.0,
+                p_effect=0.7, p_heterogeneity=0.6, p_no_bias=0.3)
+    ref = model_average(y, v, "g", pr)
+    got = {s["scenario"]: s["effect"] for s in doc["scenarios"]}
+    assert got["realistic"] == pytest.approx(ref.mu_quantile(0.5, positive=True), abs=1e-9)
+    assert got["pessimistic"] == pytest.approx(ref.mu_quantile(0.2, positive=True), abs=1e-9)
+    assert "20th percentile" in " ".join(s["basis"] for s in doc["scenarios"])
+
+
 def test_every_plan_option_is_exercised():
     from pooler.cli import plan
     used = {a for args in EFFECT_RUNS.values() for a in args if a.startswith("--")}
-    used |= {a for a in ANALYSIS_OPTIONS + SESOI if a.startswith("--")}
+    used |= {a for a in ANALYSIS_OPTIONS + SESOI + MODEL_AVERAGE if a.startswith("--")}
     used |= {"SHEET"}
     every = {("SHEET" if p.name == "sheet" else p.opts[0]) for p in plan.params
              if p.name != "help"}

@@ -1,7 +1,11 @@
-"""Format the calibration run as the README's Markdown table.
+"""Format the calibration run as the README's Markdown tables.
 
     pooler stress --calibration --reps 100 --out calibration
     python tests/benchmarks/calibration_table.py calibration/stress.json
+
+When the current defaults of the model-average rule (pooler/choices.py) differ from the
+settings the run used, the rule under the current defaults is read from the run's trade-off
+grid (the same literatures, re-weighted) and shown as extra columns "... (now)".
 """
 from __future__ import annotations
 
@@ -11,8 +15,28 @@ import sys
 RULES = ("random effects", "median of adjusters", "realistic", "pessimistic")
 
 
-def main(path):
-    doc = json.load(open(path))
+def with_current_rule(doc):
+    """Add the current default rule's columns from the trade-off grid when they differ."""
+    from pooler.choices import MODEL_AVERAGE_DEFAULTS
+    ran = {**MODEL_AVERAGE_DEFAULTS, **(doc.get("rule_options") or {})}
+    now = dict(MODEL_AVERAGE_DEFAULTS)
+    if all(ran[k] == now[k] for k in ("chance_of_no_bias", "pessimistic_quantile")):
+        return RULES
+    w, q = now["chance_of_no_bias"], now["pessimistic_quantile"]
+    for c in doc["cells"]:
+        grid = {(t["p_no_bias"], t["quantile"]): t for t in c["tradeoff"]}
+        c["rules"]["realistic (now)"] = grid[(w, 0.5)]
+        c["rules"]["pessimistic (now)"] = grid[(w, q)]
+    if w == ran["chance_of_no_bias"]:
+        for c in doc["cells"]:
+            del c["rules"]["realistic (now)"]
+        return RULES + ("pessimistic (now)",)
+    return RULES + ("realistic (now)", "pessimistic (now)")
+
+
+def main(doc):
+    global RULES
+    RULES = with_current_rule(doc)
     print(f"{doc['reps']} literatures per cell, seed {doc['seed']}, {doc['shapes']}; n planned "
           f"for {100 * doc['power']:g}% power; cells: median true power reached "
           "(share of literatures with no positive planning effect, when any)\n")
@@ -55,10 +79,10 @@ def summary(doc):
     ks = sorted({c["cell"]["k"] for c in doc["cells"]})
     print("\n| rule | strong selection (π ≤ 0.2), k = " + " / ".join(map(str, ks))
           + " | no selection (π = 1), k = " + " / ".join(map(str, ks))
-          + " | no plan, δ ≥ 0.2 (mean / worst cell) |")
-    print("|---|---|---|---|")
+          + " | n / oracle n, no selection | no plan, δ ≥ 0.2 (mean / worst cell) |")
+    print("|---|---|---|---|---|")
     for r in RULES:
-        strong, free = [], []
+        strong, free, ratio = [], [], []
         for k in ks:
             cs = [c for c in doc["cells"] if c["cell"]["k"] == k]
             st = [c["rules"][r]["median_power"] for c in cs if c["cell"]["pi"] <= 0.2
@@ -67,12 +91,28 @@ def summary(doc):
                   and c["rules"][r]["median_power"] is not None]
             strong.append(f"{statistics.median(st):.2f}" if st else "–")
             free.append(f"{statistics.median(fr):.2f}" if fr else "–")
+            nr = [c["rules"][r].get("median_n_ratio") for c in cs if c["cell"]["pi"] == 1]
+            nr = [x for x in nr if x is not None]
+            ratio.append(f"{statistics.median(nr):.2f}" if nr else "–")
         nop = [c["rules"][r]["share_no_positive_effect"] for c in doc["cells"]
                if c["cell"]["delta"] >= 0.2]
-        print(f"| {r} | {' / '.join(strong)} | {' / '.join(free)} | "
+        print(f"| {r} | {' / '.join(strong)} | {' / '.join(free)} | {' / '.join(ratio)} | "
               f"{100 * statistics.mean(nop):.0f} % / {100 * max(nop):.0f} % |")
 
 
+def tradeoff(doc):
+    from pooler.tradeoff import choose_default, tradeoff_markdown, tradeoff_table
+    from pooler.choices import MODEL_AVERAGE_DEFAULTS as now
+    t = tradeoff_table(doc, default=(now["chance_of_no_bias"], now["pessimistic_quantile"]))
+    print()
+    print(tradeoff_markdown(t))
+    c = choose_default(t)
+    print(f"\nchoose_default: prior P(no bias) {c.p_no_bias:g}, pessimistic quantile "
+          f"{c.pessimistic_quantile:g}: " + "; ".join(c.reasons))
+
+
 if __name__ == "__main__":
-    main(sys.argv[1])
-    summary(json.load(open(sys.argv[1])))
+    d = json.load(open(sys.argv[1]))
+    main(d)
+    summary(d)
+    tradeoff(d)
