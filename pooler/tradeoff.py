@@ -167,7 +167,7 @@ def _fmt(xs, digits=2):
 
 def tradeoff_text(t: TradeOff) -> str:
     """The trade-off table as ``pooler stress --calibration`` prints it."""
-    from .report import text_table
+    from ._results import text_table
     ks = " / ".join(map(str, t.ks))
     out = ["Trade-off of the model-average rule (every rule from the same fit per literature, "
            "re-weighted):",

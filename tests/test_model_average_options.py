@@ -66,7 +66,8 @@ def test_pool_reports_the_priors_it_used(run_cli, write_sheet):
     assert pri["p_no_bias"] == 0.2 and pri["effect"] == "normal(0, 0.5)"
     assert (doc["model_average"]["pessimistic_quantile"]
             == MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"])
-    text = run_cli("pool", sheet, "--chance-of-no-bias", "0.2").stdout
+    # the terminal wraps paragraphs at 100 columns: read it with whitespace normalised
+    text = " ".join(run_cli("pool", sheet, "--chance-of-no-bias", "0.2").stdout.split())
     assert "Settings changed from the defaults: P(no bias) = 0.2" in text
     # the defaults name nothing as changed
     assert "Settings changed" not in run_cli("pool", sheet).stdout
