@@ -80,7 +80,7 @@ def unit_powers(units, effect, metric, alpha=0.05):
             hows.append(f"two groups, {u.n1:g} + {u.n2:g}")
         elif metric == "g" and u.design == "between" and u.n_total and u.n_total > 3:
             kinds.append(("half",))
-            hows.append(f"two groups, {u.n_total:g} in all")
+            hows.append(f"{u.n_total:g} in all, as two equal groups")
         elif metric == "g" and u.design == "within" and u.n_total and u.within_r is not None:
             kinds.append(("paired", u.within_r))
             hows.append(f"paired, n = {u.n_total:g}, r = {u.within_r:g}")

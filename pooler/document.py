@@ -288,9 +288,13 @@ def methods_paragraph(run) -> str:
     sym = "g" if pooled.metric == "g" else "z"
     txt = [f"To justify the sample size we meta-analysed "
            f"{plural(eff.k, 'independent sample')} "
-           f"({plural(eff.n_used, 'reported result')}; {eff.n_excluded:,} excluded with "
-           f"reasons) from prior "
-           f"studies, converted to {metric} (Hedges, 1981; Borenstein et al., 2009)"
+           f"({plural(eff.n_used, 'reported result')}"
+           + (f"; {eff.n_excluded:,} more excluded with "
+              f"{'its reason' if eff.n_excluded == 1 else 'their reasons'}"
+              if eff.n_excluded else "")
+           + ") from prior studies, converted to "
+           + (f"{metric} (Hedges, 1981; Borenstein et al., 2009)" if pooled.metric == "g" else
+              f"{metric} (Fisher, 1921; Borenstein et al., 2009)")
            + (", putting within-subject results on the between-subject scale (Morris & DeShon, "
               "2002)" if any(u.design == "within" for u in eff.units) else "") + "."]
     if estimable(pooled.pooled):
