@@ -53,16 +53,19 @@ def plan_text(results, test_note: str = "") -> str:
 def power_text(res) -> str:
     """Power of every path and indirect effect at one n
     (:class:`~pooler.simdesign.PowerResult`)."""
+    # coverage exists only for tests by an interval (Monte Carlo CI, bootstrap): the column
+    # is shown only when some row has one
+    cover = any(e.coverage is not None for e in res.estimates)
     rows = []
     for e in res.estimates:
-        rows.append([e.target, e.power, e.mc_se,
-                     "" if e.coverage is None else f"{e.coverage:.3f}"])
+        rows.append([e.target, e.power, e.mc_se]
+                    + (["" if e.coverage is None else f"{e.coverage:.3f}"] if cover else []))
     test = f"indirect effects tested by {res.test}" if res.test else "t tests of each path"
     reps = res.estimates[0].reps if res.estimates else 0
     head = (f"{res.design.describe()}\n  n = {res.n:,}; {test}; alpha = {res.alpha:g}; "
             f"{reps:,} replications; seed = {res.seed}")
-    return head + "\n" + text_table(["target", "power", "MC SE", "coverage of true value"],
-                                    rows) + "\n"
+    return head + "\n" + text_table(["target", "power", "MC SE"]
+                                    + (["coverage of true value"] if cover else []), rows) + "\n"
 
 
 def methods_paragraph(results, reps: int, draws: int, resamples: int) -> str:

@@ -119,3 +119,12 @@ def test_paths_from_correlations_file(run_cli, tmp_path):
     bad = run_cli("paths", "--design", "simple-mediation", "--paths-file", f,
                   "--correlations", "--a", 0.3, "--n", 100)
     assert bad.exit_code == 2 and "drop --a" in bad.stderr
+
+
+def test_power_table_shows_coverage_only_for_interval_tests(run_cli):
+    """Coverage of the true value exists for tests by an interval (Monte Carlo CI); with the
+    joint-significance test no row has one, so the column is left out instead of empty."""
+    args = ("paths", "--design", "simple-mediation", "--a", "0.3", "--b", "0.3", "--n", "150",
+            "--reps", "500")
+    assert "coverage of true value" not in run_cli(*args, "--test", "joint").stdout
+    assert "coverage of true value" in run_cli(*args, "--test", "monte-carlo").stdout
