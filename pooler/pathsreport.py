@@ -26,6 +26,25 @@ def _confirmed(s) -> str:
     return f"{c.power:.3f} ± {c.mc_se:.3f}"
 
 
+def _short_of_goal(solutions) -> str:
+    """A note when the power confirmed at n falls below the goal: within 2 Monte Carlo SE it
+    is simulation noise (the n comes from a fit over many n, not from this one check)."""
+    gaps = [(s, (s.goal - s.confirmed.power) / s.confirmed.mc_se) for s in solutions
+            if estimable(s.n) and s.confirmed.power < s.goal and s.confirmed.mc_se > 0]
+    if not gaps:
+        return ""
+    worst = max(g for _, g in gaps)
+    rows = len(gaps)
+    if worst <= 2:
+        return (f"{rows} row{'s' if rows > 1 else ''} confirm{'' if rows > 1 else 's'} "
+                f"below {'their' if rows > 1 else 'its'} target by at most {worst:.1f} Monte "
+                "Carlo SE: simulation noise around an n found from the power curve, not a "
+                "shortfall (more --reps narrows it).")
+    return (f"{rows} row{'s' if rows > 1 else ''} confirm{'' if rows > 1 else 's'} below "
+            f"{'their' if rows > 1 else 'its'} target by up to {worst:.1f} Monte Carlo SE: run "
+            "again with more --reps before relying on these n.")
+
+
 def plan_text(results, test_note: str = "") -> str:
     """The planning table of one or more :class:`~pooler.simdesign.SampleSizeResult`.
 
@@ -44,6 +63,9 @@ def plan_text(results, test_note: str = "") -> str:
             rows.append([s.target, f"{s.goal:.0%}", n, _interval(s), _confirmed(s)])
         out.append(text_table(["target", "power", "n", "95% MC interval of n",
                                "power at n ± MC SE"], rows))
+        short = _short_of_goal(r.solutions)
+        if short:
+            out.append(short)
         out.append("")
     if test_note:
         out.append(test_note)

@@ -128,3 +128,17 @@ def test_power_table_shows_coverage_only_for_interval_tests(run_cli):
             "--reps", "500")
     assert "coverage of true value" not in run_cli(*args, "--test", "joint").stdout
     assert "coverage of true value" in run_cli(*args, "--test", "monte-carlo").stdout
+
+
+def test_a_confirmation_below_its_goal_is_explained():
+    """The n comes from a probit fit of power over many n; the fresh confirmation at n can
+    fall below the goal by Monte Carlo noise. Within 2 MC SE the table says it is noise,
+    beyond that it asks for more replications."""
+    from types import SimpleNamespace as S
+    from pooler.pathsreport import _short_of_goal
+
+    def sol(goal, power, se):
+        return S(n=100, goal=goal, confirmed=S(power=power, mc_se=se))
+    assert _short_of_goal([sol(0.8, 0.81, 0.01)]) == ""
+    assert "simulation noise" in _short_of_goal([sol(0.95, 0.944, 0.005)])
+    assert "more --reps before relying" in _short_of_goal([sol(0.8, 0.76, 0.01)])
