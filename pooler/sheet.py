@@ -33,6 +33,9 @@ _STAT_ALIASES = {s.lower(): s for s in STATS} | {
 NUMERIC = ("value", "n1", "n2", "n", "df", "df1", "mean1", "sd1", "mean2", "sd2",
            "events1", "events2", "ci_low", "ci_high", "within_r", "tails", "year", "predictors")
 #: Columns read as text.
+#: The name of the worksheet with the column guide in a workbook from ``pooler template``.
+GUIDE_SHEET = "column guide"
+
 TEXT = ("study", "sample", "stat", "reported", "trust", "direction", "design", "published",
         "subgroup", "note", "exclude", "path")
 KNOWN = TEXT + NUMERIC
@@ -281,7 +284,9 @@ def _read_xlsx(data: bytes, name: str, notes: list[str]):
             raise InputError(f"the first worksheet ('{ws.title}') is empty; pooler reads only the "
                              f"first worksheet, so move the data from '{others[0]}' to the front",
                              file=name)
-    if len(wb.worksheets) > 1:
+    # the column guide `pooler template` writes beside the data is not worth a note
+    extra = [w.title for w in wb.worksheets[1:] if w.title != GUIDE_SHEET]
+    if extra:
         notes.append(f"workbook has {len(wb.worksheets)} sheets; read the first, '{ws.title}'")
     if ws.merged_cells.ranges:
         first = sorted(str(r) for r in ws.merged_cells.ranges)[0]

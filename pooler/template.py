@@ -5,7 +5,7 @@ import csv
 from pathlib import Path
 
 from .errors import OptionError
-from .sheet import COLUMN_GUIDE
+from .sheet import COLUMN_GUIDE, GUIDE_SHEET
 
 #: Column order of the template.
 TEMPLATE_COLUMNS = ("study", "sample", "stat", "reported", "trust", "value", "n1", "n2", "n", "df", "df1",
@@ -87,7 +87,7 @@ def _write(p: Path, suffix: str) -> list[Path]:
         ws.append(list(TEMPLATE_COLUMNS))
         for r in rows:
             ws.append([_num(v) for v in r])
-        g = wb.create_sheet("column guide")
+        g = wb.create_sheet(GUIDE_SHEET)
         g.append(["column", "meaning"])
         for row in guide:
             g.append(list(row))

@@ -108,6 +108,8 @@ def test_template_round_trip(tmp_path, run_cli, name):
     assert {r.stat for r in eff.rows} >= {"t", "F", "r", "d", "g", "means", "chi2", "counts",
                                           "odds_ratio", "p"}
     assert sum(r.status == "excluded" for r in eff.rows) == 1
+    # the template's own column-guide worksheet is not worth a reading note
+    assert not any("sheets; read the first" in n for n in read_sheet(p).notes)
     again = run_cli("template", p)
     assert again.exit_code == 2 and "--force" in again.stderr
 
