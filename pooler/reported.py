@@ -367,6 +367,11 @@ def parse_reported(text: str, *, file: str | None = None, row: int | None = None
         if p is None:
             p = ReportedP(">", Number(ALPHA, 2))
         rest = rest[:ns.start()] + " " + rest[ns.end():]
+    # a tag saying how the p was computed: one-tailed / one-sided / 1-tailed (or two-)
+    tag = re.search(r"(?i)\b(one|1|two|2)[\s-]?(tailed|sided)\b", rest)
+    if tag:
+        values["tails"] = 1.0 if tag.group(1).lower() in ("one", "1") else 2.0
+        rest = rest[:tag.start()] + " " + rest[tag.end():]
     rest_clean = re.sub(r"[\s,;:()\[\]./*†‡]+", " ", rest).strip()
     if rest_clean:
         if "stat" not in values and re.search(r"(?i)\bn\.?\s?s\b", rest):

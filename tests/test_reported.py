@@ -217,3 +217,15 @@ def test_a_rounding_edge_says_which_end_misses_the_printed_p():
     msg, moves, _ = check_p(parsed, 212, 1, None)
     assert f"{stats.f.sf(4.125, 1, 212):.6f}" == "0.043502"
     assert "its smallest p is 0.043502, which rounds to 0.044" in msg and not moves
+
+
+def test_a_one_tailed_tag_sets_tails():
+    """'(one-tailed)' after a result says how its p was computed: t(40) = 2.1 gives a
+    two-sided p of .0421 (scipy.stats.t.sf(2.1, 40) * 2), so p = .021 is consistent one-tailed."""
+    from scipy import stats
+    assert round(2 * stats.t.sf(2.1, 40), 4) == 0.0421
+    for text in ("t(40) = 2.1, p = .021 (one-tailed)", "t(40) = 2.1, p = .021, 1-tailed",
+                 "t(40) = 2.1, p = .021, one-sided"):
+        parsed = parse_reported(text)
+        assert parsed.values["tails"] == 1.0
+        assert check_p(parsed, 40, None, None, tails=1) is None
