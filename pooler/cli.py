@@ -272,8 +272,9 @@ def _scenario_options(f):
     f = click.option("--safeguard", "safeguard_level", type=float,
                      default=ANALYSIS_DEFAULTS["safeguard_level"], show_default=True,
                      callback=_fraction(0, 1, percent=True, hint="a two-sided level, e.g. 0.6"),
-                     help="Two-sided level of the safeguard interval for the pessimistic "
-                          "scenario (Perugini et al. 2014).")(f)
+                     help="Two-sided level of the safeguard interval (Perugini et al. 2014) "
+                          "of the frequentist rules (--adjuster other than default); the model "
+                          "average uses --pessimistic-quantile instead.")(f)
     f = click.option("--adjuster", type=click.Choice(list(ADJUSTERS)),
                      default=ANALYSIS_DEFAULTS["adjuster"], show_default=True,
                      help="How the realistic scenario is chosen: the default Bayesian model "

@@ -243,8 +243,9 @@ def settings_in_words(run) -> list[str]:
            "attrition: " + (f"{100 * plan.attrition:g}%" if plan.attrition else "none assumed"),
            f"pooling: {ESTIMATOR_NAMES[pooled.estimator]} tau^2, "
            f"{INTERVAL_NAMES[pooled.interval]} {100 * pooled.level:g}% interval",
-           f"realistic effect chosen by the '{sc.rule}' rule; safeguard level "
-           f"{100 * sc.safeguard_level:g}%",
+           f"realistic effect chosen by the '{sc.rule}' rule"
+           + ("" if getattr(sc, "posterior", None) is not None else
+              f"; safeguard level {100 * sc.safeguard_level:g}%"),
            "smallest effect size of interest: " + ("none given" if sc.sesoi is None
                                                     else f"{sc.sesoi:g}")]
     if plan.fixed_n is not None:
