@@ -967,21 +967,35 @@ def convert(sheet: Sheet, metric: str = "d", *, within_r: float = 0.5,
                    inconsistencies=tuple(found))
 
 
+#: Columns of free text that do not make two rows different results.
+FREE_TEXT = frozenset({"note"})
+
+
 def _warn_duplicates(ctx: _Ctx, sheet: Sheet) -> None:
     """Warn about rows that repeat an earlier row cell for cell (they would be pooled
     twice); the copy is excluded only when the user says so in 'exclude'."""
     first: dict = {}
+    same_numbers: dict = {}
     for rec in sheet.records:
         if rec.get("exclude"):
             continue
         key = (tuple(sorted((k, v) for k, v in rec.values.items() if v is not None)),
                tuple(sorted(rec.extra.items())))
+        # the same study and numbers, differing only in free text (a note, an extra column)
+        numbers = tuple(sorted((k, v) for k, v in rec.values.items()
+                               if v is not None and k not in FREE_TEXT))
         if key in first:
             ctx.warn(rec, f"row {rec.row} repeats row {first[key]} exactly, so the same result "
                           "would be pooled twice; if it is a copy, put e.g. 'duplicate of row "
                           f"{first[key]}' in 'exclude'")
+        elif numbers in same_numbers:
+            ctx.warn(rec, f"row {rec.row} repeats the study and every number of row "
+                          f"{same_numbers[numbers]} (only free text differs), so the same "
+                          "result may be pooled twice; if it is a copy, put e.g. 'duplicate "
+                          f"of row {same_numbers[numbers]}' in 'exclude'")
         else:
             first[key] = rec.row
+            same_numbers.setdefault(numbers, rec.row)
 
 
 def _units(ctx: _Ctx, pending, sample_r: float):

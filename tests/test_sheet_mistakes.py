@@ -179,3 +179,14 @@ def test_excluded_rows_may_hold_what_cannot_be_read(tmp_path):
     assert eff.rows[1].reported == "p < .001"
     assert any("row 3 is excluded" in n for n in sheet.notes)
     assert any("row 4 is excluded" in n and "'value'" in n for n in sheet.notes)
+
+
+def test_rows_differing_only_in_their_note_are_warned_not_dropped(tmp_path):
+    """A result entered twice with different notes (new-user trial, messy2.csv) would be
+    pooled twice: warned like an exact copy; another study with the same numbers is not."""
+    text = ("study,stat,value,n1,n2,note\nA,t,2.1,20,20,first\nA,t,2.1,20,20,again\n"
+            "B,t,2.1,20,20,another study\n")
+    eff = convert(read_sheet(_write(tmp_path, text)))
+    assert eff.k == 3
+    warned = [w for w in eff.warnings if "repeats" in w]
+    assert len(warned) == 1 and "row 3 repeats the study and every number of row 2" in warned[0]
