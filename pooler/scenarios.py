@@ -208,7 +208,8 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
         Model-average rule: the priors (default: the published defaults).
     sensitivity : bool
         Model-average rule: also report the realistic and pessimistic effects under
-        :data:`pooler.bma.WIDE_PRIORS`.
+        :data:`pooler.bma.WIDE_PRIORS` (the fit re-weighted to them,
+        :func:`pooler.bma.reweighted`).
 
     Examples
     --------
@@ -348,7 +349,8 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
     for an effect is below 1/10, or P(effect < 0) > ½, the posterior favours no positive
     effect: the verdict says so and, with a SESOI, both scenarios plan on it.
     """
-    from .bma import DEFAULT_PRIORS, WIDE_PRIORS, model_average, posterior_scenarios
+    from .bma import (DEFAULT_PRIORS, WIDE_PRIORS, model_average, posterior_scenarios,
+                      reweighted)
     metric = pooled.metric
     sym = "g" if metric == "g" else "z"
     k = pooled.k
@@ -411,7 +413,8 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
                    f"as published.{few}")
     sens = None
     if sensitivity:
-        wide = model_average(y, v, metric, WIDE_PRIORS)
+        # the same fit re-weighted to the wider priors (no second fit; pooler.bma.reweighted)
+        wide = reweighted(avg, WIDE_PRIORS)
         if wide.p_positive > 0:
             wps = posterior_scenarios(wide, pessimistic_quantile=pessimistic_quantile,
                                       sesoi=sesoi_m)
