@@ -257,6 +257,13 @@ TEXT_SHOWN_ROWS = 20
 _ALL_ROWS = "every row is in the --json output"
 
 
+def _json_rows(k: int) -> str:
+    """Where the rest of a summarised text table is (pooler.pipeline.JSON_ALL_ROWS_MAX_K)."""
+    from .pipeline import JSON_ALL_ROWS_MAX_K, JSON_SHOWN_ROWS
+    return _ALL_ROWS if k <= JSON_ALL_ROWS_MAX_K else \
+        f"{JSON_SHOWN_ROWS} chosen the same way are in the --json output"
+
+
 def pooled_text(res, eff) -> str:
     """The pooling summary that ``pooler pool`` prints (per-study tables summarised above
     :data:`TEXT_MAX_ROWS` rows)."""
@@ -293,12 +300,12 @@ def pooled_text(res, eff) -> str:
                                   kind="stable")[:TEXT_SHOWN_ROWS]
                 tab = tuple(tab[i] for i in sorted(pick))
                 title = (f"Leave one out: the {TEXT_SHOWN_ROWS} of {k:,} omissions that move "
-                         f"the estimate most ({_ALL_ROWS}):")
+                         f"the estimate most ({_json_rows(k)}):")
             elif len(tab) > TEXT_MAX_ROWS:
                 pick = np.unique(np.linspace(0, len(tab) - 1, TEXT_SHOWN_ROWS).round()
                                  .astype(int))
                 title = (f"Cumulative, by year: {len(pick)} of {len(tab):,} steps, evenly "
-                         f"spaced ({_ALL_ROWS}):")
+                         f"spaced ({_json_rows(k)}):")
                 tab = tuple(tab[i] for i in pick)
             out.append(title)
             out.append(_influence_table(tab, sym))
@@ -401,7 +408,7 @@ def scenarios_text(scen, audit=None) -> str:
             pick = order[np.unique(np.linspace(0, len(rows) - 1, TEXT_SHOWN_ROWS).round()
                                    .astype(int))]
             out.append(f"  {len(pick)} of {len(rows):,} studies at evenly spaced ranks of "
-                       f"power, lowest first ({_ALL_ROWS}):")
+                       f"power, lowest first ({_json_rows(len(rows))}):")
             rows = [rows[i] for i in pick]
         out.append(text_table(["study", "power", "how"],
                               [[r.label, r.power, r.how] for r in rows], digits=2))
