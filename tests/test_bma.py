@@ -126,6 +126,7 @@ def test_bayes_factor_for_an_effect_is_the_savage_dickey_ratio():
         assert res.inclusion_bf["effect"] == pytest.approx(bf10, rel=1e-6)
 
 
+@pytest.mark.slow
 def test_quadrature_error_in_the_median_is_below_0002():
     # refining every grid (twice the nodes in every dimension) moves the model-averaged
     # posterior median of μ, and the realistic effect (median given μ > 0), by < 0.002
@@ -165,6 +166,7 @@ def test_one_model_with_wide_priors_centres_on_the_ml_fit():
 
 # ------------------------------------------------------------------ simulation
 
+@pytest.mark.slow
 def test_simulation_unbiased_without_selection_and_less_biased_than_reml_under_it():
     # Direction as in Carter, Schönbrodt, Gervais & Hilgard (2019): under strong selection the
     # random-effects (REML) estimate is inflated; the model average corrects most of it.

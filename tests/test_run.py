@@ -182,11 +182,14 @@ def test_two_runs_are_byte_identical(tmp_path, run_cli, demo_path):
 
 
 @pytest.mark.parametrize("args", [["--design", "correlation", "--metric", "r"],
-                                  ["--design", "ancova", "--covariate-r", "0.6"],
+                                  pytest.param(["--design", "ancova", "--covariate-r", "0.6"],
+                                               marks=pytest.mark.slow),
                                   ["--design", "interaction-2x2", "--attenuation", "1"],
                                   ["--design", "paired", "--planned-r", "0.7", "--one-sided"],
-                                  ["--design", "regression-increment", "--predictors-added", "2",
-                                   "--predictors-total", "4"]])
+                                  pytest.param(["--design", "regression-increment",
+                                                "--predictors-added", "2",
+                                                "--predictors-total", "4"],
+                                               marks=pytest.mark.slow)])
 def test_run_every_design(tmp_path, run_cli, demo_path, args):
     out = tmp_path / "d"
     res = run_cli("run", demo_path, "--out", out, *args)
