@@ -19,7 +19,7 @@ JSON_ALL_ROWS_MAX_K = 1000
 JSON_SHOWN_ROWS = 100
 
 
-def _summarise_tables(doc: dict, pooled, audit) -> None:
+def _summarise_tables(doc: dict, pooled) -> None:
     """Cut the per-study tables of a large literature's document to JSON_SHOWN_ROWS chosen
     entries each, in their original order (the rule of the text tables, pooler.report)."""
     import numpy as np
@@ -34,14 +34,18 @@ def _summarise_tables(doc: dict, pooled, audit) -> None:
     def spaced(m):
         return np.unique(np.linspace(0, m - 1, n).round().astype(int))
 
+    def numbers(entries, key):  # a value that could not be computed sorts as NaN
+        return np.array([e[key] if isinstance(e[key], (int, float)) else np.nan
+                         for e in entries], float)
+
     if isinstance(doc.get("units"), list) and len(doc["units"]) > n:
-        w = np.array([u["weight"] for u in doc["units"]], float)
+        w = np.nan_to_num(numbers(doc["units"], "weight"), nan=-np.inf)
         notes["units"] = keep("units", doc, np.argsort(-w, kind="stable")[:n],
                               "independent samples with the largest weight (every row is in "
                               "rows)")
     if isinstance(doc.get("leave_one_out"), list) and len(doc["leave_one_out"]) > n:
-        est = np.array([r["estimate"] for r in doc["leave_one_out"]], float)
-        move = np.abs(est - pooled.mu)
+        move = np.nan_to_num(np.abs(numbers(doc["leave_one_out"], "estimate") - pooled.mu),
+                             nan=-np.inf)
         notes["leave_one_out"] = keep("leave_one_out", doc,
                                       np.argsort(-move, kind="stable")[:n],
                                       "omissions that move the estimate most (largest move "
@@ -52,7 +56,7 @@ def _summarise_tables(doc: dict, pooled, audit) -> None:
                                    "included)")
     lit = doc["scenarios"].get("audit")
     if isinstance(lit, dict) and isinstance(lit.get("rows"), list) and len(lit["rows"]) > n:
-        order = np.argsort([r["power"] for r in lit["rows"]], kind="stable")
+        order = np.argsort(numbers(lit["rows"], "power"), kind="stable")
         notes["scenarios.audit.rows"] = keep("rows", lit, order[spaced(len(order))],
                                              "studies at evenly spaced ranks of power")
     if notes:
@@ -93,7 +97,7 @@ class Analysis:
         doc["rows"] = rows
         doc["inconsistent_reports"] = eff["inconsistent_reports"]
         if self.pooled.k > JSON_ALL_ROWS_MAX_K:
-            _summarise_tables(doc, self.pooled, self.audit)
+            _summarise_tables(doc, self.pooled)
         return doc
 
     def to_dict(self) -> dict:
