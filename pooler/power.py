@@ -458,7 +458,9 @@ def n_for_power(effect, target=0.8, design="two-group", alpha=0.05,
 
     def fn(n):
         return power_at(e, n, des, alpha, alternative)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    # the guess only brackets the search: an effect near 0 may give inf (or overflow, for a
+    # subnormal effect such as one from F = 1e-311), which the search caps at N_MAX
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         guess = _normal_guess(e, target, alpha, alternative, des)
     n, reach = _int_search(fn, target, des.n_min, valid, guess=guess)
     power = np.where(reach, power_at(e, np.maximum(n, des.n_min), des, alpha, alternative), np.nan)

@@ -22,8 +22,11 @@ _ALL_ROWS = "every row is in the JSON output"
 
 
 def _json_rows(k: int) -> str:
-    """Where the rest of a summarised table of ``k`` rows is."""
-    return _ALL_ROWS
+    """Where the rest of a summarised table of ``k`` rows is
+    (pooler.pipeline.JSON_ALL_ROWS_MAX_K)."""
+    from .pipeline import JSON_ALL_ROWS_MAX_K, JSON_SHOWN_ROWS
+    return _ALL_ROWS if k <= JSON_ALL_ROWS_MAX_K else \
+        f"{JSON_SHOWN_ROWS} chosen the same way are in the --json output"
 
 
 def ci_text(low: float, high: float, digits: int = 3) -> str:

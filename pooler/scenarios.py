@@ -211,7 +211,8 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
         Model-average rule: the priors (default: the published defaults).
     sensitivity : bool
         Model-average rule: also report the realistic and pessimistic effects under
-        :data:`pooler.bma.WIDE_PRIORS`.
+        :data:`pooler.bma.WIDE_PRIORS` (the fit re-weighted to them,
+        :func:`pooler.bma.reweighted`).
 
     Examples
     --------
@@ -352,7 +353,7 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
     effect: the verdict says so and, with a SESOI, both scenarios plan on it.
     """
     from dataclasses import replace
-    from .bma import DEFAULT_PRIORS, model_average, posterior_scenarios
+    from .bma import DEFAULT_PRIORS, model_average, posterior_scenarios, reweighted
     metric = pooled.metric
     sym = "g" if metric == "g" else "z"
     k = pooled.k
@@ -418,8 +419,9 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
         verdict += " " + own
     sens = None
     if sensitivity:
-        # every scale of the priors in use doubled (the defaults give pooler.bma.WIDE_PRIORS)
-        wide = model_average(y, v, metric, replace(
+        # every scale of the priors in use doubled (the defaults give pooler.bma.WIDE_PRIORS),
+        # by re-weighting the same fit (no second fit; pooler.bma.reweighted)
+        wide = reweighted(avg, replace(
             pr, effect_sd=2 * pr.effect_sd, tau_scale=2 * pr.tau_scale,
             pet_scale=2 * pr.pet_scale, peese_scale=2 * pr.peese_scale))
         if wide.p_positive > 0:

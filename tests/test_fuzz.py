@@ -16,6 +16,7 @@ import os
 import tempfile
 from pathlib import Path
 
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -100,6 +101,7 @@ DESIGNS = st.sampled_from(["two-group", "paired", "ancova", "interaction-2x2", "
 
 @SETTINGS
 @given(rows=valid_sheet(), design=DESIGNS)
+@pytest.mark.slow
 def test_valid_sheets_give_finite_results_or_reasons(rows, design):
     with tempfile.TemporaryDirectory() as d:
         path = write(rows, Path(d))

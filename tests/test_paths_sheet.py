@@ -84,6 +84,7 @@ def _demo_path():
     return Path(__file__).resolve().parent.parent / DEMO
 
 
+@pytest.mark.slow
 def test_each_path_is_the_ordinary_pool_of_its_rows_alone(tmp_path):
     """A path's pooled and scenario values equal `pooler.pipeline.analyse` (convert, pool,
     bias suite, scenarios on the r metric) run on a sheet holding only that path's rows."""
@@ -152,6 +153,7 @@ def test_not_positive_definite_names_the_pairs_and_exits_2(tmp_path):
 
 # ------------------------------------------------------------------ the command
 
+@pytest.mark.slow
 def test_cli_on_the_demo_sheet_plans_three_scenarios_and_writes_files(tmp_path):
     import json
     from click.testing import CliRunner
@@ -179,6 +181,7 @@ def test_cli_on_the_demo_sheet_plans_three_scenarios_and_writes_files(tmp_path):
     assert "## Methods" in report and "path_diagram.png" in report
 
 
+@pytest.mark.slow
 def test_cli_fixed_n_with_a_sheet_gives_power_per_scenario():
     from click.testing import CliRunner
     from pooler.cli import main

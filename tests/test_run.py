@@ -182,11 +182,14 @@ def test_two_runs_are_byte_identical(tmp_path, run_cli, demo_path):
 
 
 @pytest.mark.parametrize("args", [["--design", "correlation", "--metric", "r"],
-                                  ["--design", "ancova", "--covariate-r", "0.6"],
+                                  pytest.param(["--design", "ancova", "--covariate-r", "0.6"],
+                                               marks=pytest.mark.slow),
                                   ["--design", "interaction-2x2", "--attenuation", "1"],
                                   ["--design", "paired", "--planned-r", "0.7", "--one-sided"],
-                                  ["--design", "regression-increment", "--predictors-added", "2",
-                                   "--predictors-total", "4"]])
+                                  pytest.param(["--design", "regression-increment",
+                                                "--predictors-added", "2",
+                                                "--predictors-total", "4"],
+                                               marks=pytest.mark.slow)])
 def test_run_every_design(tmp_path, run_cli, demo_path, args):
     out = tmp_path / "d"
     res = run_cli("run", demo_path, "--out", out, *args)
@@ -253,3 +256,30 @@ def test_forest_legend_never_covers_a_study(demo_path):
     leg = fig.legends[0].get_window_extent()
     axes_box = ax.get_window_extent()
     assert leg.y1 <= axes_box.y0  # entirely below the plotting area
+
+
+def test_large_literature_json_keeps_every_row_and_summarises_the_other_tables(write_sheet):
+    # above pooler.pipeline.JSON_ALL_ROWS_MAX_K studies the per-study tables other than
+    # `rows` keep JSON_SHOWN_ROWS chosen entries and say so; `rows` keeps every row
+    import numpy as np
+    from pooler.pipeline import JSON_ALL_ROWS_MAX_K, JSON_SHOWN_ROWS, analyse
+    k = JSON_ALL_ROWS_MAX_K + 1
+    rng = np.random.default_rng(3)
+    a = analyse(write_sheet([{"study": f"Invented {i}", "stat": "d", "value": round(float(x), 4),
+                              "n1": int(n1), "n2": int(n2), "year": 1990 + i % 30}
+                             for i, (x, n1, n2) in enumerate(zip(rng.normal(0.3, 0.3, k),
+                                                                 rng.integers(10, 200, k),
+                                                                 rng.integers(10, 200, k)))]))
+    doc = a.pool_document()
+    assert len(doc["rows"]) == k
+    assert set(doc["summarised"]) == {"units", "leave_one_out", "cumulative",
+                                      "scenarios.audit.rows"}
+    for part in (doc["units"], doc["leave_one_out"], doc["cumulative"],
+                 doc["scenarios"]["audit"]["rows"]):
+        assert len(part) == JSON_SHOWN_ROWS
+    # the omissions kept are those that move the estimate most
+    moves = sorted(abs(r.estimate - a.pooled.mu) for r in a.pooled.leave_one_out)
+    kept = sorted(abs(r["estimate"] - a.pooled.mu) for r in doc["leave_one_out"])
+    assert kept == moves[-JSON_SHOWN_ROWS:]
+    # the cumulative steps include the first and the whole literature
+    assert doc["cumulative"][0]["k"] == 1 and doc["cumulative"][-1]["k"] == k

@@ -10,6 +10,7 @@ from __future__ import annotations
 import json
 
 import numpy as np
+import pytest
 
 from pooler.simulate import Cell, Shapes, simulate_literature, stress_test
 
@@ -24,6 +25,7 @@ def test_simulated_studies_follow_their_sampling_distribution():
     assert abs(y.var() / v.mean() - 1) < 0.08
 
 
+@pytest.mark.slow
 def test_no_selection_random_effects_unbiased_and_near_80_percent():
     res = stress_test([Cell(20, 0.4, 0.0, 1.0)], Shapes.generic(), reps=60, seed=11,
                       workers=2)
@@ -34,6 +36,7 @@ def test_no_selection_random_effects_unbiased_and_near_80_percent():
     assert 0.70 <= med <= 0.90
 
 
+@pytest.mark.slow
 def test_strong_selection_inflates_the_naive_estimate():
     res = stress_test([Cell(20, 0.2, 0.1, 0.05)], Shapes.generic(), reps=20, seed=12,
                       workers=2)
@@ -43,6 +46,7 @@ def test_strong_selection_inflates_the_naive_estimate():
     assert float(np.nanmedian(c.true_power["random effects"])) < 0.6
 
 
+@pytest.mark.slow
 def test_seeded_runs_are_reproducible_across_worker_counts():
     cells = [Cell(10, 0.3, 0.1, 0.2), Cell(10, 0.2, 0.0, 1.0)]
     a = stress_test(cells, Shapes.generic(), reps=3, seed=7, workers=1)
@@ -52,6 +56,7 @@ def test_seeded_runs_are_reproducible_across_worker_counts():
     assert json.dumps(a.to_dict()) != json.dumps(c.to_dict())
 
 
+@pytest.mark.slow
 def test_stress_command_on_demo(run_cli, demo_path, tmp_path):
     out = tmp_path / "s"
     res = run_cli("stress", demo_path, "--reps", "2", "--workers", "1", "--out", out)
@@ -76,6 +81,7 @@ def test_calibration_grid_and_shapes_cover_small_literatures():
     assert len(y) == 5 and np.all(v > 0)
 
 
+@pytest.mark.slow
 def test_stress_figure_shows_the_share_without_a_plan():
     from pooler.plots import stress_plot
     from pooler.simulate import Cell, Shapes, stress_test

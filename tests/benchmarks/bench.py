@@ -11,7 +11,7 @@ eye, never by timed assertions in the test suite):
   pooler demo / python -c "import numpy, scipy.special, matplotlib.pyplot"   <= 1.6 x
   pooler run, k = 1,000 / k = 10 (invented sheets)  <= 2 x; report.html under a few MB
   pooler pool, k = 10,000 / k = 10                  <= 2 x
-  results.json size at k = 10,000                   (reported; was 10 MB)
+  results.json size at k = 10,000                   (reported; was 14 MB)
   1,000-cell planning grid                          >= 50 x faster than a statsmodels
                                                        solve_power loop, identical integers
   REML, k = 100,000                                 <= 1 s   (and its ratio to statsmodels DL)
@@ -105,6 +105,30 @@ def write_sheet(path, k, seed=7):
             w.writerow([f"Invented {i}", "d", round(float(d), 4), n1, n2, 1990 + i % 30])
 
 
+def stage_times(sheet):
+    """Where `pooler pool` spends its time at this k: each stage once, in this process."""
+    from pooler.audit import audit_literature
+    from pooler.bias import bias_suite
+    from pooler.effects import convert
+    from pooler.pooling import pool
+    from pooler.scenarios import make_scenarios
+    from pooler.sheet import read_sheet
+    parts = []
+
+    def timed(name, fn, *args):
+        t = time.perf_counter()
+        out = fn(*args)
+        parts.append(f"{name} {time.perf_counter() - t:.2f} s")
+        return out
+    sh = timed("read", read_sheet, sheet)
+    eff = timed("convert", convert, sh)
+    pooled = timed("pool", pool, eff)
+    bias = timed("bias suite", bias_suite, pooled)
+    scen = timed("model average and scenarios", make_scenarios, pooled, bias)
+    timed("audit", audit_literature, pooled, scen.realistic.effect)
+    print(f"{'  stages at k = 10,000 (in process)':<44} {'; '.join(parts)}", flush=True)
+
+
 def main():
     print(f"machine: {platform.machine()}, {os.cpu_count()} cores, Python "
           f"{platform.python_version()}, {platform.platform()}; load average "
@@ -148,6 +172,7 @@ def main():
                   f"{os.path.getsize(os.path.join(out[1000], name)) / 1e6:9.2f} MB")
         p10k, p10 = paired(pooler + ["pool", sheets[10_000]], pooler + ["pool", sheets[10]], 3)
         ratio_line("pooler pool, k = 10,000 / k = 10", p10k, p10, 2.0)
+        stage_times(sheets[10_000])
         o10k = os.path.join(d, "out10k")
         t = _once(pooler + ["run", sheets[10_000], "--out", o10k, "--force"])
         print(f"{'pooler run, k = 10,000 (reported)':<44} {t:9.3f} s; results.json "
