@@ -141,12 +141,12 @@ def csv_safe(value):
 
 class ShowsAsTable:
     """Mixin: a stage result shows in a notebook (Jupyter calls ``_repr_html_``) as the same
-    section the terminal and the report show (:data:`pooler.report.NOTEBOOK_SECTIONS`, the
+    section the terminal and the report show (:data:`pooler.output.report.NOTEBOOK_SECTIONS`, the
     one content model), or as its ``to_frame()`` table when it has no section."""
 
     def _repr_html_(self) -> str:
-        from .blocks import html_fragment
-        from .report import NOTEBOOK_SECTIONS
+        from pooler.output.blocks import html_fragment
+        from pooler.output.report import NOTEBOOK_SECTIONS
         section = NOTEBOOK_SECTIONS.get(type(self).__name__)
         if section is None:
             return self.to_frame().to_html(index=False, na_rep="")

@@ -10,20 +10,20 @@ from types import MappingProxyType
 
 #: ``--metric``: Hedges' g (d) or Fisher's z of the correlation (r).
 METRICS = ("d", "r")
-#: ``--estimator``: the between-study variance estimators of ``pooler.pooling``.
+#: ``--estimator``: the between-study variance estimators of ``pooler.evidence.pooling``.
 ESTIMATORS = ("reml", "ml", "pm", "dl")
 #: ``--interval``: Hartung-Knapp-Sidik-Jonkman or Wald.
 INTERVALS = ("hksj", "hksj-plain", "wald")
 #: ``--adjuster``: the default rule (the model average), the earlier safeguard rule, the median
 #: rule, then one value per bias method that can
-#: set the planning effect, in planning order (``pooler.bias.adjuster_choices()``).
+#: set the planning effect, in planning order (``pooler.evidence.bias.adjuster_choices()``).
 ADJUSTERS = ("default", "safeguard", "median", "3psm", "pet-peese", "trim-and-fill", "waap-wls")
 
 
 @dataclass(frozen=True)
 class ModelAverageOption:
     """One setting of the model-average rule as an option: its name (the flag is the name
-    with dashes), default, allowed range, the ``pooler.bma.Priors`` field it sets (None for
+    with dashes), default, allowed range, the ``pooler.evidence.bma.Priors`` field it sets (None for
     the pessimistic quantile) and its help text."""
 
     name: str
@@ -57,9 +57,9 @@ class ModelAverageOption:
 _INF = float("inf")
 #: The priors and the pessimistic quantile of the default rule (``--adjuster default``), as
 #: options of run, pool, plan SHEET, demo and stress. Scales are on Cohen's d; for
-#: correlations pooler converts them to Fisher z (pooler.bma.Priors.on_metric). Defaults:
-#: the published ones (Bartoš et al. 2023; see pooler/bma.py) and the 15th percentile, chosen
-#: from the calibration's trade-off table by pooler.tradeoff.choose_default (README,
+#: correlations pooler converts them to Fisher z (pooler.evidence.bma.Priors.on_metric). Defaults:
+#: the published ones (Bartoš et al. 2023; see pooler/evidence/bma.py) and the 15th percentile, chosen
+#: from the calibration's trade-off table by pooler.planning.tradeoff.choose_default (README,
 #: "Calibration"): the cheapest quantile of the grid whose median true power under strong
 #: selection reaches 0.80 at every k of 5 to 40 studies (0.25, the earlier default, reached
 #: 0.65 at k = 5 and 0.76 at k = 10).

@@ -10,11 +10,12 @@ import sys
 
 import click
 
-from ._threads import limit_before_numpy
-from .choices import (ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS,
-                      MODEL_AVERAGE_OPTIONS, POWERS, AnalysisOptions)
-from .design_choices import DESIGN_OPTIONS, PLANNED_DESIGNS, SIMULATED_DESIGNS, used_by
-from .errors import OptionError, PoolerError
+from pooler._threads import limit_before_numpy
+from pooler.choices import (ADJUSTERS, ANALYSIS_DEFAULTS, ESTIMATORS, INTERVALS, METRICS,
+                            MODEL_AVERAGE_OPTIONS, POWERS, AnalysisOptions)
+from pooler.planning.design_choices import (DESIGN_OPTIONS, PLANNED_DESIGNS, SIMULATED_DESIGNS,
+                                            used_by)
+from pooler.errors import OptionError, PoolerError
 
 # One BLAS thread for the whole command (the reason is in pooler/_threads.py); this must run
 # before numpy is first imported, which every command does lazily after this point.
@@ -167,8 +168,8 @@ def _print_json(doc: dict) -> None:
 
 
 def _load(sheet_path, metric, within_r, sample_r):
-    from .effects import convert
-    from .sheet import read_sheet
+    from pooler.evidence.effects import convert
+    from pooler.reading.sheet import read_sheet
     sheet = read_sheet(sheet_path)
     return sheet, convert(sheet, metric, within_r=within_r, sample_r=sample_r)
 
@@ -238,7 +239,7 @@ def convert(sheet, metric, within_r, sample_r, as_json):
       pooler convert demo_literature/break_and_proofreading.csv
       pooler convert my_literature.csv --metric r --json
     """
-    from .report import effects_text
+    from pooler.output.report import effects_text
     s, eff = _load(sheet, metric or ANALYSIS_DEFAULTS["metric"], within_r, sample_r)
     _echo_warnings(eff.warnings)
     if as_json:
@@ -310,14 +311,14 @@ def _analysis_options(f):
 
 def _check_sesoi(sesoi, metric):
     if sesoi is not None and metric == "r" and not sesoi < 1:
-        from .errors import OptionError
+        from pooler.errors import OptionError
         raise OptionError(f"--smallest-effect {sesoi:g} is not a correlation; with the r metric "
                           "the smallest effect of interest must lie below 1")
 
 
 def _analyse(sheet, metric, within_r, sample_r, estimator, interval, adjuster, safeguard_level,
              sesoi, **model_average):
-    from .pipeline import analyse
+    from pooler.pipeline import analyse
     _check_sesoi(sesoi, metric)
     a = analyse(sheet, metric=metric, within_r=within_r, sample_r=sample_r, estimator=estimator,
                 interval=interval, adjuster=adjuster, safeguard_level=safeguard_level,
@@ -348,7 +349,7 @@ def pool_cmd(sheet, metric, within_r, sample_r, estimator, interval, adjuster, s
       pooler pool my_literature.csv --estimator pm --interval wald --json
       pooler pool my_literature.csv --smallest-effect 0.2 --adjuster median
     """
-    from .report import bias_text, pooled_text, scenarios_text
+    from pooler.output.report import bias_text, pooled_text, scenarios_text
     a = _analyse(sheet, metric or ANALYSIS_DEFAULTS["metric"], within_r, sample_r, estimator,
                  interval, adjuster, safeguard_level, sesoi, **model_average)
     if as_json:
@@ -434,24 +435,24 @@ def _planning_options(f=None, *, simulated: bool = False):
 
 
 # the planned designs' names, from the light list so that --help need not import numpy
-# (tests/test_designs.py checks it against the registry, pooler.designs)
+# (tests/test_designs.py checks it against the registry, pooler.planning.designs)
 _DESIGNS = PLANNED_DESIGNS
 
 
 def _planning_metric(metric, design):
     """--metric as given; when not given, the design's own metric (r for the correlational
     designs, d otherwise). A metric that differs from the design's is converted by
-    pooler.planning, which says so in the plan's notes."""
+    pooler.planning.sample_size, which says so in the plan's notes."""
     if metric is not None:
         return metric
-    from .planning import design_metric
+    from pooler.planning.sample_size import design_metric
     return design_metric(design)
 
 
 def _make_design(design, options):
     """The Design from --design and the design options (a mapping holding every name of
-    pooler.design_choices.DESIGN_OPTIONS, as click passes them)."""
-    from .errors import OptionError
+    pooler.planning.design_choices.DESIGN_OPTIONS, as click passes them)."""
+    from pooler.errors import OptionError
     opts = {k: options[k] for k in DESIGN_OPTIONS}
     added, total = opts["predictors_added"], opts["predictors_total"]
     if total is not None and total < added:
@@ -459,7 +460,7 @@ def _make_design(design, options):
                           f"--predictors-added {added}; the full model contains the "
                           "added predictors")
     opts["predictors_total"] = total or added
-    from .power import Design
+    from pooler.planning.power import Design
     return Design(design, **opts)
 
 
@@ -499,9 +500,9 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
       pooler plan demo_literature/break_and_proofreading.csv --design paired --n 120
     """
     import math
-    from .errors import OptionError
-    from .planning import PlanningEffect, make_plan
-    from .report import plan_text
+    from pooler.errors import OptionError
+    from pooler.planning.sample_size import PlanningEffect, make_plan
+    from pooler.output.report import plan_text
     model_average = {o.name: design_options.pop(o.name) for o in MODEL_AVERAGE_OPTIONS}
     des = _make_design(design, design_options)
     analysis = None
@@ -544,13 +545,13 @@ def plan(sheet, effects, effect_sd, metric, within_r, sample_r, estimator, inter
     if as_json:
         _print_json(p.to_dict())
     elif table_format != "text":
-        from .report import plan_csv, plan_markdown
+        from pooler.output.report import plan_csv, plan_markdown
         click.echo(plan_csv(p) if table_format == "csv" else plan_markdown(p), nl=False)
         if table_format == "markdown":
             click.echo("")
     else:
         if analysis is not None:
-            from .report import scenarios_text
+            from pooler.output.report import scenarios_text
             click.echo(scenarios_text(analysis.scenarios))
             click.echo("")
         click.echo(plan_text(p))
@@ -639,9 +640,9 @@ def _command_line(ctx, sheet_label) -> str:
 
 
 def _whole_job(ctx, sheet, sheet_label, params):
-    from .outputs import render, write
-    from .pipeline import run
-    from .report import run_summary_text
+    from pooler.output.outputs import render, write
+    from pooler.pipeline import run
+    from pooler.output.report import run_summary_text
     p = dict(params)
     des = _make_design(p["design"], p)
     metric = _planning_metric(p["metric"], p["design"])
@@ -651,7 +652,7 @@ def _whole_job(ctx, sheet, sheet_label, params):
     plan_options = {"alpha": p["alpha"], "tails": p["tails"],
                     "powers": tuple(p["powers"] or POWERS),
                     "attrition": p["attrition"], "n_total": p["n_total"]}
-    from .outputs import check_out
+    from pooler.output.outputs import check_out
     out = check_out(p["out_dir"], p["force"])   # before the work, so a refusal costs nothing
     result = run(sheet, design=des, analysis_options=analysis_options,
                  plan_options=plan_options, command=_command_line(ctx, sheet_label),
@@ -712,7 +713,7 @@ def _refuse_given(ctx, names, why: str, *, keep: bool = False) -> None:
     """An OptionError naming the options the user gave (on the command line or from the
     environment) among ``names`` (or, with keep=True, outside them): "FLAGS: why"."""
     from click.core import ParameterSource
-    from .errors import OptionError
+    from pooler.errors import OptionError
     given = [p for p in ctx.command.params
              if p.opts and (p.name in names) != keep
              and ctx.get_parameter_source(p.name) in (ParameterSource.COMMANDLINE,
@@ -723,7 +724,7 @@ def _refuse_given(ctx, names, why: str, *, keep: bool = False) -> None:
 
 def _simulated_run(ctx, sheet, p):
     """`pooler run SHEET --design <simulated>`: the same job as `pooler paths SHEET`."""
-    from .errors import OptionError
+    from pooler.errors import OptionError
     design = p["design"]
     if p["metric"] not in (None, "r"):
         raise OptionError(f"--metric {p['metric']}: the paths of {design} are pooled as "
@@ -738,9 +739,9 @@ def _simulated_run(ctx, sheet, p):
         given["X-Z"], names["X-Z"] = p["xz_r"], "--xz-r (r of X and Z)"
     for key, (r, how) in _pair_values(p["pair_values"], given).items():
         given[key], names[key] = r, how
-    from .outputs import check_out
+    from pooler.output.outputs import check_out
     check_out(p["out_dir"], p["force"])
-    from .pathsjob import paths_job
+    from pooler.pathsjob import paths_job
     job = paths_job(design, sheet=sheet, given=given, option_names=names,
                     settings={"binary_moderator": p["binary_moderator"]}, test=p["test_name"],
                     fixed_n=p["n_total"], powers=p["powers"], alpha=p["alpha"], reps=p["reps"],
@@ -770,7 +771,7 @@ def demo_cmd(ctx, **params):
       pooler demo
       pooler demo --design paired --out demo_plan --force
     """
-    from .demo import demo_sheet_path
+    from pooler.demo import demo_sheet_path
     _whole_job(ctx, demo_sheet_path(), None, params)
 
 
@@ -817,13 +818,14 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
       pooler stress my_literature.csv --reps 200 --out stress_results
       pooler stress --calibration --reps 200 --out calibration
     """
-    from .errors import OptionError
-    from .report import stress_text
-    from .simulate import Shapes, calibration_grid, grid_around, grid_note, stress_test
+    from pooler.errors import OptionError
+    from pooler.output.report import stress_text
+    from pooler.planning.simulate import (Shapes, calibration_grid, grid_around, grid_note,
+                                          stress_test)
     if calibration == bool(sheet):
         raise OptionError("give a SHEET, or --calibration for the general grid (not both)")
     if out_dir:
-        from .outputs import check_out
+        from pooler.output.outputs import check_out
         check_out(out_dir, force)
     note = None
     if calibration:
@@ -846,17 +848,17 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
     doc = res.to_dict()
     trade = None
     if calibration:
-        from .tradeoff import tradeoff_table, tradeoff_text
+        from pooler.planning.tradeoff import tradeoff_table, tradeoff_text
         trade = tradeoff_table(doc)
         doc["tradeoff"] = trade.to_dict()
     if out_dir:
         import json as _json
-        from . import plots
-        from .outputs import write
+        from pooler.output import plots
+        from pooler.output.outputs import write
         import io
         figs = {"stress": plots.stress_plot(res)}
         if trade is not None:
-            from .tradeoff import tradeoff_plot
+            from pooler.planning.tradeoff import tradeoff_plot
             figs["tradeoff"] = tradeoff_plot(trade)
         files = {"stress.json": (_json.dumps(doc, indent=2, allow_nan=False) + "\n").encode()}
         for name, fig in figs.items():
@@ -890,15 +892,15 @@ def template(path, force):
       pooler template my_literature.xlsx
     """
     from pathlib import Path
-    from .errors import OptionError
-    from .template import write_template
+    from pooler.errors import OptionError
+    from pooler.reading.template import write_template
     if Path(path).exists() and not force:
         raise OptionError(f"{path} exists; choose another name or add --force")
     for p in write_template(path):
         click.echo(f"wrote {p}")
 
 
-# ---- pooler paths: simulated power for mediation and moderation (pooler.simdesign) ----------
+# ---- pooler paths: simulated power for mediation and moderation (pooler.planning.simdesign) ----------
 
 
 @main.command("paths")
@@ -995,7 +997,7 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
       pooler paths demo_literature/garden_paths.csv --design parallel-mediation --out garden
       pooler paths demo_literature/practice_feedback_moderation.csv --design moderation
     """
-    from .errors import OptionError
+    from pooler.errors import OptionError
     mediation_opts = {"--a": a_paths, "--b": b_paths, "--m1-m2": m1_m2}
     moderation_opts = {"--x-effect": x_effect, "--interaction": interaction,
                        "--slope-high": slope_high, "--slope-low": slope_low}
@@ -1072,15 +1074,15 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
         raise OptionError("--stress checks the planning of a SHEET of path literatures; give "
                           "one")
     if out_dir:
-        from .outputs import check_out
+        from pooler.output.outputs import check_out
         check_out(out_dir, force)
     if stress:
-        from .pathsjob import paths_stress
+        from pooler.pathsjob import paths_stress
         res = paths_stress(design_name, sheet, given=given, option_names=names,
                            settings=settings, literatures=literatures, seed=seed,
                            workers=workers, scheduler=scheduler, progress=_simulation_bar())
         if out_dir:
-            from .outputs import write
+            from pooler.output.outputs import write
             doc = json.dumps(res.to_dict(), indent=2, allow_nan=False, ensure_ascii=False)
             write({"results.json": (doc + "\n").encode(),
                    "report.md": f"# Stress check\n\n```\n{res.text()}```\n".encode()},
@@ -1090,7 +1092,7 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
         else:
             click.echo(res.text(), nl=False)
         return
-    from .pathsjob import paths_job
+    from pooler.pathsjob import paths_job
     job = paths_job(design_name, sheet=sheet or None, given=given, option_names=names,
                     paths_file=paths_file, as_correlations=as_correlations, settings=settings,
                     hints=hints, test=test_name, fixed_n=fixed_n, powers=powers, alpha=alpha,
@@ -1102,7 +1104,7 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
 def _mediation_pairs(design_name, a_paths, b_paths, direct, m1_m2):
     """With a SHEET, --a, --b, --direct and --m1-m2 give the correlations of mediation pairs
     without rows: pair -> value and pair -> how it was given."""
-    from .errors import OptionError
+    from pooler.errors import OptionError
     pairs, names = {}, {}
     a_, b_ = list(a_paths), list(b_paths)
     if design_name == "simple-mediation":
@@ -1124,8 +1126,8 @@ def _mediation_pairs(design_name, a_paths, b_paths, direct, m1_m2):
 
 def _pair_values(pair_values, already) -> dict:
     """--pair PAIR=R (repeatable) -> {pair: (r, how it was given)}."""
-    from .errors import OptionError
-    from .pathsheet import split_path
+    from pooler.errors import OptionError
+    from pooler.reading.pathsheet import split_path
     out: dict = {}
     for text in pair_values:
         key, eq, val = text.partition("=")
@@ -1161,7 +1163,7 @@ def _echo_paths_job(job, out_dir, fmt, force, as_json):
     _echo_warnings(job.warnings)
     paths = []
     if out_dir:
-        from .outputs import write
+        from pooler.output.outputs import write
         paths = write(job.files(fmt), out_dir, force=force)
     if as_json:
         _print_json(job.to_dict())

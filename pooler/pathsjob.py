@@ -11,8 +11,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Callable
 
-from ._results import to_jsonable
-from .errors import OptionError
+from pooler._results import to_jsonable
+from pooler.errors import OptionError
 
 SOBEL_NOTE = ("Sobel's test is shown for comparison only: it is low-powered "
               "(MacKinnon et al. 2002); plan with joint, monte-carlo or bootstrap.")
@@ -28,14 +28,14 @@ class PathsJob:
     scenarios : dict
         Scenario label -> design ("" when there is one unnamed scenario).
     results : tuple
-        :class:`~pooler.simdesign.SampleSizeResult` per scenario (a search), or
-        :class:`~pooler.simdesign.PowerResult` per scenario (at ``fixed_n``).
+        :class:`~pooler.planning.simdesign.SampleSizeResult` per scenario (a search), or
+        :class:`~pooler.planning.simdesign.PowerResult` per scenario (at ``fixed_n``).
     fixed_n : int or None
     options : dict
         The settings that reproduce the job (recorded in results.json).
     methods : str
         The methods paragraph ('' at a fixed n).
-    sheet : pooler.pathsheet.PathSheet or None
+    sheet : pooler.reading.pathsheet.PathSheet or None
         Every path's pooling, when the paths came from a sheet.
     note : str
         A note printed under the table (Sobel's test is for comparison only).
@@ -58,20 +58,20 @@ class PathsJob:
                    "scenarios": [dict(r.to_dict(), scenario=lab)
                                  for lab, r in zip(self.scenarios, self.results)]}
         else:
-            from .pathsreport import SCHEMA
+            from pooler.output.pathsreport import SCHEMA
             doc = {"schema": SCHEMA, "scenarios": [r.to_dict() for r in self.results],
                    "options": self.options, "methods": self.methods}
         if self.sheet is not None:
             doc["paths"] = self.sheet.to_dict()
             if self.fixed_n is None:
-                from .pathsreport import sheet_methods_paragraph
+                from pooler.output.pathsreport import sheet_methods_paragraph
                 doc["methods"] = sheet_methods_paragraph(self.sheet) + " " + self.methods
         return to_jsonable(doc)
 
     def text(self) -> str:
         """The terminal text: every path's pooling (from a sheet), then the planning table
         (or the power at the fixed n) of each scenario."""
-        from .pathsreport import paths_sheet_text, plan_text, power_text
+        from pooler.output.pathsreport import paths_sheet_text, plan_text, power_text
         out = paths_sheet_text(self.sheet) + "\n" if self.sheet is not None else ""
         if self.fixed_n is not None:
             out += "\n".join((f"{lab}: " if lab else "") + power_text(r)
@@ -84,7 +84,7 @@ class PathsJob:
         per scenario and, from a sheet, the path diagram (at a fixed n: results.json and
         report.md)."""
         import json
-        from .pathsreport import render_files, render_sheet_files
+        from pooler.output.pathsreport import render_files, render_sheet_files
         if self.fixed_n is not None:   # power at one n: the document and the tables
             doc = json.dumps(self.to_dict(), indent=2, allow_nan=False, ensure_ascii=False)
             md = f"# Power by simulation at n = {self.fixed_n:,}\n\n```\n{self.text()}```\n"
@@ -114,7 +114,7 @@ def scenarios_from_paths(design_name: str, given: dict, *, paths_file=None,
     """The designs to plan, by scenario label, from path values given directly (``given``:
     path -> value), and optionally a paths file of scenarios (values, or correlations with
     ``as_correlations``)."""
-    from . import simdesign as sd
+    from pooler.planning import simdesign as sd
     settings = dict(settings or {})
     if as_correlations:
         if not paths_file:
@@ -146,19 +146,19 @@ def paths_job(design_name: str, *, sheet=None, given: dict | None = None,
     """Plan a simulated design (mediation or moderation).
 
     With ``sheet``, each pair of the model is pooled from its rows
-    (:func:`pooler.pathsheet.pool_paths`, with the analysis options ``estimator`` ...
+    (:func:`pooler.reading.pathsheet.pool_paths`, with the analysis options ``estimator`` ...
     ``sample_r``) and ``given`` holds the correlations of pairs without rows; otherwise
     ``given`` holds the standardized paths (and ``paths_file`` scenarios of them);
     ``option_hints`` lets a missing pair's message name ``pooler paths``' own options. Each
     scenario is then searched for the n reaching ``powers``
-    (:func:`pooler.simdesign.plan_paths`), or simulated at ``fixed_n``
-    (:func:`pooler.simdesign.simulate_power`).
+    (:func:`pooler.planning.simdesign.plan_paths`), or simulated at ``fixed_n``
+    (:func:`pooler.planning.simdesign.simulate_power`).
 
     Returns
     -------
     PathsJob
     """
-    from . import simdesign as sd
+    from pooler.planning import simdesign as sd
     # validation
     if design_name not in sd.DESIGNS:
         raise OptionError(f"`design` must be one of {', '.join(sd.DESIGNS)}, "
@@ -167,7 +167,7 @@ def paths_job(design_name: str, *, sheet=None, given: dict | None = None,
     given = dict(given or {})
     ps = None
     if sheet is not None:
-        from .pathsheet import pool_paths
+        from pooler.reading.pathsheet import pool_paths
         if paths_file or as_correlations:
             raise OptionError("give the paths either in a sheet or in `paths_file`, not both")
         _check_sheet_settings(settings)
@@ -193,7 +193,7 @@ def paths_job(design_name: str, *, sheet=None, given: dict | None = None,
     search_reps = reps or (200 if test == "bootstrap" else 1000)
     results = sd.plan_paths(scenarios, powers=tuple(powers or (0.8, 0.9, 0.95)),
                             reps=search_reps, workers=workers, scheduler=scheduler, **common)
-    from .pathsreport import methods_paragraph
+    from pooler.output.pathsreport import methods_paragraph
     methods = methods_paragraph(results, search_reps, draws, resamples)
     options = {"design": design_name, "test": results[0].test, "alpha": alpha,
                "reps": search_reps, "draws": draws, "resamples": resamples, "seed": seed,
@@ -208,10 +208,10 @@ def paths_stress(design_name: str, sheet, *, given: dict | None = None,
                  workers: int = 1, scheduler=None, progress: Callable | None = None,
                  option_hints: bool = True):
     """Pool ``sheet``'s paths as :func:`paths_job` does, then stress-check that route
-    (:func:`pooler.pathstress.stress_paths`): literatures like the sheet's, simulated from
+    (:func:`pooler.planning.pathstress.stress_paths`): literatures like the sheet's, simulated from
     its realistic correlations, each planned through the same stages."""
-    from .pathsheet import pool_paths
-    from .pathstress import stress_paths
+    from pooler.reading.pathsheet import pool_paths
+    from pooler.planning.pathstress import stress_paths
     settings = dict(settings or {})
     _check_sheet_settings(settings)
     ps = pool_paths(sheet, design_name, dict(given or {}), option_names=option_names,

@@ -7,8 +7,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from ._results import to_jsonable
-from ._threads import single_threaded
+from pooler._results import to_jsonable
+from pooler._threads import single_threaded
 
 #: Above this many studies the JSON document keeps :data:`JSON_SHOWN_ROWS` chosen entries of
 #: the per-study tables other than ``rows`` (units, leave one out, cumulative, the audit's
@@ -21,7 +21,7 @@ JSON_SHOWN_ROWS = 100
 
 def _summarise_tables(doc: dict, pooled) -> None:
     """Cut the per-study tables of a large literature's document to JSON_SHOWN_ROWS chosen
-    entries each, in their original order (the rule of the text tables, pooler.report)."""
+    entries each, in their original order (the rule of the text tables, pooler.output.report)."""
     import numpy as np
     k, n = pooled.k, JSON_SHOWN_ROWS
     notes = {}
@@ -67,12 +67,12 @@ def _summarise_tables(doc: dict, pooled) -> None:
 class Analysis:
     """Everything from one sheet, stage by stage."""
 
-    sheet: object      # pooler.sheet.Sheet
-    effects: object    # pooler.effects.Effects
-    pooled: object     # pooler.pooling.PooledResult
-    bias: object       # pooler.bias.BiasResult
-    scenarios: object  # pooler.scenarios.Scenarios
-    audit: object      # pooler.audit.Audit, at the realistic effect
+    sheet: object      # pooler.reading.sheet.Sheet
+    effects: object    # pooler.evidence.effects.Effects
+    pooled: object     # pooler.evidence.pooling.PooledResult
+    bias: object       # pooler.evidence.bias.BiasResult
+    scenarios: object  # pooler.planning.scenarios.Scenarios
+    audit: object      # pooler.evidence.audit.Audit, at the realistic effect
 
     def pool_document(self) -> dict:
         """The ``pooler.pool/1`` JSON document (per-study tables other than ``rows``
@@ -117,19 +117,19 @@ def analyse(sheet_path, *, metric="d", within_r=0.5, sample_r=0.5, estimator="re
     ``pooler.choices.MODEL_AVERAGE_OPTIONS``) apply to the default rule.
     ``progress``, if given, is called with a short message before each slow step.
     """
-    from .scenarios import model_average_priors
+    from pooler.planning.scenarios import model_average_priors
     priors = model_average_priors(
         effect_prior_sd=effect_prior_sd, heterogeneity_prior_shape=heterogeneity_prior_shape,
         heterogeneity_prior_scale=heterogeneity_prior_scale, pet_prior_scale=pet_prior_scale,
         peese_prior_scale=peese_prior_scale, chance_of_effect=chance_of_effect,
         chance_of_heterogeneity=chance_of_heterogeneity, chance_of_no_bias=chance_of_no_bias)
     say = progress or (lambda msg: None)
-    from .audit import audit_literature
-    from .bias import bias_suite
-    from .effects import convert
-    from .pooling import pool
-    from .scenarios import make_scenarios
-    from .sheet import Sheet, read_sheet
+    from pooler.evidence.audit import audit_literature
+    from pooler.evidence.bias import bias_suite
+    from pooler.evidence.effects import convert
+    from pooler.evidence.pooling import pool
+    from pooler.planning.scenarios import make_scenarios
+    from pooler.reading.sheet import Sheet, read_sheet
     # a Sheet already read (e.g. one path's rows of a path sheet) is analysed as it is
     sheet = sheet_path if isinstance(sheet_path, Sheet) else read_sheet(sheet_path)
     effects = convert(sheet, metric, within_r=within_r, sample_r=sample_r)
@@ -149,7 +149,7 @@ class RunResult:
     """The whole job: the analysis, the plan, and how it was asked for."""
 
     analysis: Analysis
-    plan: object  # pooler.planning.Plan
+    plan: object  # pooler.planning.sample_size.Plan
     options: dict
     command: str
     version: str
@@ -174,8 +174,8 @@ def run(sheet_path, *, design, analysis_options, plan_options: dict,
 
     ``analysis_options`` is a :class:`pooler.choices.AnalysisOptions` (or a dict of the same
     keywords)."""
-    from . import __version__
-    from .planning import make_plan
+    from pooler import __version__
+    from pooler.planning.sample_size import make_plan
     if hasattr(analysis_options, "to_dict"):
         analysis_options = analysis_options.to_dict()
     a = analyse(sheet_path, progress=progress, **analysis_options)

@@ -11,8 +11,8 @@ import re
 import numpy as np
 import pytest
 
-from pooler.planning import PlanningEffect, make_plan, recruit_sizes
-from pooler.power import Design
+from pooler.planning.sample_size import PlanningEffect, make_plan, recruit_sizes
+from pooler.planning.power import Design
 
 
 def _between(values, sizes):
@@ -230,7 +230,7 @@ def test_an_allocation_is_described_as_two_groups(run_cli, write_sheet, tmp_path
 
 
 def test_planning_csv_keeps_numbers_numeric():
-    from pooler.report import plan_csv
+    from pooler.output.report import plan_csv
     p = make_plan([PlanningEffect("realistic", 0.3), PlanningEffect("pessimistic", 1e-5)],
                   powers=(0.8,))
     rows = list(csv.DictReader(io.StringIO(plan_csv(p))))
@@ -248,7 +248,7 @@ def test_planning_csv_keeps_numbers_numeric():
                                     Design("ancova", ratio=1.5), Design("interaction-2x2"),
                                     Design("paired")])
 def test_power_figure_rises_smoothly_and_marks_the_realistic_n(design):
-    from pooler.plots import power_curves
+    from pooler.output.plots import power_curves
     p = make_plan([PlanningEffect("optimistic", 0.9), PlanningEffect("realistic", 0.6),
                    PlanningEffect("pessimistic", 0.4)], design, powers=(0.8, 0.9))
     ax = power_curves(p).axes[0]

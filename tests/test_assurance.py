@@ -18,8 +18,8 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import integrate, special, stats
 
-from pooler.power import (Design, EffectDensity, assurance, assurance_over, n_for_assurance,
-                          power_at, to_design_effect)
+from pooler.planning.power import (Design, EffectDensity, assurance, assurance_over,
+                                   n_for_assurance, power_at, to_design_effect)
 
 # the three designs of the check: a two-group t, a paired t (r = .7), and an F test with
 # u = 3 numerator df (the R² increment of 3 of 5 predictors), whose upper-tail power jumps

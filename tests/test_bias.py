@@ -14,12 +14,12 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import integrate, stats
 
-from pooler.audit import excess_significance, unit_powers
-from pooler.bias import (Z975, _k0, bias_suite, egger_test, eta_adjusted, pet, peese,
-                         pet_peese, selection_loglik, selection_model, selection_ratio,
-                         trim_and_fill, waap_wls)
-from pooler.pooling import pool, random_effects
-from pooler.scenarios import make_scenarios
+from pooler.evidence.audit import excess_significance, unit_powers
+from pooler.evidence.bias import (Z975, _k0, bias_suite, egger_test, eta_adjusted, pet, peese,
+                                  pet_peese, selection_loglik, selection_model, selection_ratio,
+                                  trim_and_fill, waap_wls)
+from pooler.evidence.pooling import pool, random_effects
+from pooler.planning.scenarios import make_scenarios
 
 from test_pooling import make_effects
 
@@ -246,7 +246,7 @@ def test_excess_significance_by_hand():
 
 
 def test_unit_power_is_exact_two_group_power():
-    from pooler.power import power_at
+    from pooler.planning.power import power_at
     eff = make_effects([0.3], [0.04])      # n1 = n2 = 50
     (sp,) = unit_powers(eff.units, 0.4, "g")
     assert_allclose(sp.power, power_at(0.4, 50, "two-group"), rtol=1e-12)
@@ -353,7 +353,7 @@ def test_plan_from_sheet(run_cli, demo_path):
 
 
 def test_selection_gradient_matches_finite_differences():
-    from pooler.bias import selection_loglik_grad
+    from pooler.evidence.bias import selection_loglik_grad
     from statsmodels.tools.numdiff import approx_fprime
     y, v, _ = literature(30, seed=21, publish_ns=0.3)
     for mu, tau2, omega in [(0.2, 0.02, 0.4), (0.0, 0.1, 1.5), (0.5, 0.001, 0.05)]:
@@ -400,8 +400,8 @@ def test_regressions_on_size_based_se_with_equal_groups():
     On the size-based SE (Pustejovsky & Rodgers 2019) there is no spread in precision, so the
     three regressions say they cannot be fitted."""
     from types import SimpleNamespace as S
-    from pooler.bias import egger_test, size_variances
-    from pooler.effects import d_variance, hedges_j
+    from pooler.evidence.bias import egger_test, size_variances
+    from pooler.evidence.effects import d_variance, hedges_j
     d = np.array([0.9, 0.7, 0.5, 0.8, 0.3, 0.6, 0.4, 0.55])
     j = hedges_j(38)
     y, v = j * d, j ** 2 * np.array([d_variance(x, 20, 20) for x in d])
@@ -418,7 +418,7 @@ def test_size_based_se_regression_matches_statsmodels_wls():
     weights 1/v0, compared with statsmodels WLS (its intercept and SE)."""
     import statsmodels.api as sm
     from types import SimpleNamespace as S
-    from pooler.bias import size_variances
+    from pooler.evidence.bias import size_variances
     rng = np.random.default_rng(11)
     n1 = rng.integers(10, 80, 9).astype(float)
     n2 = n1 + rng.integers(0, 10, 9)
@@ -434,7 +434,7 @@ def test_size_based_se_regression_matches_statsmodels_wls():
 def test_egger_row_warns_below_ten_studies():
     """Sterne et al. (2011, BMJ 343:d4002): tests for funnel asymmetry need 10 or more
     studies; below that the row says so beside the p-value."""
-    from pooler.bias import _egger_row
+    from pooler.evidence.bias import _egger_row
     y5, v5 = literature(5, seed=3)[:2]
     y12, v12 = literature(12, seed=3)[:2]
     assert "Sterne et al. 2011" in _egger_row(egger_test(y5, v5))[3]

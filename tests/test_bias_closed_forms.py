@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from pooler.bias import (_average_ranks, _hessian, _wls_mean, egger_test, pet, peese,
-                         selection_loglik)
+from pooler.evidence.bias import (_average_ranks, _hessian, _wls_mean, egger_test, pet, peese,
+                                  selection_loglik)
 
 from test_bias import literature
 

@@ -16,11 +16,12 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from pooler import bias as bias_mod
+from pooler.evidence import bias as bias_mod
 from pooler._results import Interval, NotEstimable, to_jsonable
-from pooler.bias import BiasMethod, bias_suite, methods, planning_methods, register, unregister
-from pooler.pooling import pool
-from pooler.scenarios import make_scenarios
+from pooler.evidence.bias import (BiasMethod, bias_suite, methods, planning_methods, register,
+                                  unregister)
+from pooler.evidence.pooling import pool
+from pooler.planning.scenarios import make_scenarios
 
 from test_pooling import make_effects
 
@@ -94,9 +95,9 @@ def test_registering_twice_or_reusing_an_adjuster_name_is_refused(toy):
 
 
 def test_a_registered_method_flows_everywhere(toy):
-    import pooler.scenarios as scen_mod
-    from pooler.plots import ladder_rows
-    from pooler.simulate import estimator_names
+    import pooler.planning.scenarios as scen_mod
+    from pooler.output.plots import ladder_rows
+    from pooler.planning.simulate import estimator_names
     pooled = pool(make_effects(Y, V))
     b = bias_suite(pooled)
     w = 1 / V
@@ -151,8 +152,8 @@ def test_registry_is_back_to_the_built_ins_after_the_toy():
 
 
 def test_a_registered_method_is_a_stress_test_column(toy):
-    from pooler.report import stress_text
-    from pooler.simulate import RULES, Cell, Shapes, stress_test
+    from pooler.output.report import stress_text
+    from pooler.planning.simulate import RULES, Cell, Shapes, stress_test
     res = stress_test([Cell(8, 0.3, 0.0, 1.0)], Shapes.generic(), reps=2, seed=3, workers=1)
     assert res.rules == RULES and "toy half" in res.estimators
     assert "toy half" in res.to_dict()["cells"][0]["estimators"]

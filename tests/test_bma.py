@@ -1,4 +1,4 @@
-"""Checks of the Bayesian model average (pooler.bma) against independent computations.
+"""Checks of the Bayesian model average (pooler.evidence.bma) against independent computations.
 
 Every literature here is simulated (seeded) or invented.
 """
@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from pooler.bma import (DEFAULT_PRIORS, WIDE_PRIORS, Priors, log_likelihood, model_average,
-                        posterior_scenarios)
+from pooler.evidence.bma import (DEFAULT_PRIORS, WIDE_PRIORS, Priors, log_likelihood,
+                                 model_average, posterior_scenarios)
 from pooler.errors import InputError, OptionError
 
 Z975 = stats.norm.ppf(0.975)
@@ -55,7 +55,7 @@ def test_two_step_selection_likelihood_matches_numerical_normaliser(mu, tau, w2,
 def test_one_step_selection_likelihood_matches_numerical_normaliser():
     # the same check with one cutpoint at one-sided p = .025 (Vevea & Hedges 1995, eq. 8),
     # and against pooler's own maximum-likelihood selection model's log-likelihood
-    from pooler.bias import selection_loglik
+    from pooler.evidence.bias import selection_loglik
     y = np.array([0.9, 0.25, -0.1, 0.6, 0.05])
     v = np.array([0.05, 0.04, 0.08, 0.02, 0.03])
     mu, tau, w = 0.2, 0.15, 0.3
@@ -143,10 +143,10 @@ def test_quadrature_error_in_the_median_is_below_0002():
 
 def test_one_model_with_wide_priors_centres_on_the_ml_fit():
     # Bernstein-von Mises: with k = 300 studies and wide priors, the posterior of one model is
-    # centred on its maximum-likelihood fit (pooler.pooling ML; pooler.bias.selection_model),
+    # centred on its maximum-likelihood fit (pooler.evidence.pooling ML; pooler.evidence.bias.selection_model),
     # within a small fraction of the ML standard error
-    from pooler.bias import selection_model
-    from pooler.pooling import random_effects
+    from pooler.evidence.bias import selection_model
+    from pooler.evidence.pooling import random_effects
     rng = np.random.default_rng(12)
     y, v = _literature(rng, 300, 0.2, 0.15, 0.4)
     wide = Priors(effect_sd=10.0, tau_scale=0.01)
@@ -172,7 +172,7 @@ def test_simulation_unbiased_without_selection_and_less_biased_than_reml_under_i
     # random-effects (REML) estimate is inflated; the model average corrects most of it.
     # 16 seeded literatures of 10 studies per condition; the estimate is the realistic effect
     # (posterior median given μ > 0).
-    from pooler.pooling import random_effects
+    from pooler.evidence.pooling import random_effects
     delta = 0.3
     out = {}
     for keep in (1.0, 0.1):
@@ -300,10 +300,10 @@ def test_identical_on_every_run():
 
 def test_assurance_over_the_model_averaged_predictive():
     # O'Hagan, Stevens & Campbell (2005): assurance = E[power(θ)] over the predictive of θ.
-    # The EffectDensity built for pooler.power.assurance_over must agree with the plain sum
+    # The EffectDensity built for pooler.planning.power.assurance_over must agree with the plain sum
     # Σ p_j power(θ_j) over the tabulated predictive (cells plus the mass at exactly 0)
-    from pooler.power import assurance_over
-    from pooler.scenarios import assurance_over_table, predictive_effect_density
+    from pooler.planning.power import assurance_over
+    from pooler.planning.scenarios import assurance_over_table, predictive_effect_density
     rng = np.random.default_rng(15)
     y, v = rng.normal(0.2, 0.25, 6), rng.uniform(0.03, 0.08, 6)
     res = model_average(y, v)
@@ -354,7 +354,7 @@ def test_se_groups_above_the_documented_k_move_mu_by_less_than_0002(monkeypatch)
     # above GROUP_ABOVE_K studies the selection models evaluate their normalising constant
     # once per group of studies whose SEs agree within 1 %; against every study on its own
     # (the exact sum), the posterior quantiles of μ and P(μ > 0) move by < 0.002
-    from pooler import bma
+    from pooler.evidence import bma
     rng = np.random.default_rng(32)
     k = bma.GROUP_ABOVE_K + 50
     y, v = _continuous_se_literature(rng, k)
@@ -384,10 +384,10 @@ def test_reweighted_to_wider_priors_matches_a_full_fit(k, delta, tau, keep, metr
     # The re-weighted fit inherits the default fit's quadrature error: for the k = 60
     # literature the default fit at resolution 1 is itself 0.009 off in its 25th percentile
     # (its two-step model's τ box is cut short), so that case re-weights a refined fit
-    from pooler.bma import reweighted
+    from pooler.evidence.bma import reweighted
     rng = np.random.default_rng(41 + k)
     y, v = _literature(rng, k, delta, tau, keep)
-    if metric == "z":  # Fisher z ≈ d/2 (module docstring of pooler.bma)
+    if metric == "z":  # Fisher z ≈ d/2 (module docstring of pooler.evidence.bma)
         y, v = y / 2, v / 4
     quick = reweighted(model_average(y, v, metric, resolution=resolution), WIDE_PRIORS)
     full = model_average(y, v, metric, WIDE_PRIORS, resolution=2)
@@ -399,7 +399,7 @@ def test_reweighted_to_wider_priors_matches_a_full_fit(k, delta, tau, keep, metr
 
 
 def test_reweighting_to_the_same_priors_changes_nothing():
-    from pooler.bma import reweighted
+    from pooler.evidence.bma import reweighted
     rng = np.random.default_rng(45)
     y, v = _literature(rng, 12, 0.3, 0.1, 0.4)
     same = model_average(y, v)

@@ -12,7 +12,7 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from pooler.bma import DEFAULT_PRIORS, model_average
+from pooler.evidence.bma import DEFAULT_PRIORS, model_average
 from pooler.errors import OptionError
 
 # invented literatures: a plain one on g, one on Fisher z

@@ -124,7 +124,7 @@ def test_template_into_a_missing_folder(tmp_path, run_cli):
 
 def test_template_write_failure_is_a_clean_error(tmp_path, run_cli, monkeypatch):
     # an operating-system refusal (here simulated: permission denied) is one line, exit 2
-    import pooler.template as tpl
+    import pooler.reading.template as tpl
 
     def refuse(p, suffix):
         raise PermissionError(13, "Permission denied")

@@ -135,7 +135,7 @@ def test_a_confirmation_below_its_goal_is_explained():
     fall below the goal by Monte Carlo noise. Within 2 MC SE the table says it is noise,
     beyond that it asks for more replications."""
     from types import SimpleNamespace as S
-    from pooler.pathsreport import _short_of_goal
+    from pooler.output.pathsreport import _short_of_goal
 
     def sol(goal, power, se):
         return S(n=100, goal=goal, confirmed=S(power=power, mc_se=se))

@@ -75,5 +75,5 @@ def test_plan_table_writers(run_cli):
 
 def test_cli_design_list_is_the_power_modules():
     from pooler.cli import _DESIGNS
-    from pooler.power import DESIGNS
+    from pooler.planning.power import DESIGNS
     assert _DESIGNS == DESIGNS

@@ -1,6 +1,6 @@
 """One content model for every output: each section is built once as blocks
-(pooler.report, pooler.document) and the terminal, Markdown, HTML and notebook renderers
-(pooler.blocks) only lay them out. The demo literature is invented."""
+(pooler.output.report, pooler.output.document) and the terminal, Markdown, HTML and notebook renderers
+(pooler.output.blocks) only lay them out. The demo literature is invented."""
 from __future__ import annotations
 
 import dataclasses
@@ -8,7 +8,7 @@ import re
 
 import pytest
 
-from pooler.blocks import Block, brief, html_fragment, to_markdown, to_text
+from pooler.output.blocks import Block, brief, html_fragment, to_markdown, to_text
 
 #: A printed number: an optional sign, digits with thousands separators, decimals, percent.
 NUMBER = re.compile(r"(?<![\w.])[-+]?\d[\d,]*(?:\.\d+)?%?")
@@ -22,7 +22,7 @@ def numbers(text: str) -> list[str]:
 def demo_result(demo_path_module):
     from pooler.choices import AnalysisOptions
     from pooler.pipeline import run
-    from pooler.power import Design
+    from pooler.planning.power import Design
     return run(demo_path_module, design=Design("two-group"),
                analysis_options=AnalysisOptions(),
                plan_options={"alpha": 0.05, "tails": 2, "powers": (0.8, 0.9),
@@ -39,7 +39,7 @@ def demo_path_module():
 def test_every_block_shows_the_same_numbers_in_all_three(demo_result):
     # each block of the report, rendered alone by the terminal, Markdown and HTML renderers,
     # carries the same numbers in the same order: a renderer never words or rounds anything
-    from pooler.document import build_blocks
+    from pooler.output.document import build_blocks
     blocks = [b for b in build_blocks(demo_result) if b.kind not in ("figure", "begin", "end")]
     assert len(blocks) > 60
     kinds = set()
@@ -55,7 +55,7 @@ def test_the_terminal_summary_is_a_selection_of_the_report(demo_result):
     # heading and the list of files written, every block it shows is a block of the report
     from pathlib import Path
 
-    from pooler.document import build_blocks, summary_blocks
+    from pooler.output.document import build_blocks, summary_blocks
     report = build_blocks(demo_result)
     summary = summary_blocks(demo_result, [Path("out/report.md")])
     own = [b for b in summary if b not in report]
@@ -68,14 +68,14 @@ def test_the_terminal_summary_is_a_selection_of_the_report(demo_result):
     assert not any(b.detail for b in summary)
     # the sections come in the report's order (the caution, second in the report, closes
     # the terminal summary)
-    from pooler.document import CAUTION
+    from pooler.output.document import CAUTION
     idx = [report.index(b) for b in summary
            if b in report and b.text not in ("Caution", CAUTION[0])]
     assert idx == sorted(idx) and summary[-1] == Block("p", CAUTION[0])
 
 
 def test_the_same_section_reads_the_same_in_the_terminal_and_the_report(demo_result):
-    from pooler.document import build_blocks, summary_blocks
+    from pooler.output.document import build_blocks, summary_blocks
     md = to_markdown(build_blocks(demo_result))
     term = to_text(summary_blocks(demo_result))
     a = demo_result.analysis
@@ -97,7 +97,7 @@ def test_changing_one_section_changes_every_output(monkeypatch, tmp_path):
     # and the `pooler pool` text
     from click.testing import CliRunner
 
-    import pooler.report as report
+    import pooler.output.report as report
     from pooler.cli import main
     from pooler.demo import demo_sheet_path
     marker = "Excess significance, reworded once: 12.345 of 67,890"
@@ -114,7 +114,7 @@ def test_changing_one_section_changes_every_output(monkeypatch, tmp_path):
 
 
 def test_a_notebook_shows_the_same_section(demo_result):
-    from pooler.report import bias_blocks, plan_blocks, pooled_blocks, scenario_blocks
+    from pooler.output.report import bias_blocks, plan_blocks, pooled_blocks, scenario_blocks
     a = demo_result.analysis
     for res, section in ((a.pooled, pooled_blocks), (a.bias, bias_blocks),
                          (a.scenarios, scenario_blocks), (demo_result.plan, plan_blocks)):
@@ -127,8 +127,8 @@ def test_a_notebook_shows_the_same_section(demo_result):
 def test_methods_paragraph_names_the_interval_and_level_used(demo_result):
     # the pooled result of a Wald 90% interval: the methods paragraph, the pooled summary
     # and the settings all name that method and level, and no Hartung-Knapp citation
-    from pooler.document import build_blocks, methods_paragraph
-    from pooler.pooling import INTERVAL_NAMES, pool
+    from pooler.output.document import build_blocks, methods_paragraph
+    from pooler.evidence.pooling import INTERVAL_NAMES, pool
     a = demo_result.analysis
     wald = pool(a.effects, interval="wald", level=0.9)
     rerun = dataclasses.replace(demo_result, analysis=dataclasses.replace(a, pooled=wald))

@@ -10,10 +10,10 @@ import pytest
 
 from pooler._results import estimable
 
-from pooler.audit import Audit, audit_literature, excess_significance, unit_powers
-from pooler.bias import bias_suite
-from pooler.pooling import pool
-from pooler.scenarios import make_scenarios
+from pooler.evidence.audit import Audit, audit_literature, excess_significance, unit_powers
+from pooler.evidence.bias import bias_suite
+from pooler.evidence.pooling import pool
+from pooler.planning.scenarios import make_scenarios
 
 from test_pooling import make_effects
 

@@ -1,7 +1,7 @@
-"""The registry of designs (pooler.designs): the light list the command line reads agrees
+"""The registry of designs (pooler.planning.designs): the light list the command line reads agrees
 with it, nothing outside it branches on a design's name, the simulated designs are listed
 through it, and a design registered here (a one-sample z test with known SD) plans and
-reports through pooler.planning and pooler.report with nothing else changed."""
+reports through pooler.planning.sample_size and pooler.output.report with nothing else changed."""
 import dataclasses
 import io
 import math
@@ -12,12 +12,13 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from pooler import designs
-from pooler.design_choices import DESIGN_OPTIONS, DESIGN_PARAMETERS, PLANNED_DESIGNS, used_by
+from pooler.planning import designs
+from pooler.planning.design_choices import (DESIGN_OPTIONS, DESIGN_PARAMETERS, PLANNED_DESIGNS,
+                                            used_by)
 from pooler.errors import OptionError
-from pooler.planning import PlanningEffect, make_plan
-from pooler.power import DESIGNS, Design, n_for_power, power_at
-from pooler.report import plan_text
+from pooler.planning.sample_size import PlanningEffect, make_plan
+from pooler.planning.power import DESIGNS, Design, n_for_power, power_at
+from pooler.output.report import plan_text
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -42,7 +43,7 @@ def test_no_design_name_is_branched_on_outside_the_registry():
     """No module but the registry (and the light list) spells a planned design's name as a
     string in its code: units, labels, metrics and descriptions come from the registry."""
     names = {f'"{n}"' for n in PLANNED_DESIGNS} | {f"'{n}'" for n in PLANNED_DESIGNS}
-    for mod in ("power", "planning", "report", "document"):
+    for mod in ("planning/power", "planning/sample_size", "output/report", "output/document"):
         src = (ROOT / "pooler" / f"{mod}.py").read_text(encoding="utf-8")
         toks = tokenize.generate_tokens(io.StringIO(src).readline)
         found = [t.string for t in toks if t.type == tokenize.STRING and t.string in names]
@@ -85,7 +86,7 @@ def test_registry_refuses_a_name_twice_and_unknown_names():
 
 
 def test_simulated_designs_are_listed_with_their_kind():
-    from pooler.simdesign import DESIGNS as SIMULATED
+    from pooler.planning.simdesign import DESIGNS as SIMULATED
     sims = designs.simulated()
     assert [s.name for s in sims] == list(SIMULATED)
     assert all(s.kind == "simulated" and s.description for s in sims)

@@ -9,7 +9,7 @@ import pytest
 
 import pooler
 
-MODULES = sorted(m.name for m in pkgutil.iter_modules(pooler.__path__, "pooler."))
+MODULES = sorted(m.name for m in pkgutil.walk_packages(pooler.__path__, "pooler."))
 
 
 def test_the_package_has_examples():

@@ -6,9 +6,9 @@ import json
 
 import pytest
 
-from pooler.outputs import render
+from pooler.output.outputs import render
 from pooler.pipeline import run
-from pooler.power import Design
+from pooler.planning.power import Design
 
 T = {"stat": "t", "n1": 30, "n2": 30}
 CASES = {

@@ -16,7 +16,7 @@ from numpy.testing import assert_allclose
 from scipy import stats
 
 from pooler import convert, read_sheet
-from pooler.effects import d_to_r, group_factor, hedges_j, r_to_d
+from pooler.evidence.effects import d_to_r, group_factor, hedges_j, r_to_d
 
 
 def one(write_sheet, metric="d", **row):

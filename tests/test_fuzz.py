@@ -90,7 +90,7 @@ def write(rows, d: Path) -> Path:
 
 
 def whole_job(path, design):
-    from pooler.power import Design
+    from pooler.planning.power import Design
     from pooler.pipeline import run
     return run(path, design=Design(design), analysis_options={},
                plan_options={"n_total": 120, "attrition": 0.1})
@@ -116,7 +116,7 @@ def test_valid_sheets_give_finite_results_or_reasons(rows, design):
         inp = doc["inputs"]
         assert inp["rows_read"] == len(rows) == inp["rows_used"] + inp["rows_excluded"]
         assert len(doc["pool"]["rows"]) == len(rows)
-        from pooler.outputs import effects_csv
+        from pooler.output.outputs import effects_csv
         assert len(effects_csv(res.analysis.effects).splitlines()) == len(rows) + 1
 
 

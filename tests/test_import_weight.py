@@ -45,10 +45,10 @@ def test_pool_text_summarises_long_tables_and_audit_powers_are_vectorised(tmp_pa
     import numpy as np
 
     from pooler import convert, read_sheet
-    from pooler.audit import unit_powers
+    from pooler.evidence.audit import unit_powers
     from pooler.pipeline import analyse
-    from pooler.power import Design, power_at
-    from pooler.report import TEXT_MAX_ROWS, TEXT_SHOWN_ROWS, pooled_text, scenarios_text
+    from pooler.planning.power import Design, power_at
+    from pooler.output.report import TEXT_MAX_ROWS, TEXT_SHOWN_ROWS, pooled_text, scenarios_text
     rng = np.random.default_rng(3)
     k = TEXT_MAX_ROWS + 50
     lines = ["study,stat,value,n1,n2,year"]

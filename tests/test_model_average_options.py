@@ -46,7 +46,7 @@ def test_a_bad_value_is_an_error_naming_the_flag(run_cli, demo_path, name):
 
 def test_the_library_checks_the_same_ranges():
     from pooler.errors import OptionError
-    from pooler.scenarios import model_average_priors
+    from pooler.planning.scenarios import model_average_priors
     for name, value in BAD.items():
         if name == "pessimistic_quantile":
             continue
@@ -109,7 +109,7 @@ def test_demo_takes_the_options(run_cli, tmp_path):
 
 
 def test_stress_runs_the_rule_with_the_options(run_cli, demo_path, monkeypatch):
-    from pooler import simulate
+    from pooler.planning import simulate
     real = simulate.grid_around
     monkeypatch.setattr(simulate, "grid_around", lambda a: real(a)[:1])
     res = run_cli("stress", demo_path, "--reps", "2", "--workers", "1", "--json",
@@ -126,9 +126,9 @@ def test_stress_runs_the_rule_with_the_options(run_cli, demo_path, monkeypatch):
 
 def test_library_defaults_of_the_rule_are_the_canonical_ones():
     import inspect
-    from pooler.bma import DEFAULT_PRIORS, posterior_scenarios
+    from pooler.evidence.bma import DEFAULT_PRIORS, posterior_scenarios
     from pooler.pipeline import analyse
-    from pooler.scenarios import make_scenarios, model_average_priors, posterior_rule
+    from pooler.planning.scenarios import make_scenarios, model_average_priors, posterior_rule
     q = MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"]
     for fn in (analyse, make_scenarios, posterior_rule, posterior_scenarios):
         assert inspect.signature(fn).parameters["pessimistic_quantile"].default == q, fn

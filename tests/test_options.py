@@ -18,11 +18,11 @@ def _defaults(fn):
 
 
 def test_library_defaults_are_the_canonical_ones():
-    from pooler.effects import convert
+    from pooler.evidence.effects import convert
     from pooler.pipeline import analyse
-    from pooler.planning import make_plan
-    from pooler.pooling import pool
-    from pooler.scenarios import make_scenarios
+    from pooler.planning.sample_size import make_plan
+    from pooler.evidence.pooling import pool
+    from pooler.planning.scenarios import make_scenarios
     d = choices.ANALYSIS_DEFAULTS
     got = _defaults(analyse)
     assert {k: got[k] for k in d} == dict(d)
@@ -37,7 +37,8 @@ def test_library_defaults_are_the_canonical_ones():
 
 
 def test_choice_lists_are_the_library_ones():
-    from pooler import bias, pooling
+    from pooler.evidence import bias
+    from pooler.evidence import pooling
     assert pooling.ESTIMATORS == choices.ESTIMATORS
     assert pooling.INTERVALS == choices.INTERVALS
     assert bias.adjuster_choices() == choices.ADJUSTERS

@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 from scipy import special as sp
 
-from pooler.simdesign import (Moderation, moderation_from_correlations,
-                              moderation_from_group_correlations, simulate_power)
+from pooler.planning.simdesign import (Moderation, moderation_from_correlations,
+                                       moderation_from_group_correlations, simulate_power)
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_literature" / \
     "practice_feedback_moderation.csv"
@@ -94,7 +94,7 @@ def test_demo_sheet_pools_each_pair_and_plans_the_interaction():
     simulated power of the interaction at n = 300 equals the noncentral-F power for that
     f^2 (Cohen 1988, ch. 9) within 3 MC SE plus 0.02 (random, heavy-tailed product term; the
     same allowance as tests/test_simdesign.py)."""
-    from pooler.pathsheet import pool_paths
+    from pooler.reading.pathsheet import pool_paths
     ps = pool_paths(DEMO, "moderation")
     assert [p.path for p in ps.paths] == ["X-Y", "Z-Y", "XZ-Y", "X-Z"]
     assert all(p.source == "sheet" and p.k >= 9 for p in ps.paths)
@@ -115,7 +115,7 @@ def test_demo_sheet_pools_each_pair_and_plans_the_interaction():
 
 
 def test_x_z_without_rows_is_zero_and_said(tmp_path):
-    from pooler.pathsheet import pool_paths
+    from pooler.reading.pathsheet import pool_paths
     s = _write(tmp_path / "m.csv", ["study", "path", "stat", "value", "n", "df", "predictors"],
                [["A", "X-Y", "r", 0.3, 200, "", ""], ["B", "Z-Y", "r", 0.2, 150, "", ""],
                 ["C", "X*Z -> Y", "coef_t", 2.2, "", 196, 3]])
@@ -127,7 +127,7 @@ def test_x_z_without_rows_is_zero_and_said(tmp_path):
 
 
 def test_slope_sheet_plans_a_binary_moderator(tmp_path):
-    from pooler.pathsheet import pool_paths
+    from pooler.reading.pathsheet import pool_paths
     s = _write(tmp_path / "sl.csv", ["study", "path", "stat", "value", "n"],
                [["A", "X-Y at high Z", "r", 0.40, 100], ["A", "X-Y at low Z", "r", 0.12, 100],
                 ["B", "x-y AT HIGH z", "r", 0.35, 80], ["B", "X-Y at low Z", "r", 0.05, 80],
@@ -189,7 +189,7 @@ def test_cli_writes_the_plan_the_diagram_and_the_methods(run_cli, tmp_path):
 
 
 def test_a_negative_interaction_says_how_to_recode(tmp_path):
-    from pooler.pathsheet import pool_paths
+    from pooler.reading.pathsheet import pool_paths
     s = _write(tmp_path / "neg.csv", ["study", "path", "stat", "value", "n", "df", "predictors"],
                [["A", "X-Y", "r", 0.3, 200, "", ""], ["B", "Z-Y", "r", 0.2, 150, "", ""],
                 ["C", "XZ-Y", "coef_t", -2.6, "", 196, 3], ["D", "XZ-Y", "coef_t", -2.2, "", 296, 3]])

@@ -23,7 +23,7 @@ def test_coefficient_t_gives_the_partial_correlation_from_residuals():
     residuals of Y and of X1 after regressing each on the other predictors (the definition
     of the partial correlation), t and df from statsmodels OLS on simulated data."""
     import statsmodels.api as sm
-    from pooler.effects import partial_r_from_t
+    from pooler.evidence.effects import partial_r_from_t
     rng = np.random.default_rng(15)
     for n, q in ((40, 1), (120, 2), (500, 3)):
         z = rng.standard_normal((n, q))
@@ -42,8 +42,8 @@ def test_partial_correlation_variance_and_one_predictor_rows(tmp_path):
     """Fisher z of a partial correlation with q controls has variance 1/(n - q - 3) (Fisher
     1924), which is 1/(df - 1) with df = n - q - 2; a coefficient of the only predictor is
     the zero-order correlation, so coef_t with one predictor and r agree (same n)."""
-    from pooler.effects import convert
-    from pooler.sheet import read_sheet
+    from pooler.evidence.effects import convert
+    from pooler.reading.sheet import read_sheet
     t = 0.25 * math.sqrt(98) / math.sqrt(1 - 0.25 ** 2)  # the t of r = .25 with n = 100
     s = _write(tmp_path / "s.csv", ["study", "stat", "value", "n", "df", "predictors"],
                [["A", "coef_t", t, "", 98, 1], ["B", "r", 0.25, 100, "", ""],
@@ -60,9 +60,9 @@ def test_partial_correlation_variance_and_one_predictor_rows(tmp_path):
 
 
 def test_standardized_coefficient_with_other_predictors_is_refused(tmp_path):
-    from pooler.effects import convert
+    from pooler.evidence.effects import convert
     from pooler.errors import InputError
-    from pooler.sheet import read_sheet
+    from pooler.reading.sheet import read_sheet
     s = _write(tmp_path / "s.csv", ["study", "stat", "value", "n", "predictors"],
                [["A", "std_coef", 0.3, 100, 3]])
     with pytest.raises(InputError, match="not the correlation of the pair") as e:
@@ -89,7 +89,7 @@ def test_each_path_is_the_ordinary_pool_of_its_rows_alone(tmp_path):
     """A path's pooled and scenario values equal `pooler.pipeline.analyse` (convert, pool,
     bias suite, scenarios on the r metric) run on a sheet holding only that path's rows."""
     import csv
-    from pooler.pathsheet import pool_paths
+    from pooler.reading.pathsheet import pool_paths
     from pooler.pipeline import analyse
     ps = pool_paths(_demo_path(), "parallel-mediation")
     with open(_demo_path(), newline="") as fh:
@@ -115,7 +115,7 @@ def test_scenario_designs_are_the_paths_of_the_scenario_matrix():
     """Each scenario's design is design_from_correlations of that scenario's values
     (Viswesvaran & Ones 1995); a = r(X, Mi) for parallel mediators, and the b paths are
     R_PP^-1 r_PY, checked here by numpy least squares on the matrix."""
-    from pooler.pathsheet import pool_paths
+    from pooler.reading.pathsheet import pool_paths
     ps = pool_paths(_demo_path(), "parallel-mediation")
     for s, d in ps.designs.items():
         mat = np.array(ps.matrices[s])
@@ -126,7 +126,7 @@ def test_scenario_designs_are_the_paths_of_the_scenario_matrix():
 
 
 def test_paths_without_literature_come_from_options(tmp_path):
-    from pooler.pathsheet import pool_paths
+    from pooler.reading.pathsheet import pool_paths
     s = _write(tmp_path / "s.csv", ["study", "path", "stat", "value", "n"],
                [["A", "X-M", "r", 0.3, 200], ["B", "X-M", "r", 0.25, 150],
                 ["C", "M-Y", "r", 0.35, 180]])

@@ -1,4 +1,4 @@
-"""Stress check of the sheet route (pooler.pathstress): literatures like the user's, simulated
+"""Stress check of the sheet route (pooler.planning.pathstress): literatures like the user's, simulated
 from known correlations, planned through pool_paths; identical on local processes and a
 dask.distributed LocalCluster."""
 from __future__ import annotations
@@ -26,8 +26,8 @@ def test_huge_unselected_literatures_recover_the_truth(tmp_path):
     """With studies of n = 40,000 and no selection, every simulated pair pools to its true
     correlation within a few thousandths (Fisher 1921: SE of z = 1/sqrt(n - 3) = 0.005), so the
     optimistic (random-effects) interaction's f^2 is the true one within 15 %."""
-    from pooler.pathsheet import pool_paths
-    from pooler.pathstress import stress_paths
+    from pooler.reading.pathsheet import pool_paths
+    from pooler.planning.pathstress import stress_paths
     ps = pool_paths(_moderation_sheet(tmp_path, 40_000), "moderation")
     res = stress_paths(ps, literatures=2, selection=(1.0,), seed=7)
     cell = res.cells[0]
@@ -38,8 +38,8 @@ def test_huge_unselected_literatures_recover_the_truth(tmp_path):
 
 def test_local_processes_and_dask_give_identical_results(tmp_path):
     distributed = pytest.importorskip("dask.distributed")
-    from pooler.pathsheet import pool_paths
-    from pooler.pathstress import stress_paths
+    from pooler.reading.pathsheet import pool_paths
+    from pooler.planning.pathstress import stress_paths
     ps = pool_paths(_moderation_sheet(tmp_path, 150), "moderation")
     local = stress_paths(ps, literatures=3, selection=(0.3,), seed=8, workers=1)
     with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,

@@ -8,7 +8,7 @@ import math
 
 import pytest
 
-from pooler.power import Design, n_for_assurance, n_for_power, to_design_effect
+from pooler.planning.power import Design, n_for_assurance, n_for_power, to_design_effect
 
 # invented results, heterogeneous on purpose, with a within-subject t without its own
 # correlation (uses --within-r) and two rows sharing a sample (combined with --sample-r)
@@ -153,10 +153,10 @@ def test_analysis_options_reach_the_analysis(run_cli, write_sheet):
 
 
 def test_model_average_options_reach_the_posterior(run_cli, write_sheet):
-    # reference: the model average computed directly with the same priors (pooler.bma),
+    # reference: the model average computed directly with the same priors (pooler.evidence.bma),
     # on the studies the analysis pooled
     import numpy as np
-    from pooler.bma import Priors, model_average
+    from pooler.evidence.bma import Priors, model_average
     from pooler.pipeline import analyse
     sheet = write_sheet(SHEET_ROWS, columns=["study", "sample", "stat", "value", "n1", "n2",
                                              "n", "design"])

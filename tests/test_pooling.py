@@ -17,16 +17,16 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import optimize, stats
 
-from pooler.effects import Effects, Unit
-from pooler.pooling import (estimate_tau2, heterogeneity, pool, prediction_interval,
-                            q_statistic, random_effects, tau2_qprofile_ci)
+from pooler.evidence.effects import Effects, Unit
+from pooler.evidence.pooling import (estimate_tau2, heterogeneity, pool, prediction_interval,
+                                     q_statistic, random_effects, tau2_qprofile_ci)
 
 sm_meta = pytest.importorskip("statsmodels.stats.meta_analysis")
 
 
 def make_effects(y, v, years=None, subgroups=None, metric="g") -> Effects:
     # group sizes with 1/n1 + 1/n2 = v: the size-based variance of the regression methods
-    # (pooler.bias.size_variances) then equals v, as for any literature without effect in v
+    # (pooler.evidence.bias.size_variances) then equals v, as for any literature without effect in v
     units = tuple(Unit(label=f"S{i}", effect=float(a), variance=float(b), n_total=4.0 / b,
                        n1=2.0 / b, n2=2.0 / b, design="between", rows=(i + 2,),
                        year=None if years is None else years[i],

@@ -1,6 +1,6 @@
 """The vectorised leave-one-out and cumulative tables against one fit per row.
 
-pooler.pooling fits every leave-one-out subset (and every cumulative prefix) in one
+pooler.evidence.pooling fits every leave-one-out subset (and every cumulative prefix) in one
 vectorised pass (sums before and after each study; a power series in τ² around a grid
 point for the polish). Each row must equal what ``random_effects`` gives on that row's
 studies, for every τ² estimator (REML and ML: Viechtbauer 2005, eqs. 6 and 8; Paule &
@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from pooler.effects import Effects, Unit
-from pooler.pooling import ESTIMATORS, INTERVALS, _row, pool
+from pooler.evidence.effects import Effects, Unit
+from pooler.evidence.pooling import ESTIMATORS, INTERVALS, _row, pool
 
 
 def _effects(y, v, years):

@@ -5,7 +5,7 @@ variance estimators in the random-effects model. JEBS 30(3), 261-293: the ML log
 (eq. 6) and the restricted log-likelihood (eq. 8), with μ replaced by its weighted mean
 Σ w y / Σ w, w = 1 / (v + τ²). The brute force below writes them out again (with their 2π
 constants) and maximises them by a dense grid on the τ = √τ² scale plus a bounded local
-polish with ``scipy.optimize.minimize_scalar``; it shares no code with pooler.pooling.
+polish with ``scipy.optimize.minimize_scalar``; it shares no code with pooler.evidence.pooling.
 
 The generated data sets deliberately include one-huge-study literatures (one study with
 20,000 per group among small ones), where the score at τ² = 0 can be negative although the
@@ -21,7 +21,7 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import optimize
 
-from pooler.pooling import estimate_tau2
+from pooler.evidence.pooling import estimate_tau2
 
 N_SETS = 1200
 GRID = 2500

@@ -17,9 +17,9 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import stats
 
-from pooler.power import (Design, assurance, detectable_effect, n_for_assurance, n_for_power,
-                          power_at, to_design_effect, from_design_effect)
-from pooler.planning import PlanningEffect, make_plan
+from pooler.planning.power import (Design, assurance, detectable_effect, n_for_assurance,
+                                   n_for_power, power_at, to_design_effect, from_design_effect)
+from pooler.planning.sample_size import PlanningEffect, make_plan
 
 sm_power = pytest.importorskip("statsmodels.stats.power")
 
@@ -367,9 +367,9 @@ def test_plan_rejects_bad_options():
 
 
 def test_noncentral_t_far_tail_bounds():
-    # |lambda| >= 40: set from the bound T = (Z + lambda)/S (see pooler.power._nct_cdf);
+    # |lambda| >= 40: set from the bound T = (Z + lambda)/S (see pooler.planning.power._nct_cdf);
     # compare with scipy.stats.nct where it is quick, and check the limits
-    from pooler.power import _nct_cdf
+    from pooler.planning.power import _nct_cdf
     for df, ncp, x in [(10, 45.0, 2.0), (3, 41.0, -2.0), (50, -60.0, 1.98), (200, -45.0, -2.5)]:
         assert_allclose(_nct_cdf(df, ncp, x), stats.nct.cdf(x, df, ncp), atol=1e-15)
     assert float(_nct_cdf(78, 6e4, 1.99)) == 0.0

@@ -3,14 +3,14 @@
 Sources of the checks:
 - Hotelling (1953), the exact density of r: for one predictor (u = p = 1) the power of the
   regression test must equal the power of the exact test of a correlation
-  (``pooler.power._r_exact_power``, itself checked in tests/test_power.py).
+  (``pooler.planning.power._r_exact_power``, itself checked in tests/test_power.py).
 - Gatsonis & Sampson (1989): power with random normal predictors is below the fixed-predictor
   (Cohen 1988, λ = f² N) figure.
 - Borm, Fransen & Lemmens (2007): their noncentrality is the fixed-covariate figure,
   compared with statsmodels/scipy in tests/test_power.py.
 - Adaptive quadrature (``scipy.integrate.quad``) of the conditional power over the exact
   distribution of the random part (Beta((N - 2)/2, 1/2) for ANCOVA, χ²(N - p + u - 1) for the
-  increment), derived in ``pooler._random_predictors``.
+  increment), derived in ``pooler.planning._random_predictors``.
 - Seeded Monte Carlo of the whole analysis: data simulated, least squares fitted with numpy,
   rejections counted; tolerance 4 Monte Carlo standard errors.
 - statsmodels ``FTestPowerF2`` for the fixed-predictor figure (nobs = N with ncc = p + 1 - u).
@@ -24,9 +24,9 @@ from click.testing import CliRunner
 from numpy.testing import assert_allclose
 from scipy import integrate, stats
 
-from pooler._random_predictors import ancova_power, increment_power
+from pooler.planning._random_predictors import ancova_power, increment_power
 from pooler.cli import main
-from pooler.power import Design, _r_exact_power, n_for_power, power_at
+from pooler.planning.power import Design, _r_exact_power, n_for_power, power_at
 
 
 def f2_of(r):
@@ -293,7 +293,7 @@ def test_cli_default_and_fixed_covariates_flag():
 
 
 def test_methods_sentence_says_exact_only_where_exact():
-    from pooler.document import _power_basis
+    from pooler.output.document import _power_basis
     assert _power_basis(Design("ancova")) == "exact noncentral distributions"
     assert "approximation" in _power_basis(Design("ancova", fixed_covariates=True))
     assert "approximation" in _power_basis(Design("regression-increment",

@@ -27,7 +27,7 @@ def test_results_show_as_tables_in_a_notebook(demo_path):
     # Jupyter shows an object's _repr_html_: each stage's result shows the section the terminal
     # and the report show (one content model), headed and with its table
     from pooler import adjust, convert, planning_scenarios, plan, pool, read_sheet
-    from pooler.planning import PlanningEffect
+    from pooler.planning.sample_size import PlanningEffect
     eff = convert(read_sheet(demo_path))
     pooled = pool(eff)
     bias = adjust(pooled)

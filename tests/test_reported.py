@@ -1,5 +1,5 @@
-"""Result strings as papers print them (pooler/reported.py) and the reporting
-consistency check (pooler/consistency.py). The table of strings lives in tests/data/result_strings.csv (made by
+"""Result strings as papers print them (pooler/reading/reported.py) and the reporting
+consistency check (pooler/reading/consistency.py). The table of strings lives in tests/data/result_strings.csv (made by
 tests/data/make_result_strings.py); every example there and here is invented."""
 from __future__ import annotations
 
@@ -10,9 +10,9 @@ from pathlib import Path
 import pytest
 
 from pooler.errors import InputError
-from pooler.consistency import (check_ci, check_p, p_from_statistic, p_interval,
-                                statistic_from_p)
-from pooler.reported import Number, ReportedP, parse_reported
+from pooler.reading.consistency import (check_ci, check_p, p_from_statistic, p_interval,
+                                        statistic_from_p)
+from pooler.reading.reported import Number, ReportedP, parse_reported
 
 DATA = Path(__file__).parent / "data" / "result_strings.csv"
 TABLE = list(csv.DictReader(open(DATA, encoding="utf-8", newline="")))

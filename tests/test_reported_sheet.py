@@ -67,7 +67,7 @@ def test_original_text_kept_in_every_output(tmp_path, run_cli):
     assert eff.rows[0].reported == text
     assert eff.to_dict()["rows"][0]["reported"] == text
     assert eff.to_frame()["reported"][0] == text
-    from pooler.outputs import effects_csv
+    from pooler.output.outputs import effects_csv
     assert text in effects_csv(eff)
     res = run_cli("convert", tmp_path / "s.csv")
     assert res.exit_code == 0 and text in res.output

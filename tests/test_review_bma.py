@@ -1,4 +1,4 @@
-"""Review checks of pooler.bma against a brute-force model average written independently here.
+"""Review checks of pooler.evidence.bma against a brute-force model average written independently here.
 
 The brute force integrates every model's marginal likelihood on dense Simpson grids in other
 coordinates than pooler's quadrature (μ on its own scale, τ and the selection weights and
@@ -23,10 +23,10 @@ from scipy.interpolate import CubicSpline
 from scipy.optimize import brentq
 from scipy.stats import norm
 
-from pooler.bma import log_likelihood, model_average
+from pooler.evidence.bma import log_likelihood, model_average
 
 Z975 = norm.ppf(0.975)
-# invented literature (the docstring example of pooler.bma)
+# invented literature (the docstring example of pooler.evidence.bma)
 Y = np.array([0.42, 0.18, 0.55, 0.31, 0.08, 0.47])
 V = np.array([0.040, 0.031, 0.062, 0.045, 0.028, 0.051])
 
@@ -322,11 +322,11 @@ def test_upper_credible_limit_given_positive_is_within_1e3_at_the_default_resolu
 
 
 def test_predictive_density_keeps_the_atom_exactly_when_a_cell_centre_is_next_to_zero():
-    # pooler.scenarios.predictive_effect_density spreads the mass at exactly 0 as a triangle
+    # pooler.planning.scenarios.predictive_effect_density spreads the mass at exactly 0 as a triangle
     # ending at 0. With a cell centre 0.00024 below 0 the triangle's right flank is 0.00024
     # wide; the piecewise-linear density must still integrate to 1 with P(θ > 0) unchanged
     # (exact integrals of a piecewise-linear function; invented table)
-    from pooler.scenarios import predictive_effect_density
+    from pooler.planning.scenarios import predictive_effect_density
 
     class Table:
         metric = "g"
@@ -334,7 +334,7 @@ def test_predictive_density_keeps_the_atom_exactly_when_a_cell_centre_is_next_to
 
         def predictive_density(self):
             h = 0.03
-            x = np.arange(-200, 201) * h - 0.00024  # 400 cells over 12, as pooler.bma tabulates
+            x = np.arange(-200, 201) * h - 0.00024  # 400 cells over 12, as pooler.evidence.bma tabulates
             f = norm.pdf(x, 0.2, 0.3)
             return x, 0.5 * f / np.sum(f * h)
     t = Table()

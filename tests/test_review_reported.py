@@ -1,4 +1,4 @@
-"""Review checks of pooler.reported and its use in pooler.consistency. Every row is invented.
+"""Review checks of pooler.reading.reported and its use in pooler.reading.consistency. Every row is invented.
 
 Sources: two-sided p of t from Student's t; of F(1, df) from the F upper tail; of r from
 t = r sqrt(df / (1 - r²)) with df = n - 2 (e.g. Cohen 1988, ch. 3); of a 1-df chi-square from
@@ -12,9 +12,9 @@ import pytest
 from scipy import stats
 
 from pooler import convert, read_sheet
-from pooler.consistency import check_p
+from pooler.reading.consistency import check_p
 from pooler.errors import InputError
-from pooler.reported import parse_reported
+from pooler.reading.reported import parse_reported
 
 
 def _p_two_sided(stat, x, df):

@@ -1,4 +1,4 @@
-"""Review checks of pooler.simdesign: its power against an exact integral and against plain
+"""Review checks of pooler.planning.simdesign: its power against an exact integral and against plain
 Monte Carlo written independently here (own generator, own seed stream, own least squares with
 an intercept column).
 
@@ -17,8 +17,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from pooler.simdesign import (Moderation, ParallelMediation, SerialMediation,
-                              SimpleMediation, find_n, simulate_power)
+from pooler.planning.simdesign import (Moderation, ParallelMediation, SerialMediation,
+                                       SimpleMediation, find_n, simulate_power)
 
 
 def _legendre01(n):

@@ -81,7 +81,7 @@ def test_every_input_row_in_report(demo_run, demo_path):
     _, out = demo_run
     md = (out / "report.md").read_text()
     from pooler import read_sheet
-    from pooler.document import md_escape
+    from pooler.output.document import md_escape
     table = md.split("## Conversions", 1)[1].split("\n## ", 1)[0]
     for rec in read_sheet(demo_path).records:
         assert f"| {rec.row} | {md_escape(rec.study)} |" in table
@@ -131,7 +131,7 @@ def test_figures_in_each_format(tmp_path, run_cli, demo_path, fmt):
 
 def test_forest_plot_has_one_row_per_study_plus_summaries(demo_path):
     from pooler.pipeline import analyse
-    from pooler.plots import forest_plot
+    from pooler.output.plots import forest_plot
     a = analyse(demo_path)
     fig = forest_plot(a.pooled, a.scenarios)
     ax = fig.axes[0]
@@ -230,10 +230,10 @@ def test_a_manifest_cannot_delete_outside_the_folder(tmp_path, run_cli):
 
 def test_forest_plot_stays_small_at_large_k(tmp_path, write_sheet):
     # Above FOREST_MAX_ROWS studies the forest plot draws one cloud, not a row per study.
-    from pooler.effects import convert
-    from pooler.plots import FOREST_MAX_ROWS, forest_plot
-    from pooler.pooling import pool
-    from pooler.sheet import read_sheet
+    from pooler.evidence.effects import convert
+    from pooler.output.plots import FOREST_MAX_ROWS, forest_plot
+    from pooler.evidence.pooling import pool
+    from pooler.reading.sheet import read_sheet
     rng = np.random.default_rng(7)
     rows = [{"study": f"S{i}", "stat": "d", "value": round(float(rng.normal(0.3, 0.3)), 3),
              "n1": int(rng.integers(10, 80)), "n2": int(rng.integers(10, 80))}
@@ -248,7 +248,7 @@ def test_forest_plot_stays_small_at_large_k(tmp_path, write_sheet):
 
 def test_forest_legend_never_covers_a_study(demo_path):
     from pooler.pipeline import analyse
-    from pooler.plots import forest_plot
+    from pooler.output.plots import forest_plot
     a = analyse(demo_path)
     fig = forest_plot(a.pooled, a.scenarios)
     fig.canvas.draw()

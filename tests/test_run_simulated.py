@@ -20,8 +20,8 @@ def _write(path, header, rows):
 
 
 def test_simulated_designs_are_in_the_registry_and_in_run_help(run_cli):
-    from pooler import designs
-    from pooler.design_choices import SIMULATED_DESIGNS
+    from pooler.planning import designs
+    from pooler.planning.design_choices import SIMULATED_DESIGNS
     assert SIMULATED_DESIGNS == tuple(s.name for s in designs.simulated())
     assert designs.get_simulated("moderation").factory.__name__ == "Moderation"
     with pytest.raises(Exception, match="must be one of simple-mediation"):

@@ -103,7 +103,7 @@ def test_template_round_trip(tmp_path, run_cli, name):
     res = run_cli("template", p)
     assert res.exit_code == 0 and p.exists()
     eff = convert(read_sheet(p))
-    from pooler.template import EXAMPLE_ROWS
+    from pooler.reading.template import EXAMPLE_ROWS
     assert len(eff.rows) == len(EXAMPLE_ROWS)
     assert {r.stat for r in eff.rows} >= {"t", "F", "r", "d", "g", "means", "chi2", "counts",
                                           "odds_ratio", "p"}
@@ -115,8 +115,8 @@ def test_template_round_trip(tmp_path, run_cli, name):
 
 
 def test_template_covers_every_known_column():
-    from pooler.sheet import COLUMN_GUIDE, KNOWN
-    from pooler.template import TEMPLATE_COLUMNS
+    from pooler.reading.sheet import COLUMN_GUIDE, KNOWN
+    from pooler.reading.template import TEMPLATE_COLUMNS
     assert set(TEMPLATE_COLUMNS) == set(KNOWN) == set(COLUMN_GUIDE)
 
 

@@ -7,7 +7,7 @@ import pytest
 
 from pooler import convert, read_sheet
 from pooler.errors import InputError, InputErrors
-from pooler.sheet import MAX_PROBLEMS
+from pooler.reading.sheet import MAX_PROBLEMS
 
 
 def _write(tmp_path, text, name="s.csv"):

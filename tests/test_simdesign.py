@@ -1,4 +1,4 @@
-"""Simulated power for mediation and moderation (pooler.simdesign).
+"""Simulated power for mediation and moderation (pooler.planning.simdesign).
 
 Every simulation is seeded; tolerances are stated in Monte Carlo standard errors (MC SE =
 sqrt(p (1 - p) / reps)) of the simulated estimate, with a small stated allowance where the
@@ -14,10 +14,10 @@ import numpy as np
 import pytest
 from scipy import special as sp
 
-from pooler import simdesign as sd
+from pooler.planning import simdesign as sd
 from pooler.errors import OptionError
-from pooler.simdesign import (Moderation, ParallelMediation, SerialMediation, SimpleMediation,
-                              find_n, simulate_power)
+from pooler.planning.simdesign import (Moderation, ParallelMediation, SerialMediation,
+                                       SimpleMediation, find_n, simulate_power)
 
 
 def t_power(f2, n, predictors, alpha=0.05):

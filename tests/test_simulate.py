@@ -12,7 +12,7 @@ import json
 import numpy as np
 import pytest
 
-from pooler.simulate import Cell, Shapes, simulate_literature, stress_test
+from pooler.planning.simulate import Cell, Shapes, simulate_literature, stress_test
 
 
 def test_simulated_studies_follow_their_sampling_distribution():
@@ -70,7 +70,7 @@ def test_stress_command_on_demo(run_cli, demo_path, tmp_path):
 
 def test_calibration_grid_and_shapes_cover_small_literatures():
     # issue: the calibration must include k = 5, paired studies and small samples
-    from pooler.simulate import Cell, Shapes, calibration_grid, simulate_literature
+    from pooler.planning.simulate import Cell, Shapes, calibration_grid, simulate_literature
     cells = calibration_grid()
     assert len(cells) == 108 and {c.k for c in cells} == {5, 10, 20, 40}
     sh = Shapes.calibration()
@@ -83,8 +83,8 @@ def test_calibration_grid_and_shapes_cover_small_literatures():
 
 @pytest.mark.slow
 def test_stress_figure_shows_the_share_without_a_plan():
-    from pooler.plots import stress_plot
-    from pooler.simulate import Cell, Shapes, stress_test
+    from pooler.output.plots import stress_plot
+    from pooler.planning.simulate import Cell, Shapes, stress_test
     res = stress_test([Cell(5, 0.05, 0.0, 0.05)], Shapes.generic(), reps=20, seed=5, workers=1)
     fig = stress_plot(res)
     texts = [t.get_text() for t in fig.axes[0].texts]
@@ -96,7 +96,7 @@ def test_stress_figure_shows_the_share_without_a_plan():
 
 def test_stress_explains_its_grid_also_when_the_realistic_effect_is_not_positive(demo_path):
     from pooler.pipeline import analyse
-    from pooler.simulate import grid_around, grid_note
+    from pooler.planning.simulate import grid_around, grid_note
     a = analyse(demo_path)
     r = a.scenarios.realistic.effect
     assert f"{r:.3f}" in grid_note(a) and r > 0

@@ -1,5 +1,5 @@
-"""The trade-off grid of the model-average rule in the stress test (pooler.simulate) and its
-summary (pooler.tradeoff): every grid point from one fit per literature, the default point
+"""The trade-off grid of the model-average rule in the stress test (pooler.planning.simulate) and its
+summary (pooler.planning.tradeoff): every grid point from one fit per literature, the default point
 equal to the realistic and pessimistic rules, the n relative to the oracle n, and the table's
 medians as defined (checked on a hand-made document)."""
 from __future__ import annotations
@@ -10,9 +10,9 @@ import numpy as np
 import pytest
 
 from pooler.choices import MODEL_AVERAGE_DEFAULTS
-from pooler.simulate import (Cell, Shapes, evaluate_literature, simulate_literature,
-                             stress_test, tradeoff_points)
-from pooler.tradeoff import tradeoff_markdown, tradeoff_plot, tradeoff_table, tradeoff_text
+from pooler.planning.simulate import (Cell, Shapes, evaluate_literature, simulate_literature,
+                                      stress_test, tradeoff_points)
+from pooler.planning.tradeoff import tradeoff_markdown, tradeoff_plot, tradeoff_table, tradeoff_text
 
 
 @pytest.fixture(scope="module")
@@ -44,7 +44,7 @@ def test_lower_quantiles_and_less_prior_weight_on_no_bias_ask_for_more(small_run
 
 
 def test_n_ratio_is_the_planned_n_over_the_oracle_n():
-    from pooler.power import n_for_power
+    from pooler.planning.power import n_for_power
     rng = np.random.default_rng(5)
     shapes = Shapes.calibration()
     y, v, idx = simulate_literature(rng, Cell(8, 0.35, 0.1, 0.5), shapes)
@@ -113,12 +113,12 @@ def test_a_document_without_the_grid_is_refused():
 
 
 def _point(w, q, prot, free, ratio, nop=0.0):
-    from pooler.tradeoff import TradeOffPoint
+    from pooler.planning.tradeoff import TradeOffPoint
     return TradeOffPoint(w, q, prot, free, ratio, nop, nop)
 
 
 def test_choose_default_follows_its_principle():
-    from pooler.tradeoff import TradeOff, choose_default
+    from pooler.planning.tradeoff import TradeOff, choose_default
     pts = (
         # realistic points: 0.5 keeps the cost limit, 0.2 protects more and keeps it too,
         # 0.1 protects most but over-asks at k = 10 (n 1.3x the oracle)
@@ -146,7 +146,7 @@ def test_choose_default_follows_its_principle():
 
 
 def test_choose_default_when_no_prior_keeps_the_cost_limit():
-    from pooler.tradeoff import TradeOff, choose_default
+    from pooler.planning.tradeoff import TradeOff, choose_default
     pts = (_point(0.5, 0.5, (0.40, 0.50), (0.82, 0.86), (1.1, 1.29)),
            _point(0.2, 0.5, (0.45, 0.58), (0.85, 0.92), (1.2, 1.45)),
            _point(0.5, 0.15, (0.85, 0.90), (1.0, 1.0), (4.0, 4.5)),

@@ -107,12 +107,12 @@ def write_sheet(path, k, seed=7):
 
 def stage_times(sheet):
     """Where `pooler pool` spends its time at this k: each stage once, in this process."""
-    from pooler.audit import audit_literature
-    from pooler.bias import bias_suite
-    from pooler.effects import convert
-    from pooler.pooling import pool
-    from pooler.scenarios import make_scenarios
-    from pooler.sheet import read_sheet
+    from pooler.evidence.audit import audit_literature
+    from pooler.evidence.bias import bias_suite
+    from pooler.evidence.effects import convert
+    from pooler.evidence.pooling import pool
+    from pooler.planning.scenarios import make_scenarios
+    from pooler.reading.sheet import read_sheet
     parts = []
 
     def timed(name, fn, *args):
@@ -181,7 +181,7 @@ def main():
 
     # --- the planning grid
     from statsmodels.stats.power import TTestIndPower
-    from pooler.power import n_for_power
+    from pooler.planning.power import n_for_power
     d = np.linspace(0.15, 1.2, 10)
     pw = np.linspace(0.5, 0.95, 10)
     al = np.linspace(0.005, 0.1, 10)
@@ -200,7 +200,7 @@ def main():
 
     # --- REML on 100,000 studies
     from statsmodels.stats.meta_analysis import combine_effects
-    from pooler.pooling import random_effects
+    from pooler.evidence.pooling import random_effects
     rng = np.random.default_rng(1)
     k = 100_000
     v = rng.uniform(0.01, 0.2, k)
@@ -210,8 +210,8 @@ def main():
     report("REML + HKSJ, k = 100,000", t_reml, "goal <= 1 s", t_dl, "statsmodels DL")
 
     # --- selection model and the bias suite
-    from pooler.bias import bias_suite, selection_model
-    from pooler.pooling import pool
+    from pooler.evidence.bias import bias_suite, selection_model
+    from pooler.evidence.pooling import pool
     sys.path.insert(0, os.path.join(HERE, ".."))
     from test_bias import literature
     from test_pooling import make_effects

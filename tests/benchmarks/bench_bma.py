@@ -1,11 +1,11 @@
-"""Speed of the Bayesian model average (pooler.bma.model_average): prints figures only.
+"""Speed of the Bayesian model average (pooler.evidence.bma.model_average): prints figures only.
 
     python tests/benchmarks/bench_bma.py
 
 Targets from issue 13: the whole model average (20 models) in ≤ 0.3 s for k = 20 and ≤ 3 s
 for k = 1,000 on the 2-core development machine. Also printed: k = 10,000 (the SE groups of
-pooler.bma.GROUP_ABOVE_K) and the sensitivity line's re-weighting to the wider priors
-(pooler.bma.reweighted), which replaced a second fit. Literatures are simulated (seeded): two-group
+pooler.evidence.bma.GROUP_ABOVE_K) and the sensitivity line's re-weighting to the wider priors
+(pooler.evidence.bma.reweighted), which replaced a second fit. Literatures are simulated (seeded): two-group
 studies with 20-100 per group, δ = 0.3, τ = 0.1, non-significant results published with
 probability 0.3.
 """
@@ -32,7 +32,7 @@ def literature(rng, k):
 
 def main():
     from threadpoolctl import threadpool_limits
-    from pooler.bma import WIDE_PRIORS, model_average, reweighted
+    from pooler.evidence.bma import WIDE_PRIORS, model_average, reweighted
     reweighted(model_average([0.3, 0.2], [0.05, 0.04]), WIDE_PRIORS)  # imports and caches
     rng = np.random.default_rng(20261202)
     print("k      runs  median s   max s   re-weighted to the wider priors: median s")

@@ -1,4 +1,4 @@
-"""Speed figures for simulated mediation and moderation power (pooler.simdesign).
+"""Speed figures for simulated mediation and moderation power (pooler.planning.simdesign).
 
 Run:  python tests/benchmarks/bench_mediation.py          (about a minute)
 
@@ -21,8 +21,8 @@ from pooler._threads import limit_before_numpy  # noqa: E402
 
 limit_before_numpy()
 
-from pooler.simdesign import (ParallelMediation, SimpleMediation, plan_paths,  # noqa: E402
-                              simulate_power)
+from pooler.planning.simdesign import (ParallelMediation, SimpleMediation, plan_paths,
+                                       # noqa: E402                               simulate_power)
 
 
 def timed(label, fn, goal=""):

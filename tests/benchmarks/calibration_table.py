@@ -101,7 +101,7 @@ def summary(doc):
 
 
 def tradeoff(doc):
-    from pooler.tradeoff import choose_default, tradeoff_markdown, tradeoff_table
+    from pooler.planning.tradeoff import choose_default, tradeoff_markdown, tradeoff_table
     from pooler.choices import MODEL_AVERAGE_DEFAULTS as now
     t = tradeoff_table(doc, default=(now["chance_of_no_bias"], now["pessimistic_quantile"]))
     print()

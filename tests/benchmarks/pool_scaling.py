@@ -4,7 +4,7 @@ Run:  python tests/benchmarks/pool_scaling.py        (about a minute)
 
 Prints, each measured in this run (medians of 3; invented literatures, seeded):
   pooler pool at k = 10,000 / at k = 10        goal <= 2 x (whole process, wall and CPU)
-  pooling stage alone at k = 10,000 / k = 10   (pooler.pooling.pool, with both tables)
+  pooling stage alone at k = 10,000 / k = 10   (pooler.evidence.pooling.pool, with both tables)
   leave-one-out at k = 1,000: one vectorised pass vs one fit per row, same numbers
 No timed assertions: figures only.
 """
@@ -37,7 +37,7 @@ def run_cli(path):
 def main():
     sys.path.insert(0, ROOT)
     from pooler import convert, read_sheet
-    from pooler.pooling import _row, pool
+    from pooler.evidence.pooling import _row, pool
 
     with tempfile.TemporaryDirectory() as tmp:
         paths = {}

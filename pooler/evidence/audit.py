@@ -2,7 +2,7 @@
 significant results than that power can explain.
 
 Both are computed at one assumed true effect (the pipeline uses the realistic planning
-effect) from the studies a :class:`pooler.pooling.PooledResult` carries: the stage after the
+effect) from the studies a :class:`pooler.evidence.pooling.PooledResult` carries: the stage after the
 scenarios, ``audit_literature(pooled, scenarios.realistic.effect) -> Audit``.
 
 References
@@ -18,8 +18,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._results import NotEstimable, to_jsonable
-from .bias import Z975
+from pooler._results import NotEstimable, to_jsonable
+from pooler.evidence.bias import Z975
 
 
 @dataclass(frozen=True)
@@ -67,7 +67,7 @@ def unit_powers(units, effect, metric, alpha=0.05):
     The units are grouped by how their power is computed and each group is done in one
     vectorised call, so the audit costs about the same at k = 10 and k = 10,000."""
     from scipy.special import ndtr, ndtri
-    from .power import Design, _t_power, power_at, to_design_effect
+    from pooler.planning.power import Design, _t_power, power_at, to_design_effect
     zc = float(ndtri(1 - alpha / 2))
     units = list(units)
     kinds, hows = [], []
@@ -152,7 +152,7 @@ class Audit:
 
 
 def audit_literature(pooled, effect) -> Audit:
-    """Audit the studies of ``pooled`` (a :class:`pooler.pooling.PooledResult`) at the true
+    """Audit the studies of ``pooled`` (a :class:`pooler.evidence.pooling.PooledResult`) at the true
     effect ``effect`` on its metric: each study's power, then the excess-significance test
     (Ioannidis & Trikalinos 2007) with those powers."""
     if not effect > 0:

@@ -52,9 +52,9 @@ from typing import Callable
 import numpy as np
 from scipy import special as sp
 
-from ._results import Interval, NotEstimable, to_jsonable
-from ._threads import one_blas_thread
-from .errors import OptionError
+from pooler._results import Interval, NotEstimable, to_jsonable
+from pooler._threads import one_blas_thread
+from pooler.errors import OptionError
 
 #: Replications per work unit (the unit of parallel work and of seeding).
 CHUNK = 250
@@ -1343,7 +1343,7 @@ def read_paths_file(path) -> dict:
     :class:`~pooler.errors.InputError` with the file, row (header = 1) and column.
     """
     import csv
-    from .errors import InputError
+    from pooler.errors import InputError
     try:
         with open(path, newline="", encoding="utf-8-sig") as fh:
             rows = list(csv.reader(fh))

@@ -12,8 +12,8 @@ import os
 import tempfile
 from pathlib import Path
 
-from ._results import csv_safe
-from .errors import OptionError
+from pooler._results import csv_safe
+from pooler.errors import OptionError
 
 FIGURES = ("forest", "funnel", "ladder", "power")
 
@@ -38,9 +38,9 @@ def effects_csv(effects) -> str:
 
 def render(run, fmt: str = "png") -> dict[str, bytes]:
     """Every output file of ``run`` as name -> bytes."""
-    from . import plots
-    from .document import build_blocks, to_html, to_markdown
-    from .report import plan_csv
+    from pooler.output import plots
+    from pooler.output.document import build_blocks, to_html, to_markdown
+    from pooler.output.report import plan_csv
     if fmt not in ("png", "svg", "pdf"):
         raise OptionError(f"--format must be png, svg or pdf, not {fmt!r}")
     a = run.analysis

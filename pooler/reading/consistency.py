@@ -21,8 +21,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from .errors import InputError
-from .reported import ALPHA, COLUMN, TRUST_COLUMN, Number, Parsed
+from pooler.errors import InputError
+from pooler.reading.reported import ALPHA, COLUMN, TRUST_COLUMN, Number, Parsed
 
 
 @dataclass(frozen=True)
@@ -213,7 +213,7 @@ def expected_df(stat: str, design: str, n1, n2, n) -> tuple[float, str] | None:
 
 
 def _design_of(rec) -> str:
-    from .sheet import _WITHIN_WORDS
+    from pooler.reading.sheet import _WITHIN_WORDS
     d = (rec.get("design") or "between").strip().lower()
     return "within" if d in _WITHIN_WORDS else "between"
 
@@ -223,7 +223,7 @@ def check_record(rec, column_of) -> tuple[list[Inconsistency], object, list[str]
 
     Parameters
     ----------
-    rec : pooler.sheet.Record
+    rec : pooler.reading.sheet.Record
     column_of : callable
         Maps a column key to the sheet's own spelling (for messages).
 

@@ -35,10 +35,10 @@ import math
 from dataclasses import dataclass, field, replace
 from typing import Callable
 
-from ._results import Interval, ShowsAsTable, to_jsonable
-from .errors import InputError, InputErrors, OptionError
-from .consistency import check_record
-from .sheet import Record, Sheet, column_label
+from pooler._results import Interval, ShowsAsTable, to_jsonable
+from pooler.errors import InputError, InputErrors, OptionError
+from pooler.reading.consistency import check_record
+from pooler.reading.sheet import Record, Sheet, column_label
 
 METRICS = {"d": "g", "g": "g", "r": "z", "z": "z"}
 _Z975 = 1.959963984540054  # Phi^-1(0.975)
@@ -266,7 +266,7 @@ class Effects(ShowsAsTable):
     sha256: str
     within_r: float
     sample_r: float
-    inconsistencies: tuple = ()  # pooler.consistency.Inconsistency, significance changes first
+    inconsistencies: tuple = ()  # pooler.reading.consistency.Inconsistency, significance changes first
 
     @property
     def k(self) -> int:

@@ -91,7 +91,7 @@ def _plain(t) -> str:
 
 def _text_table(headers, rows) -> list[str]:
     """An aligned table; a column whose cells are all numbers (or empty) is right-aligned."""
-    from ._results import text_table
+    from pooler._results import text_table
     numeric = [k == "num" for k in _column_kinds(rows)] or [False] * len(headers)
     return text_table([_plain(h) for h in headers], [[_plain(c) for c in r] for r in rows],
                       numeric=numeric).split("\n")

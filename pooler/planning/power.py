@@ -6,7 +6,7 @@ a whole planning grid (effects × powers × alphas) costs about one call per sea
 
 Designs and the test each is planned for (λ is the noncentrality); each design's power
 function, units, labels and description are its entry in the registry
-:mod:`pooler.designs`, which :class:`Design` and the functions below read:
+:mod:`pooler.planning.designs`, which :class:`Design` and the functions below read:
 
 ============================  ====================================================  ==========
 design                        test                                                   effect
@@ -26,7 +26,7 @@ Every figure is exact (noncentral t, F or the exact distribution of r) except th
 test of a correlation, which is the usual normal approximation (``exact_r`` gives the exact
 one). For ``ancova`` and ``regression-increment`` the covariate or predictors are taken to be
 sampled from a normal distribution, and the power is averaged over them by quadrature (see
-:mod:`pooler._random_predictors`); ``fixed_covariates=True`` gives instead the power with the
+:mod:`pooler.planning._random_predictors`); ``fixed_covariates=True`` gives instead the power with the
 values held fixed — Borm et al.'s λ₀ (the groups exactly balanced on the covariate) and
 Cohen's λ = f² N — which overstates the power of a study that samples them.
 
@@ -55,11 +55,11 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import special as sp
 
-from ._results import NotEstimable, to_jsonable
-from .design_choices import PLANNED_DESIGNS
-from .errors import OptionError
+from pooler._results import NotEstimable, to_jsonable
+from pooler.planning.design_choices import PLANNED_DESIGNS
+from pooler.errors import OptionError
 
-#: The built-in planned designs; each is an entry of the registry :mod:`pooler.designs`,
+#: The built-in planned designs; each is an entry of the registry :mod:`pooler.planning.designs`,
 #: which holds everything a design needs (its test, units, labels and description).
 DESIGNS = PLANNED_DESIGNS
 ALTERNATIVES = ("two-sided", "greater")
@@ -73,7 +73,7 @@ class Design:
     Parameters
     ----------
     name : str
-        A design registered in :mod:`pooler.designs` (the built-in ones: :data:`DESIGNS`).
+        A design registered in :mod:`pooler.planning.designs` (the built-in ones: :data:`DESIGNS`).
     ratio : float
         Allocation n2 / n1 for ``two-group`` and ``ancova`` (default 1).
     planned_r : float
@@ -125,8 +125,8 @@ class Design:
 
     @property
     def spec(self):
-        """This design's entry in the registry (:class:`pooler.designs.PlannedDesign`)."""
-        from .designs import get
+        """This design's entry in the registry (:class:`pooler.planning.designs.PlannedDesign`)."""
+        from pooler.planning.designs import get
         return get(self.name)
 
     @property

@@ -2,7 +2,7 @@
 
 The default rule (``adjuster="default"``; :func:`posterior_rule`): optimistic = the
 random-effects estimate; realistic = the posterior median of the mean effect given a positive
-effect from the Bayesian model average over publication-bias models (:mod:`pooler.bma`);
+effect from the Bayesian model average over publication-bias models (:mod:`pooler.evidence.bma`);
 pessimistic = its 15th percentile (chosen by calibration; README), never below the SESOI,
 never above the realistic effect.
 
@@ -33,10 +33,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._results import NotEstimable, ShowsAsTable, estimable, to_jsonable
-from .bias import adjuster_choices, planning_methods
-from .errors import OptionError
-from .planning import PlanningEffect
+from pooler._results import NotEstimable, ShowsAsTable, estimable, to_jsonable
+from pooler.evidence.bias import adjuster_choices, planning_methods
+from pooler.errors import OptionError
+from pooler.planning.sample_size import PlanningEffect
 
 MIN_K_SELECTION = 20
 
@@ -91,9 +91,9 @@ class Scenarios(ShowsAsTable):
     supported: bool
     verdict: str
     predictive: tuple[float, float] | NotEstimable
-    #: the model-averaged posterior (pooler.bma.ModelAverage) behind the default rule
+    #: the model-averaged posterior (pooler.evidence.bma.ModelAverage) behind the default rule
     posterior: object = None
-    #: realistic and pessimistic effects under the wider priors (pooler.bma.WIDE_PRIORS)
+    #: realistic and pessimistic effects under the wider priors (pooler.evidence.bma.WIDE_PRIORS)
     sensitivity: object = None
     #: (nodes, probabilities) of the model-averaged predictive distribution of a new
     #: study's true effect, on the literature's metric
@@ -106,7 +106,7 @@ class Scenarios(ShowsAsTable):
         rule: the credible interval of the mean effect given a positive effect (default
         level 0.95); otherwise the safeguard interval (default: the safeguard level)."""
         from scipy.special import ndtri
-        from ._results import Interval
+        from pooler._results import Interval
         if self.posterior is not None:
             level = 0.95 if level is None else level
             if self.posterior.p_positive <= 0:
@@ -125,7 +125,7 @@ class Scenarios(ShowsAsTable):
         model-average rule the model-averaged posterior predictive, tabulated
         (:func:`predictive_effect_density`); otherwise Normal(mean, sd²); None when there is
         none."""
-        from .power import EffectDensity
+        from pooler.planning.power import EffectDensity
         if self.posterior is not None:
             return predictive_effect_density(self.posterior)
         if isinstance(self.predictive, tuple):
@@ -199,7 +199,7 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
         ``default`` plans on the Bayesian model average (:func:`posterior_rule`);
         ``safeguard`` is the earlier rule above; ``median`` always uses the safeguard limit
         of the median of all the adjusted estimates; a method's ``adjuster`` name (see
-        :func:`pooler.bias.adjuster_choices`) plans on that adjuster alone.
+        :func:`pooler.evidence.bias.adjuster_choices`) plans on that adjuster alone.
     safeguard_level : float
         Two-sided level of the safeguard interval (Perugini et al. 2014 use 0.60).
     sesoi : float or None
@@ -207,17 +207,17 @@ def make_scenarios(pooled, bias, *, adjuster="default", safeguard_level=0.6,
     pessimistic_quantile : float
         Model-average rule: the quantile of the mean effect given a positive effect that is
         the pessimistic scenario.
-    priors : pooler.bma.Priors or None
+    priors : pooler.evidence.bma.Priors or None
         Model-average rule: the priors (default: the published defaults).
     sensitivity : bool
         Model-average rule: also report the realistic and pessimistic effects under
-        :data:`pooler.bma.WIDE_PRIORS` (the fit re-weighted to them,
-        :func:`pooler.bma.reweighted`).
+        :data:`pooler.evidence.bma.WIDE_PRIORS` (the fit re-weighted to them,
+        :func:`pooler.evidence.bma.reweighted`).
 
     Examples
     --------
     >>> from pooler import bias_suite, convert, demo_sheet_path, pool, read_sheet
-    >>> from pooler.scenarios import make_scenarios
+    >>> from pooler.planning.scenarios import make_scenarios
     >>> pooled = pool(convert(read_sheet(demo_sheet_path())))
     >>> sc = make_scenarios(pooled, bias_suite(pooled))
     >>> sc.optimistic.effect >= sc.realistic.effect >= sc.pessimistic.effect
@@ -344,7 +344,7 @@ def _reason(bias, key) -> str:
 def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
                    pessimistic_quantile=0.15, priors=None, sensitivity=True) -> Scenarios:
     """The default rule: realistic and pessimistic effects from the Bayesian model average
-    over publication-bias models (:mod:`pooler.bma`; Bartoš et al. 2023).
+    over publication-bias models (:mod:`pooler.evidence.bma`; Bartoš et al. 2023).
 
     realistic = the posterior median of the mean effect given a positive effect; its interval
     the credible interval; pessimistic = the ``pessimistic_quantile`` of the same posterior,
@@ -353,7 +353,7 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
     effect: the verdict says so and, with a SESOI, both scenarios plan on it.
     """
     from dataclasses import replace
-    from .bma import DEFAULT_PRIORS, model_average, posterior_scenarios, reweighted
+    from pooler.evidence.bma import DEFAULT_PRIORS, model_average, posterior_scenarios, reweighted
     metric = pooled.metric
     sym = "g" if metric == "g" else "z"
     k = pooled.k
@@ -419,8 +419,8 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
         verdict += " " + own
     sens = None
     if sensitivity:
-        # every scale of the priors in use doubled (the defaults give pooler.bma.WIDE_PRIORS),
-        # by re-weighting the same fit (no second fit; pooler.bma.reweighted)
+        # every scale of the priors in use doubled (the defaults give pooler.evidence.bma.WIDE_PRIORS),
+        # by re-weighting the same fit (no second fit; pooler.evidence.bma.reweighted)
         wide = reweighted(avg, replace(
             pr, effect_sd=2 * pr.effect_sd, tau_scale=2 * pr.tau_scale,
             pet_scale=2 * pr.pet_scale, peese_scale=2 * pr.peese_scale))
@@ -458,7 +458,7 @@ def assurance_over_table(nodes, probs, n, design="two-group", alpha=0.05,
     """Expected power over a tabulated predictive distribution (O'Hagan, Stevens & Campbell
     2005): Σ p_j power(θ_j, n), counting only significant results in the hypothesised
     direction; θ on the literature's metric (g, or Fisher z converted to r)."""
-    from .power import _design, power_at, to_design_effect
+    from pooler.planning.power import _design, power_at, to_design_effect
     des = _design(design)
     nodes = np.asarray(nodes, float)
     probs = np.asarray(probs, float)
@@ -473,14 +473,14 @@ def assurance_over_table(nodes, probs, n, design="two-group", alpha=0.05,
 
 def predictive_effect_density(avg):
     """The model-averaged posterior predictive of a new study's true effect as a
-    :class:`pooler.power.EffectDensity` (piecewise linear through the cell densities).
+    :class:`pooler.planning.power.EffectDensity` (piecewise linear through the cell densities).
 
     The posterior mass at exactly 0 (the models with neither an effect nor heterogeneity)
     cannot be a density; it is spread as a thin triangle just below 0 (between the last two
     nodes below 0), so P(effect > 0) - the assurance ceiling - stays exact and the power it
     adds is that of an effect within two grid cells below 0 (about alpha/2 at most).
     """
-    from .power import EffectDensity
+    from pooler.planning.power import EffectDensity
     x, f = avg.predictive_density()
     x, f = np.asarray(x, float), np.asarray(f, float)
     atom = float(avg.predictive_atom)
@@ -506,7 +506,7 @@ def predictive_effect_density(avg):
 # ------------------------------------------------------------------ the rule's settings
 
 def model_average_priors(**options):
-    """The :class:`pooler.bma.Priors` from the model-average options by their plain names
+    """The :class:`pooler.evidence.bma.Priors` from the model-average options by their plain names
     (``effect_prior_sd``, ``chance_of_no_bias``, ...; ``pooler.choices.MODEL_AVERAGE_OPTIONS``),
     each checked against its range; the names not given keep their defaults.
 
@@ -516,8 +516,8 @@ def model_average_priors(**options):
     0.2
     """
     from dataclasses import replace
-    from .bma import DEFAULT_PRIORS
-    from .choices import MODEL_AVERAGE_OPTIONS
+    from pooler.evidence.bma import DEFAULT_PRIORS
+    from pooler.choices import MODEL_AVERAGE_OPTIONS
     spec = {o.name: o for o in MODEL_AVERAGE_OPTIONS if o.prior_field}
     changes = {}
     for name, value in options.items():
@@ -544,8 +544,8 @@ def _describe_priors(pr) -> list[str]:
 def priors_note(priors, pessimistic_quantile=0.15) -> str:
     """One sentence naming the settings of the model-average rule that differ from the
     defaults (priors on the d scale), or "" when every one is the default."""
-    from .bma import DEFAULT_PRIORS
-    from .choices import MODEL_AVERAGE_DEFAULTS
+    from pooler.evidence.bma import DEFAULT_PRIORS
+    from pooler.choices import MODEL_AVERAGE_DEFAULTS
     mine, base = _describe_priors(priors), _describe_priors(DEFAULT_PRIORS)
     changed = [a for a, b in zip(mine, base) if a != b]
     if abs(pessimistic_quantile - MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"]) > 1e-12:
@@ -574,13 +574,13 @@ def priors_sentence(scen) -> str:
 
 
 def _back_to_d(pr):
-    """Undo :meth:`pooler.bma.Priors.on_metric` for Fisher z (to describe the priors on d)."""
+    """Undo :meth:`pooler.evidence.bma.Priors.on_metric` for Fisher z (to describe the priors on d)."""
     from dataclasses import replace
     return replace(pr, effect_sd=pr.effect_sd * 2, tau_scale=pr.tau_scale * 2,
                    peese_scale=pr.peese_scale / 2)
 
 
 def _pessimistic_quantile(scen) -> float:
-    from .choices import MODEL_AVERAGE_DEFAULTS
+    from pooler.choices import MODEL_AVERAGE_DEFAULTS
     q = getattr(scen, "pessimistic_quantile", None)
     return MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"] if q is None else q

@@ -1,12 +1,12 @@
 """The trade-off of the model-average rule: protection under selection against cost without it.
 
-The default planning rule (:func:`pooler.scenarios.posterior_rule`) has two levers: the prior
+The default planning rule (:func:`pooler.planning.scenarios.posterior_rule`) has two levers: the prior
 probability that the literature is free of publication bias (``p_no_bias``; ½ in Bartoš et
 al. 2023) and the quantile of the mean effect given a positive effect that is the
 pessimistic scenario (the realistic scenario is the median). Both act on the model average
-without a refit (:meth:`pooler.bma.ModelAverage.with_model_prior`), so one stress test
+without a refit (:meth:`pooler.evidence.bma.ModelAverage.with_model_prior`), so one stress test
 evaluates every point of a grid of rules from one fit per literature
-(:func:`pooler.simulate.tradeoff_points`).
+(:func:`pooler.planning.simulate.tradeoff_points`).
 
 For each point this module summarises a stress test the way the calibration goals are
 stated: per number of studies k, the median over cells of the median true power that the
@@ -27,8 +27,8 @@ from __future__ import annotations
 import statistics
 from dataclasses import dataclass
 
-from ._results import ShowsAsTable, to_jsonable
-from .errors import OptionError
+from pooler._results import ShowsAsTable, to_jsonable
+from pooler.errors import OptionError
 
 #: Calibration goals (the issue's): realistic median true power within this band without
 #: selection, with n at most REALISTIC_N_RATIO x the oracle n; realistic at least
@@ -124,14 +124,14 @@ def tradeoff_table(doc: dict, *, default=None) -> TradeOff:
 
     Examples
     --------
-    >>> from pooler.simulate import Cell, Shapes, stress_test
+    >>> from pooler.planning.simulate import Cell, Shapes, stress_test
     >>> res = stress_test([Cell(5, 0.4, 0.0, 1.0), Cell(5, 0.4, 0.0, 0.05)],
     ...                   Shapes.calibration(), reps=2, seed=1, workers=1)
     >>> t = tradeoff_table(res.to_dict())
     >>> t.ks, len(t.points) == len(res.cells[0].tradeoff)
     ((5,), True)
     """
-    from .choices import ANALYSIS_DEFAULTS
+    from pooler.choices import ANALYSIS_DEFAULTS
     cells = doc.get("cells") or []
     if not cells or any("tradeoff" not in c for c in cells):
         raise OptionError("this stress test has no trade-off grid (run it with this version "
@@ -167,7 +167,7 @@ def _fmt(xs, digits=2):
 
 def tradeoff_text(t: TradeOff) -> str:
     """The trade-off table as ``pooler stress --calibration`` prints it."""
-    from ._results import text_table
+    from pooler._results import text_table
     ks = " / ".join(map(str, t.ks))
     out = ["Trade-off of the model-average rule (every rule from the same fit per literature, "
            "re-weighted):",
@@ -192,7 +192,7 @@ def tradeoff_text(t: TradeOff) -> str:
                 f"{PESSIMISTIC_PROTECTION:.2f} under strong selection; no plan <= "
                 f"{100 * NO_PLAN_LIMIT:g}%."]
     c = choose_default(t)
-    out.append(f"The principle of pooler.tradeoff.choose_default picks prior P(no bias) = "
+    out.append(f"The principle of pooler.planning.tradeoff.choose_default picks prior P(no bias) = "
                f"{c.p_no_bias:g} and pessimistic quantile {c.pessimistic_quantile:g} on this "
                "grid: " + "; ".join(c.reasons) + ".")
     return "\n".join(out)
@@ -222,7 +222,7 @@ def tradeoff_plot(t: TradeOff):
     the goals as dotted lines and the defaults ringed."""
     from matplotlib.figure import Figure
     from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter
-    from .plots import BLUE, GREEN, GREY, ORANGE, PURPLE, VERMILION, WIDTH, _style
+    from pooler.output.plots import BLUE, GREEN, GREY, ORANGE, PURPLE, VERMILION, WIDTH, _style
     colours = [BLUE, ORANGE, GREEN, PURPLE, VERMILION]
     fig = Figure(figsize=(WIDTH, 2.2 * ((len(t.ks) + 1) // 2) + 0.6), layout="constrained")
     axes = fig.subplots(max(1, (len(t.ks) + 1) // 2), min(2, len(t.ks)), squeeze=False,
@@ -307,7 +307,7 @@ def choose_default(t: TradeOff, *, current=None) -> Choice:
 
     The whole grid is judged on medians over cells, never on one cell.
     """
-    from .choices import ANALYSIS_DEFAULTS
+    from pooler.choices import ANALYSIS_DEFAULTS
     if current is None:
         current = (ANALYSIS_DEFAULTS["chance_of_no_bias"],
                    ANALYSIS_DEFAULTS["pessimistic_quantile"])

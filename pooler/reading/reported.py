@@ -4,7 +4,7 @@ The sheet column ``reported`` takes a result string pasted from a paper, for exa
 ``t(58) = 2.41, p = .019`` or ``OR = 2.30, 95% CI [1.10, 4.80]``. :func:`parse_reported`
 turns it into the sheet's own columns (``stat``, ``value``, ``df``, ``df1``, ``n``,
 ``n1``, ``n2``, ``ci_low``, ``ci_high``, means and SDs) plus what the converters do not
-need but the consistency check (:mod:`pooler.consistency`) does: the printed p, the
+need but the consistency check (:mod:`pooler.reading.consistency`) does: the printed p, the
 number of decimals of every number, and the χ² degrees of freedom. Nothing is guessed: a
 string with a part that cannot be read, or with too little to convert, raises an
 :class:`~pooler.errors.InputError` saying what is missing.
@@ -14,7 +14,7 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass, field
 
-from .errors import InputError
+from pooler.errors import InputError
 
 #: The sheet column that holds a pasted result string.
 COLUMN = "reported"

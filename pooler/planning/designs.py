@@ -4,24 +4,24 @@ A planned design (:class:`PlannedDesign`) holds its power function (noncentralit
 its test), the normal-approximation start of the sample-size search, how n per group (or
 per cell) becomes the total and back, the smallest n, the units and effect labels, the
 metric it plans on (d or r), how a planning effect reaches its own metric, its description
-(saying which figures are exact and which approximate) and the :class:`pooler.power.Design`
-options it reads. :class:`pooler.power.Design`, :mod:`pooler.planning`, the reports and the
+(saying which figures are exact and which approximate) and the :class:`pooler.planning.power.Design`
+options it reads. :class:`pooler.planning.power.Design`, :mod:`pooler.planning.sample_size`, the reports and the
 command line all read from here; nothing else branches on a design's name.
 
 The simulated designs of ``pooler paths`` and ``pooler run SHEET --design <simulated>``
-(:mod:`pooler.simdesign`) keep their own engine; :func:`simulated` lists them through the
+(:mod:`pooler.planning.simdesign`) keep their own engine; :func:`simulated` lists them through the
 same interface (kind ``"simulated"``; :func:`get_simulated` finds one), so that
 :func:`catalogue` shows every design pooler can plan, and the command line's light list
-(:data:`pooler.design_choices.SIMULATED_DESIGNS`) is checked against it.
+(:data:`pooler.planning.design_choices.SIMULATED_DESIGNS`) is checked against it.
 
 To add a planned design, write its section below (or in a module of its own that calls
-:func:`register`), add its name and options to :mod:`pooler.design_choices` (the light list
+:func:`register`), add its name and options to :mod:`pooler.planning.design_choices` (the light list
 the command line reads), and test it; a design with a new option also needs a field on
-:class:`pooler.power.Design` and a command-line option (see DEVELOPERS.md).
+:class:`pooler.planning.power.Design` and a command-line option (see DEVELOPERS.md).
 
 References
 ----------
-See :mod:`pooler.power` (Cohen 1988, 1992; Borm, Fransen & Lemmens 2007; Morris & DeShon
+See :mod:`pooler.planning.power` (Cohen 1988, 1992; Borm, Fransen & Lemmens 2007; Morris & DeShon
 2002; Gatsonis & Sampson 1989; Hotelling 1953; Guenther 1981).
 """
 from __future__ import annotations
@@ -33,8 +33,8 @@ from typing import Callable
 import numpy as np
 from scipy import special as sp
 
-from .errors import OptionError
-from .power import _f_power, _r_exact_power, _t_power
+from pooler.errors import OptionError
+from pooler.planning.power import _f_power, _r_exact_power, _t_power
 
 
 def _identity(des, x):
@@ -75,10 +75,10 @@ class PlannedDesign:
     unit : {"group", "cell"} or None
         What n counts: one group (one cell), or, with None, the whole sample.
     parameters : tuple of str
-        The :class:`pooler.power.Design` options it reads.
+        The :class:`pooler.planning.power.Design` options it reads.
     power : callable
         ``power(des, effect, n, alpha, alternative, upper_only)`` on float arrays: the power
-        of its test with the effect on its own metric (see :func:`pooler.power.power_at`).
+        of its test with the effect on its own metric (see :func:`pooler.planning.power.power_at`).
     normal_start : callable
         ``normal_start(des, effect, z, za)``, the normal-approximation n that brackets the
         exact search, with z = (z_α + z_power)² and za = z_α.
@@ -125,7 +125,7 @@ class PlannedDesign:
 @dataclass(frozen=True)
 class SimulatedDesign:
     """A design whose power is found by simulation (``pooler paths``); see
-    :mod:`pooler.simdesign`, which builds and runs it."""
+    :mod:`pooler.planning.simdesign`, which builds and runs it."""
 
     name: str
     description: str
@@ -170,9 +170,9 @@ def get(name: str) -> PlannedDesign:
 
 
 def simulated() -> tuple:
-    """The simulated designs of :mod:`pooler.simdesign`, as registry entries (kind
+    """The simulated designs of :mod:`pooler.planning.simdesign`, as registry entries (kind
     ``"simulated"``), each described by the first paragraph of its class docstring."""
-    from .simdesign import DESIGNS
+    from pooler.planning.simdesign import DESIGNS
     out = []
     for name, cls in DESIGNS.items():
         first = (cls.__doc__ or "").strip().split("\n\n")[0]
@@ -319,7 +319,7 @@ def _ancova_power(des, e, n, alpha, alternative, upper_only):
         scale = np.sqrt(n * n2 / (n + n2))
         return _t_power(e * scale / math.sqrt(1 - des.covariate_r ** 2), n + n2 - 3,
                         alpha, alternative, upper_only)
-    from ._random_predictors import ancova_power
+    from pooler.planning._random_predictors import ancova_power
     return ancova_power(e, n, n2, des.covariate_r, alpha, alternative, upper_only)
 
 
@@ -366,7 +366,7 @@ def _increment_power(des, e, n, alpha, alternative, upper_only):
     if alternative == "greater" and u > 1:
         raise OptionError("a one-tailed test is defined only when one predictor is added")
     if not des.fixed_covariates:   # normal predictors (Gatsonis & Sampson 1989)
-        from ._random_predictors import increment_power
+        from pooler.planning._random_predictors import increment_power
         power = increment_power(e, n, u, p, alpha, alternative, upper_only)
         if upper_only and u > 1:
             return np.where(np.asarray(e) > 0, power, 0.0)

@@ -4,7 +4,7 @@
 effects given by hand), the smallest n reaching each target power, adds the n for a
 target assurance when a predictive distribution is known, and, for a fixed feasible N,
 the power under each scenario and the smallest detectable effect. The power functions
-themselves are in :mod:`pooler.power`; like it, this module needs only numpy and
+themselves are in :mod:`pooler.planning.power`; like it, this module needs only numpy and
 ``scipy.special`` (plus ``scipy.optimize`` for a fixed N).
 """
 from __future__ import annotations
@@ -14,11 +14,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._results import NotEstimable, ShowsAsTable, to_jsonable
-from .errors import OptionError
-from .power import (AssuranceResult, Design, EffectDensity, _design, detectable_effect,
-                    from_design_effect, n_for_assurance, n_for_power, power_at,
-                    to_design_effect)
+from pooler._results import NotEstimable, ShowsAsTable, to_jsonable
+from pooler.errors import OptionError
+from pooler.planning.power import (AssuranceResult, Design, EffectDensity, _design,
+                                   detectable_effect, from_design_effect, n_for_assurance,
+                                   n_for_power, power_at, to_design_effect)
 
 
 @dataclass(frozen=True)
@@ -207,8 +207,8 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
     predictive : (mean, sd), EffectDensity or None
         Predictive distribution of the new study's true effect, on the literature's metric
         (Fisher z for r), for assurance: a Normal(mean, sd²), or any density (e.g. one
-        tabulated on a grid, :meth:`pooler.power.EffectDensity.from_grid`). Assurance is
-        integrated adaptively to 1e-9 (:func:`pooler.power.assurance_over`).
+        tabulated on a grid, :meth:`pooler.planning.power.EffectDensity.from_grid`). Assurance is
+        integrated adaptively to 1e-9 (:func:`pooler.planning.power.assurance_over`).
     assurance_targets : sequence of float or None
         Target assurances (default: the target powers).
     n_total : int or None
@@ -290,7 +290,7 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
 
 def design_metric(design) -> str:
     """The metric a design plans on when the user does not choose one: r for the
-    correlational designs, d otherwise (the registry's ``metric``, :mod:`pooler.designs`)."""
+    correlational designs, d otherwise (the registry's ``metric``, :mod:`pooler.planning.designs`)."""
     return _design(design).metric
 
 
@@ -298,7 +298,7 @@ def conversion_note(metric: str, design) -> str | None:
     """The sentence saying how planning effects on ``metric`` reach the design's test, when
     they must be converted (a d for a correlational design, an r for a group design); None
     when no conversion is made. The conversions are those of
-    :func:`pooler.power.to_design_effect` (Borenstein et al. 2009, eqs. 7.5 and 7.7 with
+    :func:`pooler.planning.power.to_design_effect` (Borenstein et al. 2009, eqs. 7.5 and 7.7 with
     a = 4, i.e. two equal groups).
 
     Examples
@@ -324,7 +324,7 @@ def conversion_note(metric: str, design) -> str | None:
 
 def per_group(n_total: int, design: Design) -> int:
     """n per group (per cell) that a total N allows, rounding down (the registry's
-    ``per_unit``, :mod:`pooler.designs`)."""
+    ``per_unit``, :mod:`pooler.planning.designs`)."""
     return _design(design).per_unit(n_total)
 
 

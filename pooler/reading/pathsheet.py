@@ -1,7 +1,7 @@
 """Path literatures: pool each path of a mediation or moderation model from its own rows of
 one sheet.
 
-A path sheet is an ordinary sheet (see :mod:`pooler.sheet`) with a ``path`` column naming the
+A path sheet is an ordinary sheet (see :mod:`pooler.reading.sheet`) with a ``path`` column naming the
 pair of variables each row's result links (``X-M1``, ``M1-Y``, ``X-Y``, ``M1-M2``; simple
 mediation: ``X-M``, ``M-Y``, ``X-Y``; moderation: ``X-Y``, ``Z-Y``, ``X-Z`` and the
 interaction ``XZ-Y`` (also written ``X*Z-Y``), or the simple slopes ``X-Y at high Z`` and
@@ -9,7 +9,7 @@ interaction ``XZ-Y`` (also written ``X*Z-Y``), or the simple slopes ``X-Y at hig
 scenarios), so each path gets its own optimistic / realistic / pessimistic correlation. Pairs
 without a literature are given as fixed correlations. One correlation matrix per scenario is
 checked (positive definite), and the standardized paths it implies
-(:func:`pooler.simdesign.design_from_correlations`, as in meta-analytic path analysis,
+(:func:`pooler.planning.simdesign.design_from_correlations`, as in meta-analytic path analysis,
 Viswesvaran & Ones 1995) define the design that scenario is planned on.
 
 References
@@ -26,8 +26,8 @@ import math
 import re
 from dataclasses import dataclass, replace
 
-from ._results import Interval, estimable, to_jsonable
-from .errors import InputError, OptionError
+from pooler._results import Interval, estimable, to_jsonable
+from pooler.errors import InputError, OptionError
 
 #: Designs a path sheet can feed (they are defined by a correlation matrix).
 SHEET_DESIGNS = ("simple-mediation", "parallel-mediation", "serial-mediation", "moderation")
@@ -98,7 +98,7 @@ class PathSheet:
     matrices : dict
         Scenario -> correlation matrix (list of lists, in ``variables`` order).
     designs : dict
-        Scenario -> the design (e.g. :class:`pooler.simdesign.ParallelMediation`).
+        Scenario -> the design (e.g. :class:`pooler.planning.simdesign.ParallelMediation`).
     notes : tuple of str
     """
 
@@ -233,10 +233,10 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
 
     Moderation takes either the pairs ``X-Y``, ``Z-Y``, ``XZ-Y`` (the interaction, read as
     the partial correlation of the product term given X and Z) and ``X-Z`` (0 when it has
-    no rows and is not given), planned with :func:`pooler.simdesign.moderation_from_correlations`;
+    no rows and is not given), planned with :func:`pooler.planning.simdesign.moderation_from_correlations`;
     or the simple slopes ``X-Y at high Z`` / ``X-Y at low Z`` (X-Y correlations within two
     equal groups) and ``Z-Y``, planned with
-    :func:`pooler.simdesign.moderation_from_group_correlations`.
+    :func:`pooler.planning.simdesign.moderation_from_group_correlations`.
 
     Returns
     -------
@@ -249,9 +249,9 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
         design's variables, a pair with no rows and no option, a pair given twice, or
         correlations that cannot occur together (naming the pairs).
     """
-    from .pipeline import analyse
-    from .sheet import column_label, read_sheet
-    from .simdesign import design_from_correlations
+    from pooler.pipeline import analyse
+    from pooler.reading.sheet import column_label, read_sheet
+    from pooler.planning.simdesign import design_from_correlations
     # validation
     if design_name not in SHEET_DESIGNS:
         raise OptionError(f"a path sheet feeds the designs {', '.join(SHEET_DESIGNS)}, "
@@ -436,7 +436,7 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
                          "its variables if a weaker negative path is the cautious case")
 
     if problems:
-        from .errors import InputErrors
+        from pooler.errors import InputErrors
         raise InputErrors(sorted(problems, key=lambda e: (e.row is None, e.row or 0)))
 
     matrices, designs = {}, {}
@@ -472,7 +472,8 @@ def pool_paths(sheet_path, design_name: str, given: dict | None = None, *, optio
 
 
 def _moderation_design(values: dict, slopes: bool, binary: bool, scenario: str, file):
-    from .simdesign import moderation_from_correlations, moderation_from_group_correlations
+    from pooler.planning.simdesign import (moderation_from_correlations,
+                                           moderation_from_group_correlations)
     if slopes:
         return moderation_from_group_correlations(values[SLOPES[0]], values[SLOPES[1]],
                                                   values["Z-Y"])
@@ -488,7 +489,7 @@ def moderation_matrix(design):
 
     Examples
     --------
-    >>> from pooler.simdesign import Moderation
+    >>> from pooler.planning.simdesign import Moderation
     >>> moderation_matrix(Moderation(0.3, 0.2, 0.1)).round(3)[3].tolist()
     [0.3, 0.2, 0.1, 1.0]
     """

@@ -1,6 +1,6 @@
 """Tables, a methods paragraph, power-curve figures and files for simulated path designs.
 
-The command ``pooler paths`` prints these; :mod:`pooler.simdesign` computes them. matplotlib
+The command ``pooler paths`` prints these; :mod:`pooler.planning.simdesign` computes them. matplotlib
 is imported inside :func:`curve_figure` only.
 """
 from __future__ import annotations
@@ -8,7 +8,7 @@ from __future__ import annotations
 import io
 import json
 
-from ._results import estimable, text_table, to_jsonable
+from pooler._results import estimable, text_table, to_jsonable
 
 SCHEMA = "pooler.paths/1"
 
@@ -46,7 +46,7 @@ def _short_of_goal(solutions) -> str:
 
 
 def plan_text(results, test_note: str = "") -> str:
-    """The planning table of one or more :class:`~pooler.simdesign.SampleSizeResult`.
+    """The planning table of one or more :class:`~pooler.planning.simdesign.SampleSizeResult`.
 
     One row per target and power goal: n, its 95 % Monte Carlo uncertainty interval and the
     power confirmed at n with its Monte Carlo SE.
@@ -74,7 +74,7 @@ def plan_text(results, test_note: str = "") -> str:
 
 def power_text(res) -> str:
     """Power of every path and indirect effect at one n
-    (:class:`~pooler.simdesign.PowerResult`)."""
+    (:class:`~pooler.planning.simdesign.PowerResult`)."""
     # coverage exists only for tests by an interval (Monte Carlo CI, bootstrap): the column
     # is shown only when some row has one
     cover = any(e.coverage is not None for e in res.estimates)
@@ -174,7 +174,7 @@ def curve_figure(result, *, ax=None):
 def render_files(results, options: dict, methods: str, fmt_: str = "png") -> dict:
     """Every output file as name -> bytes: results.json, report.md and one power-curve
     figure per scenario."""
-    from .plots import save
+    from pooler.output.plots import save
     files = {}
     doc = {"schema": SCHEMA, "scenarios": [r.to_dict() for r in results],
            "options": options, "methods": methods}
@@ -198,14 +198,14 @@ def render_files(results, options: dict, methods: str, fmt_: str = "png") -> dic
 
 
 # --------------------------------------------------------------------------------------------
-# Paths pooled from a sheet (pooler.pathsheet)
+# Paths pooled from a sheet (pooler.reading.pathsheet)
 # --------------------------------------------------------------------------------------------
 
 def paths_sheet_text(ps) -> str:
-    """Per path of a :class:`~pooler.pathsheet.PathSheet`: where it comes from, k, the pooled
+    """Per path of a :class:`~pooler.reading.pathsheet.PathSheet`: where it comes from, k, the pooled
     correlation with its 95 % CI, and the optimistic / realistic / pessimistic correlations;
     then the standardized paths each scenario's matrix implies."""
-    from .pathsheet import SCENARIOS
+    from pooler.reading.pathsheet import SCENARIOS
     rows = []
     for p in ps.paths:
         src = f"rows {_rows(p.rows)}" if p.source == "sheet" else p.option
@@ -267,7 +267,7 @@ def sheet_methods_paragraph(ps) -> str:
 
 
 def _moderation_methods(ps) -> str:
-    from .pathsheet import SLOPES
+    from pooler.reading.pathsheet import SLOPES
     if any(p.path in SLOPES for p in ps.paths):
         return ("The simple slopes were read as the correlations of X and Y within two equal "
                 "groups of the moderator, X unrelated to the groups; with Var(Y) = 1 each "
@@ -390,7 +390,7 @@ def _moderation_diagram(ps, ax, arrow_patch, box_patch):
         text(0.3, 0.1, "X-Y: " + _path_label(vals["X-Y"]))
         text(0.62, 0.42, "XZ-Y (interaction, partial r):\n" + _path_label(vals["XZ-Y"]))
     else:
-        from .pathsheet import SLOPES
+        from pooler.reading.pathsheet import SLOPES
         text(0.3, 0.1, "X-Y at high Z: " + _path_label(vals[SLOPES[0]]))
         text(0.7, 0.1, "X-Y at low Z: " + _path_label(vals[SLOPES[1]]))
         text(0.62, 0.42, "Z: two groups")
@@ -406,7 +406,7 @@ def render_sheet_files(results, ps, options: dict, methods: str, fmt_: str = "pn
     """:func:`render_files` plus what a path sheet adds: every path's pooling in
     results.json, the per-path table and a pooling paragraph in report.md, and the path
     diagram."""
-    from .plots import save
+    from pooler.output.plots import save
     files = render_files(results, options, methods, fmt_)
     doc = json.loads(files["results.json"])
     doc["paths"] = ps.to_dict()

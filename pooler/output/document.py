@@ -1,18 +1,19 @@
 """The whole run as one document of blocks: the written report (``report.md``,
 ``report.html``) and the terminal summary of ``pooler run`` / ``pooler demo``.
 
-The sections come from :mod:`pooler.report` (each written once from the result objects);
+The sections come from :mod:`pooler.output.report` (each written once from the result objects);
 this module adds the parts only a whole run has (the decision, key numbers, inputs, methods
 paragraph, reproducibility) and chooses which blocks each output shows: the report shows
 every block, the terminal summary the ones not marked ``detail``. The renderers are in
-:mod:`pooler.blocks`. No statistics are computed here.
+:mod:`pooler.output.blocks`. No statistics are computed here.
 """
 from __future__ import annotations
 
-from ._results import estimable, fmt, plural
-from .blocks import Block, brief, md_escape, to_html, to_markdown  # noqa: F401 (outputs.py)
-from .report import (bias_blocks, conversion_blocks, interval_text, plan_blocks,
-                     pooled_blocks, scenario_blocks, sizes_and_total)
+from pooler._results import estimable, fmt, plural
+from pooler.output.blocks import (Block, brief, md_escape, to_html,
+                                  to_markdown  # noqa: F401 (outputs.py))
+from pooler.output.report import (bias_blocks, conversion_blocks, interval_text, plan_blocks,
+                                  pooled_blocks, scenario_blocks, sizes_and_total)
 
 #: The caution, first as the two sentences every output shows, then the rest (report only).
 CAUTION = (
@@ -33,7 +34,7 @@ CAUTION = (
 
 def _leans_null(bf) -> bool:
     """The data favour no effect (inclusion Bayes factor below 1), but not strongly enough
-    for the refusal rule (pooler.bma.NULL_BF)."""
+    for the refusal rule (pooler.evidence.bma.NULL_BF)."""
     return isinstance(bf, float) and bf < 1.0
 
 
@@ -42,7 +43,7 @@ def decision_blocks(run) -> list[Block]:
     verdict in one sentence; for each scenario the planning effect and the whole people to
     recruit (per group and in total, after attrition) at the first target power; and what a
     feasible N buys when that is too many. Written once, rendered by every output."""
-    from .planning import recruit_sizes
+    from pooler.planning.sample_size import recruit_sizes
     a, plan = run.analysis, run.plan
     sc, des = a.scenarios, plan.design
     lab, first = plan.effect_label, plan.powers[0]
@@ -236,7 +237,7 @@ def settings_in_words(run) -> list[str]:
     """The settings the numbers depend on, in words (not Python values)."""
     a, plan = run.analysis, run.plan
     pooled, sc = a.pooled, a.scenarios
-    from .pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
+    from pooler.evidence.pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
     out = [f"design: {plan.design.describe()}",
            f"test: {'two' if plan.tails == 2 else 'one'}-tailed, alpha = {plan.alpha:g}; "
            "target power " + ", ".join(f"{100 * p:g}%" for p in plan.powers),
@@ -276,7 +277,7 @@ def key_numbers(run) -> list[tuple[str, str]]:
 def _power_basis(design) -> str:
     """How the planning power was computed, in words: the Fisher z test and covariates held
     fixed are approximations; the design description says which covariate model was used.
-    Each design's wording is in its registry entry (:mod:`pooler.designs`)."""
+    Each design's wording is in its registry entry (:mod:`pooler.planning.designs`)."""
     return design.power_basis()
 
 
@@ -284,7 +285,7 @@ def methods_paragraph(run) -> str:
     """A methods-section paragraph in our own words, every number filled in."""
     a, plan = run.analysis, run.plan
     eff, pooled, bias, sc = a.effects, a.pooled, a.bias, a.scenarios
-    from .pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
+    from pooler.evidence.pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
     metric = "Hedges' g" if pooled.metric == "g" else "Fisher's z-transformed correlations"
     sym = "g" if pooled.metric == "g" else "z"
     txt = [f"To justify the sample size we meta-analysed "
@@ -383,7 +384,7 @@ def _posterior_methods(sc, post, lab, eff_r, eff_p, eff_o) -> str:
     bf = post.inclusion_bf["effect"]
     bf_txt = f"{bf:.2f}" if isinstance(bf, float) else "beyond the computable range"
     odds = f"P(effect > 0) = {post.p_positive:.2f}; inclusion Bayes factor for an effect {bf_txt}"
-    from .scenarios import priors_sentence
+    from pooler.planning.scenarios import priors_sentence
     frequentist = (priors_sentence(sc) + " The frequentist adjustments above are reported "
                    "beside it as sensitivity analyses.").lstrip()
     k = post.k

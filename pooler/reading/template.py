@@ -4,8 +4,8 @@ from __future__ import annotations
 import csv
 from pathlib import Path
 
-from .errors import OptionError
-from .sheet import COLUMN_GUIDE, GUIDE_SHEET
+from pooler.errors import OptionError
+from pooler.reading.sheet import COLUMN_GUIDE, GUIDE_SHEET
 
 #: Column order of the template.
 TEMPLATE_COLUMNS = ("study", "sample", "stat", "reported", "trust", "value", "n1", "n2", "n", "df", "df1",

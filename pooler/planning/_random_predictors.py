@@ -121,7 +121,7 @@ def ancova_power(d, n1, n2, covariate_r, alpha, alternative="two-sided", upper_o
     >>> round(float(ancova_power(0.4, 64, 64, 0.6, 0.05)), 4)
     0.7983
     """
-    from .power import _t_power
+    from pooler.planning.power import _t_power
     z, w = _normal_scores()
     d, n1, n2, alpha = np.broadcast_arrays(*(np.asarray(x, float) for x in (d, n1, n2, alpha)))
     total = n1 + n2
@@ -164,7 +164,7 @@ def increment_power(f2, n, added, total, alpha, alternative="two-sided", upper_o
     >>> round(float(increment_power(0.25**2 / (1 - 0.25**2), 120, 1, 8, 0.05)), 3)
     0.768
     """
-    from .power import _f_power, _t_power
+    from pooler.planning.power import _f_power, _t_power
     z, w = _normal_scores()
     f2, n, alpha = np.broadcast_arrays(*(np.asarray(x, float) for x in (f2, n, alpha)))
     df2 = n - total - 1

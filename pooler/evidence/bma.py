@@ -83,8 +83,8 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from ._results import Interval, NotEstimable, ShowsAsTable, to_jsonable
-from .errors import InputError, OptionError
+from pooler._results import Interval, NotEstimable, ShowsAsTable, to_jsonable
+from pooler.errors import InputError, OptionError
 
 Z975 = 1.959963984540054
 _LOG2PI = math.log(2 * math.pi)
@@ -835,7 +835,7 @@ class ModelAverage(ShowsAsTable):
         missing = [key for key, p in weight.items() if p > 0 and key not in fitted]
         if missing:
             raise OptionError("these priors give weight to a model that was not fitted ("
-                              f"{missing[0][0]}); fit again with pooler.bma.model_average")
+                              f"{missing[0][0]}); fit again with pooler.evidence.bma.model_average")
         fits = [(m.bias, m.effect, m.heterogeneity, weight.get((m.bias, m.effect,
                                                                m.heterogeneity), 0.0), m.grid)
                 for m in self.models]
@@ -954,7 +954,7 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
     if metric not in ("g", "d", "z"):
         raise OptionError(f"`metric` must be 'g', 'd' or 'z', not {metric!r}")
     if not isinstance(priors, Priors):
-        raise OptionError("`priors` must be a pooler.bma.Priors")
+        raise OptionError("`priors` must be a pooler.evidence.bma.Priors")
     for name in ("p_effect", "p_heterogeneity", "p_no_bias"):
         val = getattr(priors, name)
         if not 0 <= val <= 1:
@@ -1089,9 +1089,9 @@ def reweighted(avg: ModelAverage, priors: Priors, *, level: float = 0.95) -> Mod
     """
     # validation
     if not isinstance(avg, ModelAverage):
-        raise OptionError("`avg` must be a pooler.bma.ModelAverage")
+        raise OptionError("`avg` must be a pooler.evidence.bma.ModelAverage")
     if not isinstance(priors, Priors):
-        raise OptionError("`priors` must be a pooler.bma.Priors")
+        raise OptionError("`priors` must be a pooler.evidence.bma.Priors")
     if not 0 < level < 1:
         raise OptionError(f"`level` must lie in (0, 1), not {level!r}")
 
@@ -1281,7 +1281,7 @@ def posterior_scenarios(avg: ModelAverage, *, pessimistic_quantile: float = 0.15
     """
     # validation
     if not isinstance(avg, ModelAverage):
-        raise OptionError("`avg` must be a pooler.bma.ModelAverage")
+        raise OptionError("`avg` must be a pooler.evidence.bma.ModelAverage")
     if not 0 < pessimistic_quantile <= 0.5:
         raise OptionError("`pessimistic_quantile` must lie in (0, 0.5], not "
                           f"{pessimistic_quantile!r}")

@@ -28,9 +28,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._results import Interval, NotEstimable, ShowsAsTable, estimable, to_jsonable
-from .choices import ESTIMATORS, INTERVALS
-from .errors import OptionError
+from pooler._results import Interval, NotEstimable, ShowsAsTable, estimable, to_jsonable
+from pooler.choices import ESTIMATORS, INTERVALS
+from pooler.errors import OptionError
 ESTIMATOR_NAMES = {"reml": "restricted maximum likelihood (REML)", "ml": "maximum likelihood",
                    "pm": "Paule-Mandel", "dl": "DerSimonian-Laird"}
 INTERVAL_NAMES = {"hksj": "Hartung-Knapp-Sidik-Jonkman",
@@ -683,7 +683,7 @@ class PooledResult(ShowsAsTable):
         Published against unpublished studies (the ``published`` column), as separate
         random-effects estimates with the Q-between test: a sensitivity analysis for
         publication bias (Borenstein et al. 2009, ch. 30; None without the column).
-    studies : tuple of pooler.effects.Unit
+    studies : tuple of pooler.evidence.effects.Unit
         The pooled studies themselves (effect, variance, n per group, design, within-r,
         sheet rows), so later stages need nothing but this result.
     """
@@ -780,7 +780,7 @@ def _r_scale(res: PooledResult) -> dict:
 
 def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
          influence=True) -> PooledResult:
-    """Pool the independent units of an :class:`pooler.effects.Effects`.
+    """Pool the independent units of an :class:`pooler.evidence.effects.Effects`.
 
     Parameters
     ----------
@@ -803,7 +803,7 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
     Examples
     --------
     >>> from pooler import read_sheet, convert, demo_sheet_path
-    >>> from pooler.pooling import pool
+    >>> from pooler.evidence.pooling import pool
     >>> res = pool(convert(read_sheet(demo_sheet_path())))
     >>> res.k
     24
@@ -814,7 +814,7 @@ def pool(effects, estimator="reml", interval="hksj", level=0.95, *,
 
 def pool_studies(studies, metric, estimator="reml", interval="hksj", level=0.95, *,
                  influence=True, file=None) -> PooledResult:
-    """Pool a sequence of :class:`pooler.effects.Unit` on ``metric`` ("g" or "z"): what
+    """Pool a sequence of :class:`pooler.evidence.effects.Unit` on ``metric`` ("g" or "z"): what
     :func:`pool` does once it has the units of an ``Effects`` (the stress test calls it on
     simulated studies)."""
     from scipy import special
@@ -828,7 +828,7 @@ def pool_studies(studies, metric, estimator="reml", interval="hksj", level=0.95,
     units = tuple(studies)
     k = len(units)
     if k == 0:
-        from .errors import InputError
+        from pooler.errors import InputError
         raise InputError("no rows are left to pool (every row is excluded); remove an "
                          "'exclude' mark or add studies", file=file)
     y = np.array([u.effect for u in units])

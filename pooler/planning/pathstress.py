@@ -1,5 +1,5 @@
 """Stress check of planning from a path sheet: literatures like the user's, simulated from
-known true correlations, go through the same sheet route (:func:`pooler.pathsheet.pool_paths`:
+known true correlations, go through the same sheet route (:func:`pooler.reading.pathsheet.pool_paths`:
 each pair pooled, the model average's scenarios, one design per scenario), and each
 scenario's planned effect is compared with the true one.
 
@@ -26,8 +26,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._results import text_table, to_jsonable
-from .errors import InputError, OptionError
+from pooler._results import text_table, to_jsonable
+from pooler.errors import InputError, OptionError
 
 #: Literatures per work unit.
 CHUNK = 4
@@ -73,8 +73,8 @@ def _stress_chunk(args) -> list:
     """One work unit: ``count`` literatures; per literature and scenario the planned effect
     of every target, or None when the sheet route gives no plan (the reason kept)."""
     import pandas as pd
-    from ._threads import one_blas_thread
-    from .pathsheet import pool_paths
+    from pooler._threads import one_blas_thread
+    from pooler.reading.pathsheet import pool_paths
     spec, selection, count, key = args
     rng = np.random.default_rng(np.random.SeedSequence(key[0], spawn_key=key[1:]))
     out = []
@@ -167,20 +167,20 @@ def stress_paths(ps, *, literatures: int = 40, selection=(1.0, 0.2), seed: int =
 
     Parameters
     ----------
-    ps : pooler.pathsheet.PathSheet
+    ps : pooler.reading.pathsheet.PathSheet
         The user's pooled paths: its realistic correlations are the truth, its studies' sizes
         and each pair's between-study SD the shape of the simulated literatures.
     literatures : int
     selection : sequence of float in (0, 1]
     seed, workers, scheduler, progress
-        As for :func:`pooler.simdesign.simulate_power` (local processes, or a dask
+        As for :func:`pooler.planning.simdesign.simulate_power` (local processes, or a dask
         scheduler address / Client).
 
     Returns
     -------
     PathStressResult
     """
-    from .simdesign import _Runner
+    from pooler.planning.simdesign import _Runner
     # validation
     if not isinstance(literatures, int) or literatures < 1:
         raise OptionError(f"`literatures` must be a positive whole number, not {literatures!r}")

@@ -34,9 +34,9 @@ from types import MappingProxyType
 
 import numpy as np
 
-from ._results import (Interval, NotEstimable, ShowsAsTable, estimable, p_text, plural,
-                       to_jsonable)
-from .pooling import random_effects
+from pooler._results import (Interval, NotEstimable, ShowsAsTable, estimable, p_text, plural,
+                             to_jsonable)
+from pooler.evidence.pooling import random_effects
 
 Z975 = 1.959963984540054
 MIN_PER_INTERVAL = 3  # studies needed on each side of the cutpoint for the selection model
@@ -725,7 +725,7 @@ def register(method: BiasMethod) -> BiasMethod:
     --------
     An invented toy method (not a published one) that can set the planning effect:
 
-    >>> from pooler.bias import BiasMethod, adjuster_choices, register, unregister
+    >>> from pooler.evidence.bias import BiasMethod, adjuster_choices, register, unregister
     >>> toy = BiasMethod("toy", "toy", lambda d: NotEstimable("a toy"), "nobody",
     ...                  adjuster="toy-choice", plan_order=99)
     >>> _ = register(toy)
@@ -899,7 +899,7 @@ def bias_suite(pooled, tau2_estimator=None, interval=None) -> BiasResult:
     Examples
     --------
     >>> from pooler import read_sheet, convert, pool, demo_sheet_path
-    >>> from pooler.bias import bias_suite
+    >>> from pooler.evidence.bias import bias_suite
     >>> b = bias_suite(pool(convert(read_sheet(demo_sheet_path()))))
     >>> list(b.adjusted())
     ['selection_3psm', 'pet_peese', 'trim_and_fill', 'waap_wls']

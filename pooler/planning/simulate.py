@@ -3,7 +3,7 @@
 For each simulated literature the real pipeline runs (conversion-free: effects and variances
 directly): random-effects pooling, the bias suite, the planning scenarios; then the n each
 scenario recommends at the target power, and the *true* power of that n at the true mean
-effect δ (exact, from :mod:`pooler.power`). This measures, for a literature shaped like the
+effect δ (exact, from :mod:`pooler.planning.power`). This measures, for a literature shaped like the
 user's, how often planning on each scenario would really reach its power.
 
 Studies are simulated from their exact sampling distribution: t = (Z + λ) / √(χ²_df / df)
@@ -22,17 +22,17 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ._results import estimable, to_jsonable
-from ._threads import single_threaded
-from .choices import MODEL_AVERAGE_DEFAULTS
-from .errors import OptionError
+from pooler._results import estimable, to_jsonable
+from pooler._threads import single_threaded
+from pooler.choices import MODEL_AVERAGE_DEFAULTS
+from pooler.errors import OptionError
 
 
 def estimator_names() -> tuple[str, ...]:
     """Estimators whose bias and RMSE are reported: the random-effects estimate, every
     registered bias method that can set the planning effect (by its label, the column name of
     ``pooler.stress/1``), the median of those, and the two adjusted planning scenarios."""
-    from .bias import planning_methods
+    from pooler.evidence.bias import planning_methods
     return (("random effects",) + tuple(m.label for m in planning_methods())
             + ("median of adjusters", "realistic", "pessimistic"))
 
@@ -41,7 +41,7 @@ def estimator_names() -> tuple[str, ...]:
 RULES = ("random effects", "median of adjusters", "realistic", "pessimistic")
 CHUNK = 20
 #: The trade-off grid of the model-average rule, evaluated from one fit per literature
-#: (:meth:`pooler.bma.ModelAverage.with_model_prior`): prior probability of "no bias" ×
+#: (:meth:`pooler.evidence.bma.ModelAverage.with_model_prior`): prior probability of "no bias" ×
 #: quantile of the mean effect given a positive effect (0.5 = the realistic scenario).
 TRADEOFF_P_NO_BIAS = (0.5, 0.35, 0.2, 0.1)
 TRADEOFF_QUANTILES = (0.1, 0.15, 0.2, 0.25, 0.33, 0.4, 0.5)
@@ -117,7 +117,7 @@ class Cell:
 def simulate_literature(rng, cell: Cell, shapes: Shapes):
     """One published literature of ``cell.k`` studies: (g, variance, shape index) arrays."""
     from scipy.special import stdtrit
-    from .effects import hedges_j
+    from pooler.evidence.effects import hedges_j
     ys, vs, idx = [], [], []
     need = cell.k
     for _ in range(10_000):
@@ -148,7 +148,7 @@ def simulate_literature(rng, cell: Cell, shapes: Shapes):
 
 def _studies_for(y, v, idx, shapes):
     """The simulated literature as the studies a pooled result carries (their n and design)."""
-    from .effects import Unit
+    from pooler.evidence.effects import Unit
     return tuple(Unit(label=f"sim{j}", effect=float(a), variance=float(b),
                       n_total=float(shapes.n1[i] if shapes.within[i]
                                     else shapes.n1[i] + shapes.n2[i]),
@@ -172,12 +172,12 @@ def evaluate_literature(y, v, idx, shapes, delta, *, design="two-group", power=0
     ``rule_options`` holds the model-average settings by their option names
     (``pooler.choices.MODEL_AVERAGE_OPTIONS``; default: the defaults).
     """
-    from .bias import bias_suite
-    from .bias import planning_methods
-    from .bma import posterior_scenarios
-    from .pooling import pool_studies
-    from .power import n_for_power, power_at
-    from .scenarios import make_scenarios, model_average_priors
+    from pooler.evidence.bias import bias_suite
+    from pooler.evidence.bias import planning_methods
+    from pooler.evidence.bma import posterior_scenarios
+    from pooler.evidence.pooling import pool_studies
+    from pooler.planning.power import n_for_power, power_at
+    from pooler.planning.scenarios import make_scenarios, model_average_priors
     opts = dict(rule_options or {})
     quantile = opts.pop("pessimistic_quantile", MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"])
     pooled = pool_studies(_studies_for(y, v, idx, shapes), "g", influence=False, file="simulated")
@@ -349,7 +349,7 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
     if workers < 1:
         raise OptionError(f"`workers` must be at least 1, not {workers!r}")
     rule_options = dict(rule_options or {})
-    from .scenarios import model_average_priors
+    from pooler.planning.scenarios import model_average_priors
     model_average_priors(**{k: v for k, v in rule_options.items()
                             if k != "pessimistic_quantile"})   # checks names and ranges
     q = rule_options.get("pessimistic_quantile", MODEL_AVERAGE_DEFAULTS["pessimistic_quantile"])

@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
-from .errors import InputError, InputErrors
+from pooler.errors import InputError, InputErrors
 
 #: Reported statistics the converters understand.
 STATS = ("t", "F", "r", "d", "g", "means", "chi2", "counts", "odds_ratio", "p",
@@ -97,7 +97,7 @@ class Record:
     row: int
     values: Mapping[str, Any]
     extra: Mapping[str, str] = field(default_factory=dict)
-    parsed: Any = None  # pooler.reported.Parsed of the 'reported' column, if filled
+    parsed: Any = None  # pooler.reading.reported.Parsed of the 'reported' column, if filled
     from_reported: tuple = ()  # columns whose value came from the 'reported' string
 
     def get(self, key: str, default: Any = None) -> Any:
@@ -472,7 +472,7 @@ def _validate(name, digest, head, body, notes) -> Sheet:
 def _conversion_problems(sheet: Sheet) -> list[InputError]:
     """What converting the readable rows would refuse, so that one run lists every
     problem of the sheet (conversion uses its default options here)."""
-    from .effects import convert
+    from pooler.evidence.effects import convert
     try:
         convert(sheet)
     except InputErrors as exc:
@@ -488,7 +488,7 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma, notes) -> Re
     A row with a reason in ``exclude`` is only listed, never pooled: cells of it that
     cannot be read are left empty (and said in ``notes``) instead of stopping the run.
     """
-    from .reported import parse_reported
+    from pooler.reading.reported import parse_reported
     if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
         raise InputError(f"this row has {len(cells)} cells but the header has {len(header)} "
                          "columns; check for a stray separator or a decimal comma",
@@ -567,7 +567,7 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma, notes) -> Re
                       + (" (or paste the result in 'reported')" if col == "stat" else ""))
     if values["trust"] is not None:
         t = values["trust"].strip().lower()
-        from .reported import TRUST_VALUES
+        from pooler.reading.reported import TRUST_VALUES
         if t not in TRUST_VALUES:
             raise err("trust", f"trust '{values['trust']}' is not understood; use 'statistic' "
                                "(the default) or 'p'")

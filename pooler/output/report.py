@@ -1,17 +1,17 @@
 """Every section of pooler's output, written once as blocks from the stage results.
 
-Each ``*_blocks`` function turns a result object into :class:`pooler.blocks.Block` values
+Each ``*_blocks`` function turns a result object into :class:`pooler.output.blocks.Block` values
 (headings, paragraphs, notes, tables of formatted cells); the terminal, ``report.md``,
 ``report.html`` and a notebook's ``_repr_html_`` all render these same blocks
-(:mod:`pooler.blocks`), so a section is never worded twice. The ``*_text`` functions are what
+(:mod:`pooler.output.blocks`), so a section is never worded twice. The ``*_text`` functions are what
 the single-stage commands print. No statistics are computed here.
 """
 from __future__ import annotations
 
 import math
 
-from ._results import NotEstimable, csv_safe, estimable, fmt, p_text, plural
-from .blocks import Block, md_escape, safe_md, to_markdown, to_text
+from pooler._results import NotEstimable, csv_safe, estimable, fmt, p_text, plural
+from pooler.output.blocks import Block, md_escape, safe_md, to_markdown, to_text
 
 #: Above this many rows the per-study tables (studies, leave one out, cumulative, the
 #: audit) show TEXT_SHOWN_ROWS chosen rows and say so; every row stays in the JSON output.
@@ -24,7 +24,7 @@ _ALL_ROWS = "every row is in the JSON output"
 def _json_rows(k: int) -> str:
     """Where the rest of a summarised table of ``k`` rows is
     (pooler.pipeline.JSON_ALL_ROWS_MAX_K)."""
-    from .pipeline import JSON_ALL_ROWS_MAX_K, JSON_SHOWN_ROWS
+    from pooler.pipeline import JSON_ALL_ROWS_MAX_K, JSON_SHOWN_ROWS
     return _ALL_ROWS if k <= JSON_ALL_ROWS_MAX_K else \
         f"{JSON_SHOWN_ROWS} chosen the same way are in the --json output"
 
@@ -141,7 +141,7 @@ def group_sizes_text(design, sizes) -> str:
 def sizes_and_total(n, design, attrition: float = 0.0) -> tuple[str, int]:
     """``n`` per group (per cell, or in total) as whole groups in words and their total,
     after inflating each group for ``attrition``."""
-    from .planning import recruit_sizes
+    from pooler.planning.sample_size import recruit_sizes
     sizes, total = recruit_sizes(n, design, attrition)
     return group_sizes_text(design, sizes), total
 
@@ -179,7 +179,7 @@ def _plan_table_block(plan) -> Block:
 
 
 #: How the assurance section names each form of predictive density
-#: (:class:`pooler.power.EffectDensity`).
+#: (:class:`pooler.planning.power.EffectDensity`).
 _DENSITY_WORDS = {
     "normal": lambda a: f"Normal({a.mean:.3f}, {a.sd:.3f}^2)",
     "grid": lambda a: f"the model-averaged posterior predictive (mean {a.mean:.3f}, SD {a.sd:.3f})",
@@ -283,7 +283,7 @@ def plan_csv(plan) -> str:
 def pooled_summary(res) -> list[str]:
     """The headline lines of a pooling result (random effects, common effect, heterogeneity,
     prediction interval), in plain text."""
-    from .pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
+    from pooler.evidence.pooling import ESTIMATOR_NAMES, INTERVAL_NAMES
     sym = _sym(res.metric)
     lvl = f"{100 * res.level:g}%"
 
@@ -413,7 +413,7 @@ def _excess_significance_block(tes) -> Block:
 
 def bias_blocks(bias, audit=None) -> list[Block]:
     """The bias-sensitivity table, the selection-ratio sensitivity and (with the
-    :class:`pooler.audit.Audit`) the excess-significance test."""
+    :class:`pooler.evidence.audit.Audit`) the excess-significance test."""
     sym = _sym(bias.metric)
     rows = []
     for method, est, ci, note in bias.table():
@@ -511,7 +511,7 @@ def _audit_blocks(a, sym) -> list[Block]:
 
 def scenario_blocks(scen, audit=None) -> list[Block]:
     """The planning scenarios with their bases, the realistic interval (or the model
-    average's posterior), the verdict; with ``audit`` (a :class:`pooler.audit.Audit`) also
+    average's posterior), the verdict; with ``audit`` (a :class:`pooler.evidence.audit.Audit`) also
     the literature audit."""
     sym = _sym(scen.metric)
     z = scen.metric == "z"
@@ -538,13 +538,13 @@ def scenario_blocks(scen, audit=None) -> list[Block]:
 
 def scenarios_text(scen, audit=None) -> str:
     """The scenarios table, the realistic interval and the verdict; with ``audit`` (a
-    :class:`pooler.audit.Audit`) also the literature audit."""
+    :class:`pooler.evidence.audit.Audit`) also the literature audit."""
     return to_text(scenario_blocks(scen, audit))
 
 
 def run_summary_text(run, paths) -> str:
     """The compact summary that ``pooler run`` and ``pooler demo`` print."""
-    from .document import summary_blocks
+    from pooler.output.document import summary_blocks
     return to_text(summary_blocks(run, paths))
 
 

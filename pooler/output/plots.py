@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._results import estimable
+from pooler._results import estimable
 
 BLUE, ORANGE, VERMILION, GREEN, SKY, PURPLE, GREY = (
     "#0072B2", "#E69F00", "#D55E00", "#009E73", "#56B4E9", "#CC79A7", "#6b6b6b")
@@ -215,10 +215,10 @@ def power_curves(plan, *, ax=None, n_max=None):
     first target power marked.
 
     Power is computed at whole groups: n per group (per cell, or in total) runs over
-    integers and each total is the design's own (:meth:`pooler.power.Design.n_total`, with
+    integers and each total is the design's own (:meth:`pooler.planning.power.Design.n_total`, with
     n2 = ceil(ratio x n1)), so the curves rise without the saw-tooth a total split by
     rounding would draw at small N."""
-    from .power import assurance, power_at, to_design_effect
+    from pooler.planning.power import assurance, power_at, to_design_effect
     des = plan.design
     fig = None
     if ax is None:
@@ -263,7 +263,7 @@ def power_curves(plan, *, ax=None, n_max=None):
         ax.plot(chosen.n_total, chosen.achieved_power, "o", color="black", ms=5, zorder=4)
         each = ""
         if des.grouped:
-            from .planning import unit_sizes
+            from pooler.planning.sample_size import unit_sizes
             sizes = unit_sizes(chosen.n_per_group, des)
             each = (f" ({sizes[0]:,} per {des.unit})" if len(set(sizes)) == 1
                     else " (" + " + ".join(f"{x:,}" for x in sizes) + ")")
