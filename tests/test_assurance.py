@@ -230,3 +230,20 @@ def test_a_target_just_below_the_ceiling_is_not_useful():
     res = n_for_assurance(0.4, 0.25, (0.93, 0.94))
     assert isinstance(res.n[0], int)
     assert not res.n[1] and "not a useful target" in str(res.n[1]) and "per group" in str(res.n[1])
+
+
+def test_the_plan_keeps_the_density_its_assurance_used():
+    """The power figure draws assurance over the plan's own predictive distribution: a
+    skewed tabulated density (not a normal one) gives the same value at the planned n as
+    the table's assurance, and a (mean, sd) pair is kept as that Normal."""
+    from pooler.planning.sample_size import PlanningEffect, make_plan
+    x = np.linspace(-0.5, 1.5, 2001)
+    dens = EffectDensity.from_grid(x, stats.gamma.pdf(x + 0.1, 3, scale=0.2))
+    plan = make_plan([PlanningEffect("realistic", 0.4)], powers=(0.6,), predictive=dens)
+    n = plan.assurance.n[0]
+    assert plan.predictive is dens
+    assert_allclose(assurance_over(plan.predictive, np.array([n]))[0],
+                    plan.assurance.achieved[0], atol=1e-9)
+    normal = make_plan([PlanningEffect("realistic", 0.4)], powers=(0.6,),
+                       predictive=(0.4, 0.1))
+    assert normal.predictive.form == "normal" and normal.predictive.mean == 0.4

@@ -10,8 +10,8 @@ every block, the terminal summary the ones not marked ``detail``. The renderers 
 from __future__ import annotations
 
 from pooler._results import estimable, fmt, plural
-from pooler.output.blocks import (Block, brief, md_escape, to_html,
-                                  to_markdown  # noqa: F401 (outputs.py))
+from pooler.output.blocks import (Block, brief, md_escape, to_html,  # noqa: F401 (outputs.py)
+                                  to_markdown)
 from pooler.output.report import (bias_blocks, conversion_blocks, interval_text, plan_blocks,
                                   pooled_blocks, scenario_blocks, sizes_and_total)
 

@@ -218,7 +218,7 @@ def power_curves(plan, *, ax=None, n_max=None):
     integers and each total is the design's own (:meth:`pooler.planning.power.Design.n_total`, with
     n2 = ceil(ratio x n1)), so the curves rise without the saw-tooth a total split by
     rounding would draw at small N."""
-    from pooler.planning.power import assurance, power_at, to_design_effect
+    from pooler.planning.power import assurance, assurance_over, power_at, to_design_effect
     des = plan.design
     fig = None
     if ax is None:
@@ -252,7 +252,12 @@ def power_curves(plan, *, ax=None, n_max=None):
         pick = np.unique(np.r_[np.searchsorted(totals, np.geomspace(totals[0], totals[-1], 40)),
                                np.arange(0, len(totals), 8), len(totals) - 1])
         pick = pick[pick < len(totals)]
-        asr = assurance(a.mean, a.sd, per[pick], des, plan.alpha, plan.alternative, a.metric)
+        # the same predictive distribution as the planning table's assurance (the model
+        # average's tabulated one by default, not a normal approximation of it)
+        dens = getattr(plan, "predictive", None)
+        asr = (assurance_over(dens, per[pick], des, plan.alpha, plan.alternative)
+               if dens is not None else
+               assurance(a.mean, a.sd, per[pick], des, plan.alpha, plan.alternative, a.metric))
         ax.plot(totals[pick], asr, color=PURPLE, lw=1.4, ls="--",
                 label="assurance (over the predictive distribution)")
     for p in plan.powers:

@@ -10,7 +10,7 @@ themselves are in :mod:`pooler.planning.power`; like it, this module needs only 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -106,6 +106,8 @@ class Plan(ShowsAsTable):
     fixed_n: FixedN | None = None
     effect_label: str = "g"
     notes: tuple[str, ...] = ()
+    #: the predictive distribution the assurance was integrated over (for the power figure)
+    predictive: EffectDensity | None = field(default=None, repr=False, compare=False)
 
     @property
     def alternative(self) -> str:
@@ -258,8 +260,9 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
                 rows.append(PlanRow(s.scenario, float(effects[i]), float(deff[i]), p,
                                     why, why, why, why))
 
-    assurance = None
+    assurance, density = None, None
     if isinstance(predictive, EffectDensity):
+        density = predictive
         assurance = n_for_assurance(predictive.mean, predictive.sd,
                                     tuple(assurance_targets or powers), des, alpha, alternative,
                                     density=predictive)
@@ -269,6 +272,7 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
             assurance = NotEstimable("the predictive distribution needs a finite mean and a "
                                      "positive SD")
         else:
+            density = EffectDensity.normal(mean, sd, "r" if metric == "r" else "d")
             assurance = n_for_assurance(mean, sd, tuple(assurance_targets or powers), des, alpha,
                                         alternative, "r" if metric == "r" else "d")
 
@@ -285,7 +289,7 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
     return Plan(design=des, metric=metric, alpha=alpha, tails=tails, powers=powers,
                 attrition=attrition, scenarios=scenarios, rows=tuple(rows), assurance=assurance,
                 fixed_n=fixed, effect_label=effect_label or ("g" if metric == "d" else "r"),
-                notes=tuple(notes))
+                notes=tuple(notes), predictive=density)
 
 
 def design_metric(design) -> str:

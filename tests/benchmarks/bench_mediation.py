@@ -21,8 +21,8 @@ from pooler._threads import limit_before_numpy  # noqa: E402
 
 limit_before_numpy()
 
-from pooler.planning.simdesign import (ParallelMediation, SimpleMediation, plan_paths,
-                                       # noqa: E402                               simulate_power)
+from pooler.planning.simdesign import (ParallelMediation, SimpleMediation,  # noqa: E402
+                                       plan_paths, simulate_power)
 
 
 def timed(label, fn, goal=""):
