@@ -205,6 +205,13 @@ def _seed_and_workers(workers_help: str):
     return deco
 
 
+#: --scheduler of the simulating commands (paths, stress).
+_scheduler_option = click.option(
+    "--scheduler", default=None, metavar="ADDRESS",
+    help="Run the simulation on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) "
+         "instead of local processes; same results. Needs pooler[cluster].")
+
+
 def _figure_file_options(f):
     """--format and --force of the commands that write a figure into an optional --out."""
     f = click.option("--force", is_flag=True,
@@ -582,10 +589,7 @@ def _simulation_options(f):
                      show_default=True,
                      help="Bootstrap resamples per replication (bootstrap test)."),
         _seed_and_workers("Local processes for the simulation"),
-        click.option("--scheduler", default=None, metavar="ADDRESS",
-                     help="Run the simulation on this dask.distributed scheduler (e.g. "
-                          "tcp://10.0.0.5:8786) instead of local processes; same results. "
-                          "Needs pooler[cluster]."),
+        _scheduler_option,
     ]
     for o in reversed(opts):
         f = o(f)
@@ -784,6 +788,7 @@ def demo_cmd(ctx, **params):
 @click.option("--reps", type=click.IntRange(min=1), default=60, show_default=True,
               help="Simulated literatures per grid cell.")
 @_seed_and_workers("Processes to spread the work over")
+@_scheduler_option
 @click.option("--power", "target", type=float, default=0.8, show_default=True,
               callback=_fraction(0, 1, percent=True, hint="a target power such as 0.8"),
               help="Target power the planning rules are asked for.")
@@ -794,8 +799,8 @@ def demo_cmd(ctx, **params):
 @_conversion_options
 @_model_average_options
 @_json_option
-def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force, metric,
-           within_r, sample_r, as_json, **model_average):
+def stress(sheet, calibration, reps, seed, workers, scheduler, target, out_dir, fmt, force,
+           metric, within_r, sample_r, as_json, **model_average):
     """Stress-test the planning rules on literatures simulated like SHEET.
 
     Simulates literatures with the same number of studies and the same designs and sample
@@ -817,6 +822,7 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
       pooler stress demo_literature/break_and_proofreading.csv
       pooler stress my_literature.csv --reps 200 --out stress_results
       pooler stress --calibration --reps 200 --out calibration
+      pooler stress --calibration --scheduler tcp://10.0.0.5:8786 --out calibration
     """
     from pooler.errors import OptionError
     from pooler.output.report import stress_text
@@ -844,7 +850,7 @@ def stress(sheet, calibration, reps, seed, workers, target, out_dir, fmt, force,
             click.echo(f"\rsimulating [{'#' * filled}{'.' * (30 - filled)}] {done}/{total}",
                        err=True, nl=done == total)
     res = stress_test(cells, shapes, reps=reps, seed=seed, workers=workers, power=target,
-                      progress=bar, rule_options=model_average)
+                      progress=bar, rule_options=model_average, scheduler=scheduler)
     doc = res.to_dict()
     trade = None
     if calibration:

@@ -56,6 +56,19 @@ def test_seeded_runs_are_reproducible_across_worker_counts():
     assert json.dumps(a.to_dict()) != json.dumps(c.to_dict())
 
 
+def test_the_stress_test_runs_on_a_dask_cluster_with_the_same_results():
+    """pooler stress --scheduler: the same seeded chunks on a dask.distributed LocalCluster
+    give byte-identical results to this process."""
+    distributed = pytest.importorskip("dask.distributed")
+    cells = [Cell(5, 0.3, 0.1, 0.2)]
+    local = stress_test(cells, Shapes.generic(), reps=2, seed=7, workers=1)
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
+                                  dashboard_address=None) as cluster, \
+            distributed.Client(cluster) as client:
+        remote = stress_test(cells, Shapes.generic(), reps=2, seed=7, scheduler=client)
+    assert json.dumps(local.to_dict()) == json.dumps(remote.to_dict())
+
+
 @pytest.mark.slow
 def test_stress_command_on_demo(run_cli, demo_path, tmp_path):
     out = tmp_path / "s"

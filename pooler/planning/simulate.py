@@ -324,7 +324,7 @@ class StressResult:
 
 
 def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design="two-group",
-                power=0.8, progress=None, rule_options=None) -> StressResult:
+                power=0.8, progress=None, rule_options=None, scheduler=None) -> StressResult:
     """Simulate ``reps`` literatures in every cell and evaluate each planning rule.
 
     Parameters
@@ -339,6 +339,9 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
     workers : int
         Processes (1 = in this process). Results do not depend on it.
     progress : callable(done, total) or None
+    scheduler : str or dask.distributed.Client, optional
+        Run the chunks on a dask.distributed cluster instead of local processes (the same
+        seeds give the same results; :class:`pooler.planning.simdesign._Runner`).
     rule_options : dict, optional
         Settings of the model-average rule by their option names (``effect_prior_sd``, ...,
         ``pessimistic_quantile``; ``pooler.choices.MODEL_AVERAGE_OPTIONS``).
@@ -368,22 +371,13 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
             size = min(CHUNK, reps - j * CHUNK)
             tasks.append(((ci, j), (cell, shapes, size, ss, design, power, rule_options)))
     results: dict[int, list] = {i: [None] * n_chunks for i in range(len(cells))}
-
-    def finished(key, value, done):
-        results[key[0]][key[1]] = value
-        if progress:
-            progress(done, len(tasks))
     if progress:  # show the bar from the start, before the first chunk is done
         progress(0, len(tasks))
-    if workers == 1:
-        for done, (key, args) in enumerate(tasks, start=1):
-            finished(key, _run_chunk(args), done)
-    else:
-        from concurrent.futures import ProcessPoolExecutor, as_completed
-        with ProcessPoolExecutor(max_workers=workers) as ex:
-            futs = {ex.submit(_run_chunk, args): key for key, args in tasks}
-            for done, f in enumerate(as_completed(futs), start=1):
-                finished(futs[f], f.result(), done)
+    from pooler.planning.simdesign import _Runner
+    with _Runner(workers, scheduler) as runner:
+        values = runner.map([args for _, args in tasks], progress=progress, fn=_run_chunk)
+    for (key, _), value in zip(tasks, values):
+        results[key[0]][key[1]] = value
     out = []
     for ci, cell in enumerate(cells):
         ests = {e: np.concatenate([np.array(ch[0][e], float) for ch in results[ci]])
