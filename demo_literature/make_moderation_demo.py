@@ -13,12 +13,15 @@ the interaction's literature shows some selection. One row is excluded.
 """
 from __future__ import annotations
 
-import csv
 import math
+import sys
 from pathlib import Path
 
 import numpy as np
 from scipy import stats
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from make_path_demo import write_path_sheet  # noqa: E402 (the sibling script's writer)
 
 SEED = 20261203
 #: The invented true model.
@@ -75,12 +78,7 @@ def main(out: Path) -> None:
                  "stat": "coef_t", "value": 2.9, "n": "", "df": 96, "predictors": 3,
                  "year": 2021, "exclude": "same sample as a later journal article",
                  "note": "invented"})
-    cols = ["study", "path", "stat", "value", "n", "df", "predictors", "year", "exclude",
-            "note"]
-    with open(out, "w", newline="", encoding="utf-8") as fh:
-        w = csv.DictWriter(fh, fieldnames=cols)
-        w.writeheader()
-        w.writerows(rows)
+    write_path_sheet(rows, out)
 
 
 if __name__ == "__main__":

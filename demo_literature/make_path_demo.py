@@ -88,10 +88,18 @@ def main(out: Path) -> None:
                  "stat": "r", "value": 0.41, "n": 36, "df": "", "predictors": "",
                  "year": 2019, "exclude": "same sample as a later full report",
                  "note": "invented"})
-    cols = ["study", "path", "stat", "value", "n", "df", "predictors", "year", "exclude",
-            "note"]
+    write_path_sheet(rows, out)
+
+
+#: The columns of an invented path sheet.
+PATH_COLUMNS = ["study", "path", "stat", "value", "n", "df", "predictors", "year", "exclude",
+                "note"]
+
+
+def write_path_sheet(rows, out) -> None:
+    """Write invented path rows as a CSV sheet (also used by make_moderation_demo.py)."""
     with open(out, "w", newline="", encoding="utf-8") as fh:
-        w = csv.DictWriter(fh, fieldnames=cols)
+        w = csv.DictWriter(fh, fieldnames=PATH_COLUMNS)
         w.writeheader()
         w.writerows(rows)
 
