@@ -294,12 +294,9 @@ def test_two_step_marginal_likelihood_converges_to_dblquad_when_refined():
     assert fine.models[0].log_marginal == pytest.approx(want, abs=5e-4)
 
 
-@pytest.mark.xfail(strict=True, reason="review finding: at the default resolution the two-step "
-                   "selection marginal likelihood is 0.0069 off in log (0.7 %; up to 0.012 in "
-                   "the models with heterogeneity) because ω₂ = √u (Beta(2, 1) inverse CDF) has a "
-                   "branch point at u = 0 where the posterior of ω₂ sits; Gauss-Legendre on u "
-                   "converges slowly there. Substituting u = hi·s² on boxes that start at 0 makes "
-                   "it exact to 1e-14 (see notes/review.md)")
+# review finding 3, fixed: ω₂ = √u (Beta(2, 1) inverse CDF) has a branch point at u = 0 where
+# strong selection puts the posterior; pooler.evidence.bma._final_pass now integrates boxes
+# that start at u = 0 in s with u = hi s² (it was 0.0069 off in log at the default resolution)
 def test_two_step_marginal_likelihood_at_default_resolution_is_within_1e3():
     want = _two_step_by_dblquad(Y2, V2)
     got = model_average(Y2, V2, models=[("two-step selection", False, False)])

@@ -598,6 +598,16 @@ def _final_pass(model, d, dims, fixed_mu, fixed_tau, sd, box, init_box, n_mu, n_
             w[0] *= 0.5
             w[-1] *= 0.5
             w = w * np.exp(_log_prior_mu(x, sd))
+        elif lo == 0.0 and dm.name != "tau":
+            # a box from u = 0 (a selection weight's or a slope's prior CDF): u = hi s² with
+            # Gauss-Legendre in s, so that an integrand like ω₂ = √u, which has a branch
+            # point at u = 0 where strong selection puts the posterior, becomes smooth in s
+            # (the two-step model's marginal likelihood was 0.7 % off; now to 1e-14 against
+            # scipy dblquad, tests/test_review_bma.py)
+            t, gw = _gauss_legendre(n_u)
+            s = (t + 1) / 2
+            x = hi * s * s
+            w = gw * hi * s
         else:
             t, gw = _gauss_legendre(n_u)
             x = lo + (hi - lo) * (t + 1) / 2
