@@ -247,3 +247,20 @@ def test_the_plan_keeps_the_density_its_assurance_used():
     normal = make_plan([PlanningEffect("realistic", 0.4)], powers=(0.6,),
                        predictive=(0.4, 0.1))
     assert normal.predictive.form == "normal" and normal.predictive.mean == 0.4
+
+
+def test_the_curve_for_figures_matches_the_adaptive_assurance():
+    """pooler.planning.power.assurance_curve (fixed Gauss-Legendre between the density's
+    breaks, all n at once) against assurance_over (adaptive, to 1e-9 per n): a normal, a
+    skewed tabulated density with an F test of 3 numerator df, and a Fisher-z density."""
+    from pooler.planning.power import assurance_curve
+    x = np.linspace(-0.5, 1.5, 401)
+    skewed = EffectDensity.from_grid(x, stats.gamma.pdf(x + 0.3, 3, scale=0.2))
+    z = np.linspace(-0.4, 0.9, 301)
+    fisher = EffectDensity.from_grid(z, stats.norm.pdf(z, 0.2, 0.12), metric="r")
+    n = np.array([5, 20, 64, 200, 900, 5000])
+    for dens, des in ((EffectDensity.normal(0.3, 0.15), Design("two-group")),
+                      (skewed, Design("regression-increment", predictors_added=3,
+                                      predictors_total=3)),
+                      (fisher, Design("correlation"))):
+        assert_allclose(assurance_curve(dens, n, des), assurance_over(dens, n, des), atol=1e-6)

@@ -218,7 +218,8 @@ def power_curves(plan, *, ax=None, n_max=None):
     integers and each total is the design's own (:meth:`pooler.planning.power.Design.n_total`, with
     n2 = ceil(ratio x n1)), so the curves rise without the saw-tooth a total split by
     rounding would draw at small N."""
-    from pooler.planning.power import assurance, assurance_over, power_at, to_design_effect
+    from pooler.planning.power import (EffectDensity, assurance_curve, power_at,
+                                       to_design_effect)
     des = plan.design
     fig = None
     if ax is None:
@@ -246,18 +247,17 @@ def power_curves(plan, *, ax=None, n_max=None):
                 label=f"{s.scenario} ({plan.effect_label} = {s.effect:.2f})")
     a = plan.assurance
     if a is not None and estimable(a):
-        # each assurance value is an adaptive integral (about 4 ms): every 8th size plus 40
-        # spaced geometrically (the curve is steepest at small N), about 60 in all, draw the
-        # curve within 0.004 of the 300-size one (at most a pixel) in a fifth of the time
+        # one fixed quadrature over the plan's own predictive distribution for every size
+        # (pooler.planning.power.assurance_curve; within about 1e-7 of the table's adaptive
+        # integrals): every 8th size plus 40 spaced geometrically (the curve is steepest at
+        # small N), about 60 in all
         pick = np.unique(np.r_[np.searchsorted(totals, np.geomspace(totals[0], totals[-1], 40)),
                                np.arange(0, len(totals), 8), len(totals) - 1])
         pick = pick[pick < len(totals)]
-        # the same predictive distribution as the planning table's assurance (the model
-        # average's tabulated one by default, not a normal approximation of it)
         dens = getattr(plan, "predictive", None)
-        asr = (assurance_over(dens, per[pick], des, plan.alpha, plan.alternative)
-               if dens is not None else
-               assurance(a.mean, a.sd, per[pick], des, plan.alpha, plan.alternative, a.metric))
+        if dens is None:
+            dens = EffectDensity.normal(a.mean, a.sd, a.metric)
+        asr = assurance_curve(dens, per[pick], des, plan.alpha, plan.alternative)
         ax.plot(totals[pick], asr, color=PURPLE, lw=1.4, ls="--",
                 label="assurance (over the predictive distribution)")
     for p in plan.powers:
