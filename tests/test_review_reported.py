@@ -87,10 +87,8 @@ def test_a_p_in_scientific_notation_is_refused_with_a_clear_message(text):
         parse_reported(text)
 
 
-@pytest.mark.xfail(strict=True, reason="review finding: '1.024' is read as 1,024 for n and N "
-                   "(thousands separator) but as 1.024 for a df (reported.py _intish vs _count); "
-                   "t(1.024) = 2.10 then converts with df = 1.024 instead of refusing the "
-                   "ambiguous number")
+# review finding 6, fixed: '1.024' is read as 1,024 for n and N (thousands separator); as a df
+# it is now refused as ambiguous (reported.py _intish) instead of read as 1.024
 @pytest.mark.parametrize("text", ["t(1.024) = 2.10", "F(1, 1.024) = 4.41"])
 def test_a_df_with_a_dot_thousands_separator_is_not_read_as_a_fraction(text):
     try:
@@ -98,3 +96,9 @@ def test_a_df_with_a_dot_thousands_separator_is_not_read_as_a_fraction(text):
     except InputError:
         return  # refusing the ambiguous number is fine too
     assert df == 1024
+
+
+def test_a_welch_df_with_three_decimals_is_read_as_it_stands():
+    """Only a df below 3 with three decimals is refused as ambiguous: t(37.125) is a Welch
+    df (SPSS prints three decimals), not 37,125."""
+    assert parse_reported("t(37.125) = 2.10").values["df"] == 37.125

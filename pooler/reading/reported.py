@@ -211,6 +211,13 @@ def _intish(text: str, err, what: str, *, fractional_ok: bool = False) -> float:
         return float(s.replace(",", ""))
     if not re.fullmatch(r"\d+(?:[.,]\d+)?", s):
         raise err(f"{what} '{text.strip()}' is not a number")
+    if fractional_ok and re.fullmatch(r"[0-2]\.\d{3}", s):
+        # 1.024 is 1,024 with a dot as thousands separator (as n and N are read), or a df of
+        # 1.024; a df below 3 is all but impossible (a Welch df such as 37.125 is read as it
+        # stands), so a number like this is refused rather than guessed
+        raise err(f"{what} '{s}' is ambiguous: {s.replace('.', ',')} written with a dot as "
+                  f"thousands separator, or {s}; write it without the separator "
+                  f"({s.replace('.', '')}) if that is what it means")
     v = float(s.replace(",", "."))
     if not fractional_ok and not v.is_integer():
         raise err(f"{what} = {s} is not a whole number")
