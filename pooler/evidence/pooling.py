@@ -908,8 +908,8 @@ def pool_studies(studies, metric, estimator="reml", interval="hksj", level=0.95,
         subs = _subgroups([u.subgroup or "(no subgroup)" for u in units], y, v, estimator,
                           interval, level)
     by_pub = None
-    if any(getattr(u, "published", None) for u in units):
-        by_pub = _subgroups([getattr(u, "published", None) or "(not said)" for u in units],
+    if any(u.published for u in units):
+        by_pub = _subgroups([u.published or "(not said)" for u in units],
                             y, v, estimator, interval, level, what="publication status")
     return PooledResult(metric, k, estimator, interval, level, pooled, fixed, het, pred,
                         fit.tau2_fit, labels, tuple(float(x) for x in y),

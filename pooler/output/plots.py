@@ -218,8 +218,7 @@ def power_curves(plan, *, ax=None, n_max=None):
     integers and each total is the design's own (:meth:`pooler.planning.power.Design.n_total`, with
     n2 = ceil(ratio x n1)), so the curves rise without the saw-tooth a total split by
     rounding would draw at small N."""
-    from pooler.planning.power import (EffectDensity, assurance_curve, power_at,
-                                       to_design_effect)
+    from pooler.planning.power import assurance_curve, power_at, to_design_effect
     des = plan.design
     fig = None
     if ax is None:
@@ -254,10 +253,7 @@ def power_curves(plan, *, ax=None, n_max=None):
         pick = np.unique(np.r_[np.searchsorted(totals, np.geomspace(totals[0], totals[-1], 40)),
                                np.arange(0, len(totals), 8), len(totals) - 1])
         pick = pick[pick < len(totals)]
-        dens = getattr(plan, "predictive", None)
-        if dens is None:
-            dens = EffectDensity.normal(a.mean, a.sd, a.metric)
-        asr = assurance_curve(dens, per[pick], des, plan.alpha, plan.alternative)
+        asr = assurance_curve(plan.predictive, per[pick], des, plan.alpha, plan.alternative)
         ax.plot(totals[pick], asr, color=PURPLE, lw=1.4, ls="--",
                 label="assurance (over the predictive distribution)")
     for p in plan.powers:

@@ -384,7 +384,7 @@ def pooled_blocks(res, eff=None) -> list[Block]:
         out.append(_influence_block(tab, sym))
     for title, s, first in (("Subgroups (separate tau^2)", res.subgroups, "subgroup"),
                             ("Published against unpublished studies (separate tau^2)",
-                             getattr(res, "by_publication", None), "status")):
+                             res.by_publication, "status")):
         if s is not None and estimable(s):
             out += [Block("h3", title, detail=True),
                     Block("p", f"Q between = {s.q_between:.2f}, df = {s.df}, {p_text(s.p)}.",

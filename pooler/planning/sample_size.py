@@ -263,18 +263,16 @@ def make_plan(scenarios, design="two-group", *, metric="d", alpha=0.05, tails=2,
     assurance, density = None, None
     if isinstance(predictive, EffectDensity):
         density = predictive
-        assurance = n_for_assurance(predictive.mean, predictive.sd,
-                                    tuple(assurance_targets or powers), des, alpha, alternative,
-                                    density=predictive)
     elif predictive is not None:
         mean, sd = predictive
         if not (math.isfinite(mean) and math.isfinite(sd) and sd > 0):
             assurance = NotEstimable("the predictive distribution needs a finite mean and a "
                                      "positive SD")
         else:
-            density = EffectDensity.normal(mean, sd, "r" if metric == "r" else "d")
-            assurance = n_for_assurance(mean, sd, tuple(assurance_targets or powers), des, alpha,
-                                        alternative, "r" if metric == "r" else "d")
+            density = EffectDensity.normal(mean, sd, metric)
+    if density is not None:
+        assurance = n_for_assurance(density.mean, density.sd, tuple(assurance_targets or powers),
+                                    des, alpha, alternative, density=density)
 
     notes = [] if conversion_note(metric, des) is None else [conversion_note(metric, des)]
     fixed = None
