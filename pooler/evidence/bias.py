@@ -111,15 +111,16 @@ def size_variances(studies, metric: str) -> np.ndarray:
     >>> float(size_variances(two, "g")[0])   # 1/20 + 1/20
     0.1
     """
+    from pooler.evidence.effects import d_variance, d_variance_within
     out = []
-    for u in studies:
+    for u in studies:   # the converters' own variance formulas at d = 0
         v = u.variance
         if metric == "g" and u.design == "within" and u.n_total and u.within_r is not None:
-            v = 2 * (1 - u.within_r) / u.n_total
+            v = d_variance_within(0.0, u.n_total, u.within_r)
         elif metric == "g" and u.design == "between" and u.n1 and u.n2:
-            v = 1 / u.n1 + 1 / u.n2
+            v = d_variance(0.0, u.n1, u.n2)
         elif metric == "g" and u.design == "between" and u.n_total:
-            v = 4 / u.n_total
+            v = d_variance(0.0, u.n_total / 2, u.n_total / 2)
         out.append(v)
     return np.array(out, float)
 
