@@ -39,6 +39,9 @@ LITERATURES = {
                                     0.01], SIZES),
                           ("--design", "two-group", "--adjuster", "safeguard")),
     "k2": (_between([0.40, 0.30], [40, 60]), ("--design", "two-group")),
+    # every study 20 per group: PET and PEESE are left out of the model average
+    "equal_sizes": (_between([0.71, 0.34, 0.80, 0.12, 0.56, 0.90, 0.43, 0.65], [20] * 8),
+                    ("--design", "two-group")),
     "correlational": ([{"study": f"Invented {i + 1}", "stat": "r", "value": v, "n": n,
                         "year": 2000 + i}
                        for i, (v, n) in enumerate(zip(
@@ -119,6 +122,20 @@ def test_realistic_from_the_posterior(rendered):
     decision = md.split("## The decision", 1)[1].split("\n## ", 1)[0]
     assert decision.lstrip().startswith(f"**Recruit {real['n_total_recruit']:,} participants")
     assert "model-averaged estimate" in decision and "P(effect &gt; 0)" in decision
+
+
+def test_methods_paragraph_names_the_regression_models_predictor(rendered):
+    # PET and PEESE regress on the size-based SE (Pustejovsky & Rodgers 2019); with every
+    # study the same size they are left out, and the paragraph and the model list say so
+    m = _methods(rendered["supported"][1])
+    assert "over 20 publication-bias models" in m and "(Pustejovsky & Rodgers, 2019)" in m
+    _, md, doc = rendered["equal_sizes"]
+    m = _methods(md)
+    assert "over 12 publication-bias models" in m
+    assert "PET and PEESE were left out because every study had the same size" in m
+    biases = {x["bias"] for x in doc["pool"]["model_average"]["models"]}
+    assert biases == {"no bias", "one-step selection", "two-step selection"}
+    assert any("same size" in w for w in doc["pool"]["model_average"]["warnings"])
 
 
 def test_supported_plan_methods_paragraph_safeguard_rule(rendered):

@@ -11,7 +11,7 @@ import pytest
 from scipy import integrate, stats
 
 from pooler.evidence.bma import (DEFAULT_PRIORS, WIDE_PRIORS, Priors, log_likelihood,
-                                 model_average, posterior_scenarios)
+                                 model_average, posterior_scenarios, reweighted)
 from pooler.errors import InputError, OptionError
 
 Z975 = stats.norm.ppf(0.975)
@@ -339,6 +339,61 @@ def test_normal_part_by_weighted_sums_equals_the_direct_sum():
         m = mu[..., None] + slope[..., None] * x
         direct = stats.norm.logpdf(y, m, np.sqrt(v + tau[..., None] ** 2)).sum(axis=-1)
         np.testing.assert_allclose(got, direct, rtol=1e-11, atol=1e-9)
+
+
+def test_pet_and_peese_regress_on_the_given_size_based_predictor():
+    # with size_v the regression models' mean is μ + β x with x = √size_v (PET) or size_v
+    # (PEESE) while the variance stays v + τ² (Pustejovsky & Rodgers 2019: the predictor is
+    # the SE at a zero effect); checked against scipy.stats normal log densities
+    rng = np.random.default_rng(32)
+    size_v = rng.uniform(0.01, 0.2, 23)
+    y = rng.normal(0.4, 0.3, 23)
+    v = size_v + y * y / 80            # the own variance contains the effect
+    mu = np.linspace(-0.5, 1.0, 5)[:, None, None]
+    tau = np.array([0.0, 0.2])[None, :, None]
+    slope = np.array([0.3, 2.5])[None, None, :]
+    for bias, x in [("PET", np.sqrt(size_v)), ("PEESE", size_v)]:
+        got = log_likelihood(bias, y, v, mu, tau, slope, size_v=size_v)
+        m = mu[..., None] + slope[..., None] * x
+        direct = stats.norm.logpdf(y, m, np.sqrt(v + tau[..., None] ** 2)).sum(axis=-1)
+        np.testing.assert_allclose(got, direct, rtol=1e-11, atol=1e-9)
+
+
+def test_equal_sizes_leave_pet_and_peese_out_and_keep_the_prior_of_bias():
+    # every study 20 per group (tests/data/newuser/equal_n.csv): the size-based SE is the
+    # same for all, so the slope is not identified; PET and PEESE are left out, their prior
+    # share goes to the selection models and P(no bias) keeps its prior of 1/2
+    g = np.array([0.71, 0.34, 0.80, 0.12, 0.56, 0.90, 0.43, 0.65])
+    size_v = np.full(8, 0.1)                       # 1/20 + 1/20
+    v = size_v + g * g / 80                         # + g²/(2N), Borenstein et al. 2009 eq. 4.20
+    avg = model_average(g, v, size_v=size_v)
+    assert {m.bias for m in avg.models} == {"no bias", "one-step selection",
+                                            "two-step selection"}
+    assert any("same size" in w for w in avg.warnings)
+    prior_bias = sum(m.prior for m in avg.models if m.bias != "no bias")
+    assert prior_bias == pytest.approx(0.5, abs=1e-12)
+    # a model average without the regression models, fitted directly, is the same
+    sel = Priors(bias_shares=(("one-step selection", 0.5), ("two-step selection", 0.5),
+                              ("PET", 0.0), ("PEESE", 0.0)))
+    direct = model_average(g, v, priors=sel)
+    assert avg.mu_quantile(0.5, True) == pytest.approx(direct.mu_quantile(0.5, True), abs=1e-12)
+    # the wider-prior line keeps the same split
+    wide = reweighted(avg, WIDE_PRIORS)
+    assert sum(m.prior for m in wide.models if m.bias != "no bias") == pytest.approx(0.5)
+    # with the own SE (varying only through g) PET and PEESE stay in the average
+    own = model_average(g, v)
+    assert {"PET", "PEESE"} <= {m.bias for m in own.models}
+
+
+def test_size_v_equal_to_v_changes_nothing_and_bad_size_v_is_refused():
+    y = np.array([0.42, 0.18, 0.55, 0.31, 0.08, 0.47])   # invented
+    v = np.array([0.040, 0.031, 0.062, 0.045, 0.028, 0.051])
+    a, b = model_average(y, v), model_average(y, v, size_v=v)
+    assert a.mu_quantile(0.5, True) == b.mu_quantile(0.5, True)
+    with pytest.raises(OptionError, match="size_v"):
+        model_average(y, v, size_v=v[:3])
+    with pytest.raises(OptionError, match="size_v"):
+        model_average(y, v, size_v=-v)
 
 
 def _continuous_se_literature(rng, k, delta=0.25, tau=0.1, keep_nonsig=0.3):

@@ -168,7 +168,8 @@ def test_model_average_options_reach_the_posterior(run_cli, write_sheet):
     v = np.array([u.variance for u in pooled.studies])
     pr = Priors(effect_sd=0.6, tau_shape=2.0, tau_scale=0.3, pet_scale=0.5, peese_scale=3.0,
                 p_effect=0.7, p_heterogeneity=0.6, p_no_bias=0.3)
-    ref = model_average(y, v, "g", pr)
+    from pooler.evidence.bias import size_variances   # PET/PEESE's predictor (Pustejovsky & Rodgers 2019)
+    ref = model_average(y, v, "g", pr, size_v=size_variances(pooled.studies, "g"))
     got = {s["scenario"]: s["effect"] for s in doc["scenarios"]}
     assert got["realistic"] == pytest.approx(ref.mu_quantile(0.5, positive=True), abs=1e-9)
     assert got["pessimistic"] == pytest.approx(ref.mu_quantile(0.2, positive=True), abs=1e-9)

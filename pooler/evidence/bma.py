@@ -13,8 +13,15 @@ Models (y_i the effect, v_i its sampling variance, s_i = √v_i)
 ----------------------------------------------------------------
 - no bias: y_i ~ N(μ, v_i + τ²) (the random-effects model with the true effects integrated
   out; Hedges & Vevea 1998).
-- PET: y_i ~ N(μ + β s_i, v_i + τ²); PEESE: y_i ~ N(μ + β v_i, v_i + τ²), β ≥ 0
-  (Stanley & Doucouliagos 2014, eqs. 4 and 5; the Bayesian form of Bartoš et al. 2023).
+- PET: y_i ~ N(μ + β x_i, v_i + τ²); PEESE: y_i ~ N(μ + β x_i², v_i + τ²), β ≥ 0
+  (Stanley & Doucouliagos 2014, eqs. 4 and 5; the Bayesian form of Bartoš et al. 2023). The
+  predictor x_i is the study's standard error at a zero effect, which depends on its size
+  alone (Pustejovsky & Rodgers 2019; :func:`pooler.evidence.bias.size_variances`), when the
+  caller gives it (``size_v``; the planning rule does); otherwise s_i as published. A
+  standardised mean difference's own SE contains the effect, so with equal group sizes PET's
+  slope would find "small-study effects" where studies merely differ in effect. When every
+  study has the same size the slope is not identified: PET and PEESE are left out and their
+  prior share goes to the selection models (P(no bias) keeps its prior).
 - step-function selection (Vevea & Hedges 1995, eq. 8): study i is published with relative
   probability ω_j when its one-sided p-value falls in interval j, so its density is
   ω_{j(i)} φ((y_i - μ)/σ_i)/σ_i / A_i with σ_i² = v_i + τ² and the normalising constant in
@@ -70,6 +77,8 @@ References
    size in the presence of publication bias. *Psychometrika*, 60(3), 419-435.
 .. [SD14] Stanley, T. D., & Doucouliagos, H. (2014). Meta-regression approximations to reduce
    publication selection bias. *Research Synthesis Methods*, 5(1), 60-78.
+.. [PR19] Pustejovsky, J. E., & Rodgers, M. A. (2019). Testing for funnel plot asymmetry of
+   standardized mean differences. *Research Synthesis Methods*, 10(1), 57-71.
 .. [HMRV99] Hoeting, J. A., Madigan, D., Raftery, A. E., & Volinsky, C. T. (1999). Bayesian
    model averaging: a tutorial. *Statistical Science*, 14(4), 382-417.
 .. [CM69] Connor, R. J., & Mosimann, J. E. (1969). Concepts of independence for proportions
@@ -345,13 +354,14 @@ GROUP_ABOVE_K = 400
 SE_GROUP_WIDTH = 0.01
 
 
-def _data(y, v, group_above=None) -> _Data:
+def _data(y, v, group_above=None, size_v=None) -> _Data:
     se = np.sqrt(v)
     c = Z975 * se
     sig = y > c
     low = y <= 0
     counts = (int((~sig).sum()), int((~sig & ~low).sum()), int(low.sum()))
-    moments = {None: _moments(y), "se": _moments(y, se), "v": _moments(y, v)}
+    xv = v if size_v is None else size_v   # PET's and PEESE's predictor (model_average)
+    moments = {None: _moments(y), "se": _moments(y, np.sqrt(xv)), "v": _moments(y, xv)}
     limit = GROUP_ABOVE_K if group_above is None else group_above
     if y.size <= limit:
         return _Data(y, v, se, c, *counts, v, c, None, moments)
@@ -363,11 +373,12 @@ def _data(y, v, group_above=None) -> _Data:
     return _Data(y, v, se, c, *counts, sb * sb, Z975 * sb, nb.astype(float), moments)
 
 
-def log_likelihood(bias, y, v, mu, tau, *params) -> np.ndarray:
+def log_likelihood(bias, y, v, mu, tau, *params, size_v=None) -> np.ndarray:
     """Log-likelihood of one bias model at parameter values (arrays broadcast together).
 
     ``params`` are the model's own parameters on their natural scale: ω for one-step
     selection; ω₂ and ω₃/ω₂ for two-step selection; the slope for PET and PEESE.
+    ``size_v``: PET's and PEESE's predictor variances (:func:`model_average`; default ``v``).
 
     Examples
     --------
@@ -378,7 +389,8 @@ def log_likelihood(bias, y, v, mu, tau, *params) -> np.ndarray:
     """
     if bias not in BIAS_MODELS:
         raise OptionError(f"`bias` must be one of {', '.join(BIAS_MODELS)}, not {bias!r}")
-    d = _data(np.asarray(y, float), np.asarray(v, float), group_above=math.inf)
+    d = _data(np.asarray(y, float), np.asarray(v, float), group_above=math.inf,
+              size_v=None if size_v is None else np.asarray(size_v, float))
     mu = np.asarray(mu, float)[..., None]
     tau = np.asarray(tau, float)[..., None]
     ps = tuple(np.asarray(p, float)[..., None] for p in params)
@@ -917,7 +929,7 @@ def _dims(model, eff, het, pr):
 
 
 def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=None,
-                  resolution: float = 1.0, level: float = 0.95) -> ModelAverage:
+                  resolution: float = 1.0, level: float = 0.95, size_v=None) -> ModelAverage:
     """Bayesian model average over the publication-bias models, by quadrature.
 
     Parameters
@@ -936,6 +948,11 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
         Multiplies every final-pass node count (2 = a refined grid, for checking).
     level : float
         Credible level of the intervals.
+    size_v : array_like, optional
+        PET's and PEESE's predictor: each study's sampling variance at a zero effect
+        (:func:`pooler.evidence.bias.size_variances`; Pustejovsky & Rodgers 2019). Default
+        ``v`` (the published definition). When these are all equal, PET and PEESE are left
+        out and their prior share goes to the selection models, with a warning.
 
     Returns
     -------
@@ -983,11 +1000,23 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
         if bad:
             raise OptionError(f"unknown bias model {bad[0][0]!r}; choose from "
                               f"{', '.join(BIAS_MODELS)}")
+    if size_v is not None:
+        size_v = np.asarray(size_v, float).ravel()
+        if size_v.shape != y.shape or not (np.all(np.isfinite(size_v)) and np.all(size_v > 0)):
+            raise OptionError("`size_v` must hold one positive, finite variance per study")
 
     pr = priors.on_metric(metric)
-    d = _data(y, v)
     k = len(y)
     warnings = []
+    x = v if size_v is None else size_v
+    if k > 1 and np.ptp(x) <= 1e-9 * np.max(x):
+        pr = _without_regression(pr)
+        if models is not None:
+            models = {m for m in models if BIAS_MODELS[m[0]].family != "regression"}
+        warnings.append("every study has the same size, so PET and PEESE cannot tell a "
+                        "small-study effect from the mean effect: they are left out and their "
+                        "prior share goes to the selection models")
+    d = _data(y, v, size_v=size_v)
     if k <= 2:
         warnings.append(f"only {k} stud{'y' if k == 1 else 'ies'}: the bias models cannot be "
                         "told apart from each other or from no bias, so the priors carry "
@@ -1005,6 +1034,19 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
         g = _fit_model(model, d, dims, not eff, not het, pr, resolution)
         fits.append((b, eff, het, p, g))
     return _assemble(metric, k, pr, fits, tuple(warnings), level)
+
+
+def _without_regression(pr: Priors) -> Priors:
+    """The priors with the regression models' (PET, PEESE) share moved to the selection
+    models in proportion to theirs, so the prior probability of bias stays the same."""
+    shares = dict(pr.bias_shares)
+    fam = {b: BIAS_MODELS[b].family for b in shares}
+    sel = sum(s for b, s in shares.items() if fam[b] == "selection")
+    total = sum(shares.values())
+    if sel <= 0:   # no selection model has a share: bias as a whole keeps none
+        return replace(pr, bias_shares=tuple((b, 0.0) for b in shares))
+    return replace(pr, bias_shares=tuple(
+        (b, s * total / sel if fam[b] == "selection" else 0.0) for b, s in shares.items()))
 
 
 def _assemble(metric, k, pr, fits, warnings, level) -> ModelAverage:
@@ -1107,6 +1149,10 @@ def reweighted(avg: ModelAverage, priors: Priors, *, level: float = 0.95) -> Mod
 
     old_pr, new_pr = avg.priors, priors.on_metric(avg.metric)
     present = {(m.bias, m.effect, m.heterogeneity) for m in avg.models}
+    regression = [b for b in BIAS_MODELS if BIAS_MODELS[b].family == "regression"]
+    if (not any(b in regression for b, _, _ in present)
+            and all(s == 0 for b, s in old_pr.bias_shares if b in regression)):
+        new_pr = _without_regression(new_pr)   # the fit left PET and PEESE out (same sizes)
     weight = {(b, e, h): p for b, e, h, p in _model_list(new_pr, present)}
     if sum(weight.values()) <= 0:
         weight = dict.fromkeys(weight, 1.0)

@@ -378,9 +378,15 @@ def methods_paragraph(run) -> str:
 
 def _posterior_methods(sc, post, lab, eff_r, eff_p, eff_o) -> str:
     """The planning-effect sentences of the methods paragraph under the model-average rule."""
+    if {m.bias for m in post.models} & {"PET", "PEESE"}:
+        kinds = ("selection models, and PET and PEESE on the standard error a study's size "
+                 "alone gives (Pustejovsky & Rodgers, 2019), with and without an effect and "
+                 "heterogeneity")
+    else:
+        kinds = ("selection models with and without an effect and heterogeneity; PET and "
+                 "PEESE were left out because every study had the same size")
     models = (f"a Bayesian model average over {len(post.models)} publication-bias models "
-              "(selection models, PET and PEESE, with and without an effect and "
-              "heterogeneity; Maier, Bartoš & Wagenmakers, 2023; Bartoš et al., 2023)")
+              f"({kinds}; Maier, Bartoš & Wagenmakers, 2023; Bartoš et al., 2023)")
     bf = post.inclusion_bf["effect"]
     bf_txt = f"{bf:.2f}" if isinstance(bf, float) else "beyond the computable range"
     odds = f"P(effect > 0) = {post.p_positive:.2f}; inclusion Bayes factor for an effect {bf_txt}"

@@ -353,6 +353,7 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
     effect: the verdict says so and, with a SESOI, both scenarios plan on it.
     """
     from dataclasses import replace
+    from pooler.evidence.bias import size_variances
     from pooler.evidence.bma import DEFAULT_PRIORS, model_average, posterior_scenarios, reweighted
     metric = pooled.metric
     sym = "g" if metric == "g" else "z"
@@ -360,7 +361,9 @@ def posterior_rule(pooled, optimistic, *, sesoi_m, sesoi, safeguard_level,
     y = np.array([u.effect for u in pooled.studies], float)
     v = np.array([u.variance for u in pooled.studies], float)
     pr = DEFAULT_PRIORS if priors is None else priors
-    avg = model_average(y, v, metric, pr)
+    # PET's and PEESE's predictor: the SE a study's size alone gives (Pustejovsky & Rodgers
+    # 2019), as in the frequentist regressions of the bias suite
+    avg = model_average(y, v, metric, pr, size_v=size_variances(pooled.studies, metric))
     if avg.p_positive <= 0:
         raise OptionError("the model-averaged posterior puts no mass on a positive effect")
     ps = posterior_scenarios(avg, pessimistic_quantile=pessimistic_quantile, sesoi=sesoi_m)
