@@ -379,3 +379,34 @@ def test_noncentral_t_far_tail_bounds():
     assert float(power_at(3000.0, 40)) == 1.0
     assert float(power_at(-3000.0, 40)) == 1.0
     assert float(power_at(-3000.0, 40, upper_only=True)) == 0.0
+
+
+def test_integer_search_finds_the_smallest_n_whatever_the_guess():
+    # the search settles most cells from the guess in two calls and falls back to doubling
+    # and bisection: against a brute-force scan of a step function, with guesses exact, a
+    # little off, far too low, far too high, missing (NaN), and answers at n_min, beyond
+    # n_max and in between (the round-trip property of STYLE.md: fn(n) ≥ t > fn(n - 1))
+    from pooler.planning.power import _int_search
+    answers = np.array([2, 3, 7, 50, 51, 999, 1000, 1001, 5000, 20_000])
+    n_max = 10_000
+    calls = []
+
+    def fn(n, cells):
+        calls.append(int(cells.sum()))
+        return (np.asarray(n)[cells] >= answers[cells]).astype(float) * 0.9
+
+    for guess in (answers * 1.0, answers + 0.4, answers - 0.6, answers / 10, answers * 10.0,
+                  np.full(answers.shape, np.nan), None):
+        calls.clear()
+        n, reach, at = _int_search(fn, np.full(answers.shape, 0.8), 2,
+                                   np.ones(answers.shape, bool), n_max=n_max, guess=guess)
+        expect_reach = answers <= n_max + 1      # n_max + 1 is tried, as before
+        assert np.array_equal(reach, expect_reach), guess
+        assert np.array_equal(n[reach], answers[reach]), guess
+        assert np.all(n[~reach] == 0) and np.all(np.isnan(at[~reach]))
+        assert np.all(at[reach] == 0.9)
+    # a close guess settles the reachable cells in two calls of the full grid
+    calls.clear()
+    _int_search(fn, np.full(answers.shape, 0.8), 2, answers <= n_max, n_max=n_max,
+                guess=answers - 0.5)
+    assert len(calls) == 2

@@ -381,43 +381,67 @@ class SampleSize:
 def _int_search(fn, target, n_min, valid, n_max=N_MAX, guess=None):
     """Smallest integer n ≥ n_min with fn(n) ≥ target, for every cell at once.
 
-    fn must be non-decreasing in n. With a ``guess`` (e.g. the normal approximation) the
-    search first tries the bracket [0.99 guess - 2, 1.01 guess + 3] and falls back per cell;
-    then it brackets by doubling and bisects. Every cell moves together, so a grid costs a
-    handful of vectorised calls.
+    ``fn(n, cells)`` gives the values at ``n[cells]`` for the cells picked by the boolean
+    mask ``cells`` (a 1-D array), and must be non-decreasing in n. With a ``guess`` (e.g.
+    the normal approximation, usually within one of the answer) the search evaluates
+    a = ⌈guess⌉ and then a - 1 or a + 1, which settles most cells in two calls; the others
+    fall back to doubling and bisection. Every step evaluates only the cells still searching.
+    Returns n (0 where not reached), whether it was reached, and fn at that n (NaN where
+    not reached).
     """
     shape = np.shape(target)
     lo = np.full(shape, n_min - 1, dtype=np.int64)        # fn(lo) < target (by convention)
     hi = np.full(shape, n_min, dtype=np.int64)
+    at_hi = np.full(shape, np.nan)                        # fn(hi) where known to reach
+    known = np.zeros(shape, bool)                         # fn(hi) ≥ target has been seen
+
+    def below_target(n, cells):
+        """fn < target at n on ``cells`` (a mask), as a full-shape mask, and the values."""
+        vals = np.full(shape, np.nan)
+        if cells.any():
+            vals[cells] = fn(n, cells)
+        return cells & (vals < target), vals
+
+    def reached(cells, n, vals):
+        nonlocal hi, at_hi, known
+        hi = np.where(cells, n, hi)
+        at_hi = np.where(cells, vals, at_hi)
+        known = known | cells
+
     if guess is not None:
         g = np.where(valid & np.isfinite(guess), guess, n_min)
-        g = np.clip(g, n_min, n_max)
-        glo = np.clip(np.floor(0.99 * g - 2), n_min, n_max).astype(np.int64)
-        ghi = np.clip(np.ceil(1.01 * g + 3), n_min, n_max).astype(np.int64)
-        below = np.where(valid, fn(glo), 1.0) < target
-        lo = np.where(below, glo, lo)
-        hi = np.where(below, np.maximum(ghi, glo + 1), hi)
-    active = valid.copy()
-    done = np.zeros(shape, bool)
+        a = np.clip(np.ceil(g), n_min, n_max).astype(np.int64)
+        short, vals = below_target(a, valid)
+        reached(valid & ~short, a, vals)
+        lo = np.where(short, a, lo)
+        # one step from a: down where a reaches the target, up where it falls short
+        b = np.where(short, a + 1, a - 1)
+        probe = valid & (b >= n_min) & (b <= n_max)
+        low, vals = below_target(b, probe)
+        lo = np.where(low, b, lo)
+        reached(probe & ~low, b, vals)
+        # still short after a + 1: look further up, from the wider bracket of the guess
+        far = short & low
+        hi = np.where(far, np.clip(np.ceil(1.01 * g + 3), b + 1, n_max + 1).astype(np.int64),
+                      hi)
+        hi = np.where(short & ~probe, n_max + 1, hi)      # a = n_max already falls short
+    active = valid & ~known & (lo < n_max)
     while active.any():
-        p = np.where(active, fn(hi), 1.0)
-        ok = p >= target
-        done |= active & ok
-        grow = active & ~ok
+        grow, vals = below_target(hi, active)
+        reached(active & ~grow, hi, vals)
         lo = np.where(grow, hi, lo)
         hi = np.where(grow, np.minimum(hi * 2, n_max + 1), hi)
         active = grow & (lo < n_max)
-    reach = valid & done
+    reach = valid & known
     while True:
         gap = reach & (hi - lo > 1)
         if not gap.any():
             break
         mid = (lo + hi) // 2
-        p = np.where(gap, fn(np.where(gap, mid, hi)), 0.0)
-        ok = p >= target
-        hi = np.where(gap & ok, mid, hi)
-        lo = np.where(gap & ~ok, mid, lo)
-    return np.where(reach, hi, 0), reach
+        low, vals = below_target(mid, gap)
+        reached(gap & ~low, mid, vals)
+        lo = np.where(low, mid, lo)
+    return np.where(reach, hi, 0), reach, np.where(reach, at_hi, np.nan)
 
 
 def _normal_guess(e, target, alpha, alternative, des):
@@ -456,14 +480,13 @@ def n_for_power(effect, target=0.8, design="two-group", alpha=0.05,
     positive = finite & (e > 0)
     valid = positive & (target > alpha)
 
-    def fn(n):
-        return power_at(e, n, des, alpha, alternative)
+    def fn(n, cells):
+        return power_at(e[cells], n[cells], des, alpha[cells], alternative)
     # the guess only brackets the search: an effect near 0 may give inf (or overflow, for a
     # subnormal effect such as one from F = 1e-311), which the search caps at N_MAX
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         guess = _normal_guess(e, target, alpha, alternative, des)
-    n, reach = _int_search(fn, target, des.n_min, valid, guess=guess)
-    power = np.where(reach, power_at(e, np.maximum(n, des.n_min), des, alpha, alternative), np.nan)
+    n, reach, power = _int_search(fn, target, des.n_min, valid, guess=guess)
     reason = np.full(e.shape, "", dtype=object)
     reason[~positive] = "the effect is zero or goes against the hypothesis: no n reaches the power"
     reason[positive & ~reach] = f"needs more than {N_MAX:,} participants"
@@ -847,9 +870,9 @@ def n_for_assurance(mean, sd, targets=(0.8,), design="two-group", alpha=0.05,
                                   "is positive")
             ns.append(reason), nts.append(reason), ach.append(reason)
             continue
-        def fn(n):
-            return assurance_over(density, np.asarray(n), des, alpha, alternative)
-        n, reach = _int_search(fn, np.asarray(t), des.n_min, np.asarray(True))
+        def fn(n, cells):
+            return assurance_over(density, np.asarray(n)[cells], des, alpha, alternative)
+        n, reach, achieved = _int_search(fn, np.asarray(t), des.n_min, np.asarray(True))
         if not reach:
             reason = NotEstimable(f"needs more than {N_MAX:,} participants")
             ns.append(reason), nts.append(reason), ach.append(reason)
@@ -866,7 +889,7 @@ def n_for_assurance(mean, sd, targets=(0.8,), design="two-group", alpha=0.05,
             continue
         ns.append(ni)
         nts.append(int(des.n_total(ni)))
-        ach.append(float(fn(np.asarray(ni))))
+        ach.append(float(achieved))
     return AssuranceResult(mean=density.mean, sd=density.sd,
                            metric="r" if density.metric == "z" else "d", ceiling=ceiling,
                            targets=tuple(targets), n=tuple(ns), n_total=tuple(nts),
