@@ -235,26 +235,32 @@ def from_design_effect(x, metric: str, design) -> np.ndarray:
 # ------------------------------------------------------------------ power
 
 def _nct_cdf(df, ncp, x):
-    """CDF of the noncentral t, ``scipy.special.nctdtr``, made safe at the extremes.
+    """CDF of the noncentral t, ``scipy.special.nctdtr``, made safe and quick at the extremes.
 
-    - For |λ| ≥ 40, where the answer is 0 or 1 to double precision, it is set from a
-      rigorous bound instead of calling nctdtr (which can take seconds per value there, seen
-      with scipy 1.17.1): T = (Z + λ)/S with S² ~ χ²(df)/df, so for λ > 0,
-      P(T ≤ x) ≤ Φ(-λ) when x ≤ 0, and ≤ Φ(-λ/2) + P(χ²(df) ≥ df (λ / 2x)²) when x > 0;
-      the mirror image holds for λ < 0.
+    - Where a rigorous bound puts the answer within 1e-16 of 0 or 1 it is set to 0 or 1
+      (identical in double precision once added to a power) instead of calling nctdtr, which
+      slows down as |λ| grows (4-9 µs per value for |λ| of 5-40 against 1.2 µs near 0, and
+      seconds per value far out, seen with scipy 1.17.1). With T = (Z + λ)/S and
+      S² ~ χ²(df)/df, for λ > 0: P(T ≤ x) ≤ Φ(-λ) when x ≤ 0, and for x > 0, for any s₀ > 0,
+      P(T ≤ x) ≤ Φ(x s₀ - λ) + P(χ²(df) ≥ df s₀²), taken at s₀ = λ/(2x) and at
+      s₀ = (λ - 8.5)/x (where Φ is about 1e-17), whichever is smaller; the mirror image
+      holds for λ < 0. Checked against scipy.stats.nct (tests/test_power.py).
     - NaNs that nctdtr returns for some far-tail values (tiny probabilities, df in the
       millions) are replaced by the normal limit, Normal(λ, 1).
     """
     df, ncp, x = np.broadcast_arrays(np.asarray(df, float), np.asarray(ncp, float),
                                      np.asarray(x, float))
     out = np.full(ncp.shape, np.nan)
-    big = np.abs(ncp) >= 40
+    big = np.abs(ncp) >= 5     # below this no bound reaches 1e-16
     if big.any():
         a = np.abs(ncp[big])
+        f = df[big]
         xs = np.where(ncp[big] > 0, x[big], -x[big])  # mirror λ < 0 onto λ > 0
         with np.errstate(divide="ignore", invalid="ignore"):
-            chi_tail = np.where(xs > 0, sp.chdtrc(df[big], df[big] * (a / (2 * xs)) ** 2), 0.0)
-        bound = np.where(xs <= 0, sp.ndtr(-a), sp.ndtr(-a / 2) + chi_tail)
+            half = np.where(xs > 0, sp.ndtr(-a / 2) + sp.chdtrc(f, f * (a / (2 * xs)) ** 2), 1.0)
+            s0 = (a - 8.5) / xs
+            tight = np.where((xs > 0) & (s0 > 0), sp.ndtr(-8.5) + sp.chdtrc(f, f * s0 * s0), 1.0)
+        bound = np.where(xs <= 0, sp.ndtr(-a), np.minimum(half, tight))
         tiny = bound < 1e-16
         vals = np.where(ncp[big] > 0, 0.0, 1.0)
         sub = out[big]
