@@ -180,7 +180,7 @@ def stress_paths(ps, *, literatures: int = 40, selection=(1.0, 0.2), seed: int =
     -------
     PathStressResult
     """
-    from pooler.planning.simdesign import _Runner
+    from pooler.planning.parallel import ParallelRunner
     # validation
     if not isinstance(literatures, int) or literatures < 1:
         raise OptionError(f"`literatures` must be a positive whole number, not {literatures!r}")
@@ -203,8 +203,8 @@ def stress_paths(ps, *, literatures: int = 40, selection=(1.0, 0.2), seed: int =
     for i, sel in enumerate(selection):
         for j in range(math.ceil(literatures / CHUNK)):
             tasks.append((spec, sel, min(CHUNK, literatures - j * CHUNK), (seed, i, j)))
-    with _Runner(workers, scheduler) as runner:
-        results = runner.map(tasks, progress, fn=_stress_chunk)
+    with ParallelRunner(workers, scheduler) as runner:
+        results = runner.map(_stress_chunk, tasks, progress)
     cells = []
     per_level = math.ceil(literatures / CHUNK)
     for i, sel in enumerate(selection):
