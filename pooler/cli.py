@@ -754,7 +754,7 @@ def _simulated_run(ctx, sheet, p):
                     progress=_simulation_bar(), estimator=p["estimator"],
                     interval=p["interval"], adjuster=p["adjuster"],
                     safeguard_level=p["safeguard_level"], sample_r=p["sample_r"],
-                    option_hints=False)
+                    option_hints=False, command=_command_line(ctx, sheet))
     _echo_paths_job(job, p["out_dir"], p["fmt"], p["force"], p["as_json"])
 
 
@@ -967,7 +967,8 @@ def template(path, force):
 @_figure_file_options
 @_json_option
 @_simulation_options
-def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
+@click.pass_context
+def paths_cmd(ctx, sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
               interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
               binary_moderator, paths_file, as_correlations, pair_values, test_name, fixed_n,
               powers, alpha, reps, draws, resamples, seed, workers, scheduler, out_dir, fmt,
@@ -1103,7 +1104,8 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
                     paths_file=paths_file, as_correlations=as_correlations, settings=settings,
                     hints=hints, test=test_name, fixed_n=fixed_n, powers=powers, alpha=alpha,
                     reps=reps, draws=draws, resamples=resamples, seed=seed, workers=workers,
-                    scheduler=scheduler, progress=_simulation_bar())
+                    scheduler=scheduler, progress=_simulation_bar(),
+                    command=_command_line(ctx, sheet))
     _echo_paths_job(job, out_dir if fixed_n is None else None, fmt, force, as_json)
 
 

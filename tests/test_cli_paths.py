@@ -41,8 +41,9 @@ def test_search_json_and_files(run_cli, tmp_path):
     assert [s["target"] for s in sols] == ["X-M1-Y", "X-M2-Y", "all indirect"]
     assert all(isinstance(s["n"], int) and s["n_interval"]["low"] <= s["n"] for s in sols)
     assert sorted(p.name for p in out.iterdir() if not p.name.startswith(".")) == [
-        "power_curve.png", "report.md", "results.json"]
+        "power_curve.png", "report.html", "report.md", "results.json"]
     assert "## Methods" in (out / "report.md").read_text()
+    assert json.loads((out / "results.json").read_text()) == doc   # one document
 
 
 def test_moderation_table(run_cli):
