@@ -1090,10 +1090,8 @@ def paths_cmd(ctx, sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator
                            workers=workers, scheduler=scheduler, progress=_simulation_bar())
         if out_dir:
             from pooler.output.outputs import write
-            doc = json.dumps(res.to_dict(), indent=2, allow_nan=False, ensure_ascii=False)
-            write({"results.json": (doc + "\n").encode(),
-                   "report.md": f"# Stress check\n\n```\n{res.text()}```\n".encode()},
-                  out_dir, force=force)
+            from pooler.output.pathsreport import render_stress_check
+            write(render_stress_check(res), out_dir, force=force)
         if as_json:
             _print_json(res.to_dict())
         else:

@@ -4,6 +4,7 @@ lay them out (as tests/test_content_model.py checks for `pooler run`). The liter
 invented demo sheets; the Monte Carlo SE is the binomial one, sqrt(p (1 - p) / reps)."""
 from __future__ import annotations
 
+import json
 import math
 import re
 
@@ -163,3 +164,23 @@ def test_changing_one_block_changes_every_output(monkeypatch, run_cli, tmp_path)
         assert marker in (out / "report.html").read_text(encoding="utf-8")
         tables = re.split("Sample size for each target|Power of every path", res.stdout)[1]
         assert "mediation: a = " not in tables          # the old wording is gone everywhere
+
+
+def test_the_stress_check_is_one_source(run_cli, tmp_path):
+    # `pooler paths SHEET --stress`: the terminal, report.md and report.html show the same
+    # numbers in the same order, and they are results.json's
+    out = tmp_path / "stress"
+    res = run_cli("paths", _demo("practice_feedback_moderation.csv"), "--design",
+                  "moderation", "--stress", "--literatures", 1, "--workers", 1, "--out", out)
+    assert res.exit_code == 0, res.output
+    md = (out / "report.md").read_text(encoding="utf-8")
+    page = (out / "report.html").read_text(encoding="utf-8").split("<body>", 1)[1]
+    assert numbers(res.stdout) == numbers(md) == numbers(page)
+    doc = json.loads((out / "results.json").read_text(encoding="utf-8"))
+    for cell in doc["cells"]:
+        for scenario, shares in cell["cautious"].items():
+            ratio = cell["median_ratio"][scenario]["XZ-Y"]
+            row = [f"{cell['selection']:g}", scenario, "XZ-Y", f"{shares['XZ-Y']:.0%}",
+                   f"{ratio:.2f}", f"{cell['no_plan']}/{cell['literatures']}"]
+            assert re.search(r"\s+".join(map(re.escape, row)), res.stdout), row
+            assert "| " + " | ".join(row) + " |" in md, row

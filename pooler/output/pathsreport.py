@@ -204,6 +204,40 @@ def summary_text(job) -> str:
     return to_text(summary_blocks(job)) + "\n"
 
 
+def stress_check_blocks(res) -> list[Block]:
+    """The stress check of a path sheet (:class:`pooler.planning.pathstress.PathStressResult`):
+    per selection level, scenario and target, how often the plan was cautious, the median
+    planned / true effect and how many literatures gave no plan."""
+    from pooler.planning.pathstress import SCENARIOS
+    effect = ("f^2 of the interaction" if res.design_name == "moderation" else
+              "indirect effect (product of its paths)")
+    rows = tuple((f"{c.selection:g}", s, md_escape(t), f"{c.cautious[s][t]:.0%}",
+                  f"{c.median_ratio[s][t]:.2f}", f"{c.no_plan}/{c.literatures}")
+                 for c in res.cells for s in SCENARIOS for t in res.targets)
+    out = [Block("h1", "Stress check"),
+           Block("p", f"Stress check of {md_escape(res.file)} ({res.design_name}): literatures "
+                      "like the sheet's simulated from its realistic correlations:"),
+           Block("list", items=(f"truth: {safe_md(res.truth.describe())}",
+                                f"planned effect: the {effect}; cautious = no larger than the "
+                                f"true one (seed {res.seed})")),
+           Block("table", headers=("non-significant published", "scenario", "target",
+                                   "cautious", "median planned/true", "no plan"), rows=rows)]
+    reasons = sorted({r for c in res.cells for r in c.reasons})
+    if reasons:
+        out.append(Block("note", "No plan because: " + "; ".join(md_escape(r)
+                                                                  for r in reasons[:3])))
+    return out
+
+
+def render_stress_check(res) -> dict:
+    """The files of a stress check: results.json, report.md, report.html."""
+    blocks = stress_check_blocks(res)
+    return {"results.json": (json.dumps(res.to_dict(), indent=2, allow_nan=False,
+                                        ensure_ascii=False) + "\n").encode("utf-8"),
+            "report.md": to_markdown(blocks).encode("utf-8"),
+            "report.html": to_html(blocks, {}, "pooler: stress check").encode("utf-8")}
+
+
 # ------------------------------------------------------------------ files
 
 def figure_stems(results) -> list[str]:
