@@ -209,7 +209,9 @@ def _seed_and_workers(workers_help: str):
 _scheduler_option = click.option(
     "--scheduler", default=None, metavar="ADDRESS",
     help="Run the simulation on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) "
-         "instead of local processes; same results. Needs pooler[cluster].")
+         "instead of local processes; same results. Needs pooler[cluster]. An address "
+         "that cannot be reached within dask's connect timeout (30 s by default) stops "
+         "with exit code 2.")
 
 
 def _figure_file_options(f):
@@ -956,7 +958,8 @@ def template(path, force):
 @click.option("--alpha", type=float, default=0.05, show_default=True,
               help="Two-sided significance level.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
-              help="Folder for results.json, report.md and the power-curve figure.")
+              help="Folder for results.json, report.md, report.html and the figures (a "
+                   "power curve per scenario; from a SHEET, the path diagram).")
 @click.option("--stress", is_flag=True,
               help="With a SHEET: instead of planning, simulate literatures like the sheet's "
                    "from its realistic correlations (with and without selection for "
