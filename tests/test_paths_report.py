@@ -9,14 +9,9 @@ import math
 import re
 
 import pytest
+from test_content_model import numbers
 
 from pooler.output.blocks import Block, brief, html_fragment, to_markdown, to_text
-
-NUMBER = re.compile(r"(?<![\w.])[-+]?\d[\d,]*(?:\.\d+)?%?")
-
-
-def numbers(text: str) -> list[str]:
-    return NUMBER.findall(text)
 
 
 def _demo(name):

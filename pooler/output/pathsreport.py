@@ -427,16 +427,20 @@ def _moderation_methods(ps) -> str:
 
 # ------------------------------------------------------------------ figures
 
+def _figure_and_axes(ax, size):
+    """``ax`` and its Figure, or a new Figure of ``size`` inches with one Axes."""
+    if ax is not None:
+        return ax.figure, ax
+    from matplotlib.figure import Figure
+    fig = Figure(figsize=size, layout="constrained")
+    return fig, fig.add_subplot()
+
+
 def curve_figure(result, *, ax=None):
     """Simulated power (points, +-2 MC SE) and the fitted curve of every target, with the
     power goals as light horizontal lines. Returns the Figure."""
     import numpy as np
-    if ax is None:
-        from matplotlib.figure import Figure
-        fig = Figure(figsize=(6.3, 3.8), layout="constrained")
-        ax = fig.add_subplot()
-    else:
-        fig = ax.figure
+    fig, ax = _figure_and_axes(ax, (6.3, 3.8))
     colours = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#6b6b6b"]
     targets = list(dict.fromkeys(s.target for s in result.solutions))
     ns_all = [p.n for p in result.points]
@@ -476,12 +480,7 @@ def diagram_figure(ps, *, ax=None):
     model and a dashed line for a correlation between parallel mediators, each labelled
     with the pair's pooled and realistic correlation. Returns the Figure."""
     from matplotlib.patches import FancyArrowPatch, FancyBboxPatch
-    if ax is None:
-        from matplotlib.figure import Figure
-        fig = Figure(figsize=(6.6, 4.0), layout="constrained")
-        ax = fig.add_subplot()
-    else:
-        fig = ax.figure
+    fig, ax = _figure_and_axes(ax, (6.6, 4.0))
     if ps.design_name == "moderation":
         return _moderation_diagram(ps, ax, FancyArrowPatch, FancyBboxPatch)
     variables = ps.variables
