@@ -959,7 +959,7 @@ def template(path, force):
               help="Two-sided significance level.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for results.json, report.md, report.html and the figures (a "
-                   "power curve per scenario; from a SHEET, the path diagram).")
+                   "power curve per scenario; from a SHEET, the path diagram; none with --n).")
 @click.option("--stress", is_flag=True,
               help="With a SHEET: instead of planning, simulate literatures like the sheet's "
                    "from its realistic correlations (with and without selection for "
@@ -1107,7 +1107,7 @@ def paths_cmd(ctx, sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator
                     reps=reps, draws=draws, resamples=resamples, seed=seed, workers=workers,
                     scheduler=scheduler, progress=_simulation_bar(),
                     command=_command_line(ctx, sheet))
-    _echo_paths_job(job, out_dir if fixed_n is None else None, fmt, force, as_json)
+    _echo_paths_job(job, out_dir, fmt, force, as_json)
 
 
 def _mediation_pairs(design_name, a_paths, b_paths, direct, m1_m2):
