@@ -971,8 +971,8 @@ def template(path, force):
 @_json_option
 @_simulation_options
 @click.pass_context
-def paths_cmd(ctx, sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
-              interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
+def paths_cmd(ctx, sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect,
+              z_effect, interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
               binary_moderator, paths_file, as_correlations, pair_values, test_name, fixed_n,
               powers, alpha, reps, draws, resamples, seed, workers, scheduler, out_dir, fmt,
               force, as_json, stress, literatures):

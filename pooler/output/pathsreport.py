@@ -6,8 +6,9 @@ each scenario, the methods paragraph, the caution, the reproducibility details) 
 once, from the result objects, as :class:`pooler.output.blocks.Block` values; the terminal
 (:func:`summary_blocks`: the blocks not marked ``detail``), ``report.md`` and
 ``report.html`` (:func:`build_blocks`: every block) and a notebook's ``_repr_html_`` render
-those same blocks, as :mod:`pooler.output.document` does for ``pooler run``.
-:mod:`pooler.planning.simdesign` computes the numbers; matplotlib is imported inside the
+those same blocks, as :mod:`pooler.output.document` does for ``pooler run``; so does the
+stress check of a path sheet (:func:`stress_check_blocks`). :mod:`pooler.planning.simdesign`
+and :mod:`pooler.planning.pathstress` compute the numbers; matplotlib is imported inside the
 figure functions only.
 """
 from __future__ import annotations
