@@ -209,7 +209,9 @@ def _seed_and_workers(workers_help: str):
 _scheduler_option = click.option(
     "--scheduler", default=None, metavar="ADDRESS",
     help="Run the simulation on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) "
-         "instead of local processes; same results. Needs pooler[cluster].")
+         "instead of local processes; same results. Needs pooler[cluster]. An address "
+         "that cannot be reached within dask's connect timeout (30 s by default) stops "
+         "with exit code 2.")
 
 
 def _figure_file_options(f):
@@ -754,7 +756,7 @@ def _simulated_run(ctx, sheet, p):
                     progress=_simulation_bar(), estimator=p["estimator"],
                     interval=p["interval"], adjuster=p["adjuster"],
                     safeguard_level=p["safeguard_level"], sample_r=p["sample_r"],
-                    option_hints=False)
+                    option_hints=False, command=_command_line(ctx, sheet))
     _echo_paths_job(job, p["out_dir"], p["fmt"], p["force"], p["as_json"])
 
 
@@ -956,7 +958,8 @@ def template(path, force):
 @click.option("--alpha", type=float, default=0.05, show_default=True,
               help="Two-sided significance level.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
-              help="Folder for results.json, report.md and the power-curve figure.")
+              help="Folder for results.json, report.md, report.html and the figures (a "
+                   "power curve per scenario; from a SHEET, the path diagram; none with --n).")
 @click.option("--stress", is_flag=True,
               help="With a SHEET: instead of planning, simulate literatures like the sheet's "
                    "from its realistic correlations (with and without selection for "
@@ -967,8 +970,9 @@ def template(path, force):
 @_figure_file_options
 @_json_option
 @_simulation_options
-def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect, z_effect,
-              interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
+@click.pass_context
+def paths_cmd(ctx, sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x_effect,
+              z_effect, interaction, slope_high, slope_low, xz_r, x_reliability, z_reliability,
               binary_moderator, paths_file, as_correlations, pair_values, test_name, fixed_n,
               powers, alpha, reps, draws, resamples, seed, workers, scheduler, out_dir, fmt,
               force, as_json, stress, literatures):
@@ -1089,10 +1093,8 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
                            workers=workers, scheduler=scheduler, progress=_simulation_bar())
         if out_dir:
             from pooler.output.outputs import write
-            doc = json.dumps(res.to_dict(), indent=2, allow_nan=False, ensure_ascii=False)
-            write({"results.json": (doc + "\n").encode(),
-                   "report.md": f"# Stress check\n\n```\n{res.text()}```\n".encode()},
-                  out_dir, force=force)
+            from pooler.output.pathsreport import render_stress_check
+            write(render_stress_check(res), out_dir, force=force)
         if as_json:
             _print_json(res.to_dict())
         else:
@@ -1103,8 +1105,9 @@ def paths_cmd(sheet, design_name, a_paths, b_paths, direct, m1_m2, mediator_r, x
                     paths_file=paths_file, as_correlations=as_correlations, settings=settings,
                     hints=hints, test=test_name, fixed_n=fixed_n, powers=powers, alpha=alpha,
                     reps=reps, draws=draws, resamples=resamples, seed=seed, workers=workers,
-                    scheduler=scheduler, progress=_simulation_bar())
-    _echo_paths_job(job, out_dir if fixed_n is None else None, fmt, force, as_json)
+                    scheduler=scheduler, progress=_simulation_bar(),
+                    command=_command_line(ctx, sheet))
+    _echo_paths_job(job, out_dir, fmt, force, as_json)
 
 
 def _mediation_pairs(design_name, a_paths, b_paths, direct, m1_m2):

@@ -34,11 +34,16 @@ class PathsJob:
     options : dict
         The settings that reproduce the job (recorded in results.json).
     methods : str
-        The methods paragraph ('' at a fixed n).
+        How the sample sizes were found ('' at a fixed n); the whole methods paragraph,
+        with the pooling of the paths, is :func:`pooler.output.pathsreport.methods_text`.
     sheet : pooler.reading.pathsheet.PathSheet or None
         Every path's pooling, when the paths came from a sheet.
     note : str
         A note printed under the table (Sobel's test is for comparison only).
+    warnings : tuple of str
+        The conversion warnings of the sheet's rows.
+    command : str
+        The command line that repeats the job ('' when not run from the command line).
     """
 
     design_name: str
@@ -50,49 +55,46 @@ class PathsJob:
     sheet: object = None
     note: str = ""
     warnings: tuple = field(default=())
+    command: str = ""
 
     def to_dict(self) -> dict:
         """The JSON document: ``pooler.paths/1`` (a search) or ``pooler.paths-power/1``."""
         if self.fixed_n is not None:
             doc = {"schema": "pooler.paths-power/1",
                    "scenarios": [dict(r.to_dict(), scenario=lab)
-                                 for lab, r in zip(self.scenarios, self.results)]}
+                                 for lab, r in zip(self.scenarios, self.results)],
+                   "options": self.options}
         else:
-            from pooler.output.pathsreport import SCHEMA
+            from pooler.output.pathsreport import SCHEMA, methods_text
             doc = {"schema": SCHEMA, "scenarios": [r.to_dict() for r in self.results],
-                   "options": self.options, "methods": self.methods}
+                   "options": self.options, "methods": methods_text(self)}
         if self.sheet is not None:
             doc["paths"] = self.sheet.to_dict()
-            if self.fixed_n is None:
-                from pooler.output.pathsreport import sheet_methods_paragraph
-                doc["methods"] = sheet_methods_paragraph(self.sheet) + " " + self.methods
         return to_jsonable(doc)
 
+    def blocks(self) -> list:
+        """The report as blocks (:func:`pooler.output.pathsreport.build_blocks`)."""
+        from pooler.output.pathsreport import build_blocks
+        return build_blocks(self)
+
     def text(self) -> str:
-        """The terminal text: every path's pooling (from a sheet), then the planning table
-        (or the power at the fixed n) of each scenario."""
-        from pooler.output.pathsreport import paths_sheet_text, plan_text, power_text
-        out = paths_sheet_text(self.sheet) + "\n" if self.sheet is not None else ""
-        if self.fixed_n is not None:
-            out += "\n".join((f"{lab}: " if lab else "") + power_text(r)
-                             for lab, r in zip(self.scenarios, self.results))
-            return out + (self.note + "\n" if self.note else "")
-        return out + plan_text(self.results, self.note)
+        """The terminal text: the report's blocks not marked ``detail`` (every path's
+        pooling from a sheet, the planning table or the power at the fixed n of each
+        scenario, the caution)."""
+        from pooler.output.pathsreport import summary_text
+        return summary_text(self)
 
     def files(self, fmt: str = "png") -> dict:
-        """Every output file as name -> bytes: results.json, report.md, a power-curve figure
-        per scenario and, from a sheet, the path diagram (at a fixed n: results.json and
-        report.md)."""
-        import json
-        from pooler.output.pathsreport import render_files, render_sheet_files
-        if self.fixed_n is not None:   # power at one n: the document and the tables
-            doc = json.dumps(self.to_dict(), indent=2, allow_nan=False, ensure_ascii=False)
-            md = f"# Power by simulation at n = {self.fixed_n:,}\n\n```\n{self.text()}```\n"
-            return {"results.json": (doc + "\n").encode(), "report.md": md.encode()}
-        if self.sheet is not None:
-            return render_sheet_files(self.results, self.sheet, self.options, self.methods,
-                                      fmt)
-        return render_files(self.results, self.options, self.methods, fmt)
+        """Every output file as name -> bytes: results.json, report.md, report.html, a
+        power-curve figure per scenario and, from a sheet, the path diagram (at a fixed n:
+        results.json, report.md and report.html)."""
+        from pooler.output.pathsreport import render
+        return render(self, fmt)
+
+    def _repr_html_(self) -> str:
+        """A notebook shows the report's blocks (without the figures)."""
+        from pooler.output.blocks import html_fragment
+        return html_fragment(self.blocks())
 
 
 def _check_sheet_settings(settings: dict) -> None:
@@ -142,14 +144,15 @@ def paths_job(design_name: str, *, sheet=None, given: dict | None = None,
               seed: int = 2026, workers: int = 1, scheduler=None,
               progress: Callable | None = None, estimator: str = "reml",
               interval: str = "hksj", adjuster: str = "default", safeguard_level: float = 0.6,
-              sample_r: float = 0.5, option_hints: bool = True) -> PathsJob:
+              sample_r: float = 0.5, option_hints: bool = True, command: str = "") -> PathsJob:
     """Plan a simulated design (mediation or moderation).
 
     With ``sheet``, each pair of the model is pooled from its rows
     (:func:`pooler.reading.pathsheet.pool_paths`, with the analysis options ``estimator`` ...
     ``sample_r``) and ``given`` holds the correlations of pairs without rows; otherwise
     ``given`` holds the standardized paths (and ``paths_file`` scenarios of them);
-    ``option_hints`` lets a missing pair's message name ``pooler paths``' own options. Each
+    ``option_hints`` lets a missing pair's message name ``pooler paths``' own options;
+    ``command`` is the command line that repeats the job, for the report. Each
     scenario is then searched for the n reaching ``powers``
     (:func:`pooler.planning.simdesign.plan_paths`), or simulated at ``fixed_n``
     (:func:`pooler.planning.simdesign.simulate_power`).
@@ -185,21 +188,25 @@ def paths_job(design_name: str, *, sheet=None, given: dict | None = None,
                   progress=progress)
     note = SOBEL_NOTE if test == "sobel" else ""
     warnings = ps.warnings if ps is not None else ()
+    def settings(results, used_reps):
+        return {"design": design_name, "test": results[0].test, "alpha": alpha,
+                "reps": used_reps, "draws": draws, "resamples": resamples, "seed": seed,
+                "paths_file": str(paths_file) if paths_file else None,
+                "sheet": str(sheet) if sheet is not None else None}
     if fixed_n is not None:
         res = tuple(sd.simulate_power(d, fixed_n, reps=reps, stream=i, workers=workers,
                                       scheduler=scheduler, **common)
                     for i, d in enumerate(scenarios.values()))
-        return PathsJob(design_name, scenarios, res, fixed_n, {}, "", ps, note, warnings)
+        options = {**settings(res, res[0].estimates[0].reps), "n": fixed_n}
+        return PathsJob(design_name, scenarios, res, fixed_n, options, "", ps, note, warnings,
+                        command)
     search_reps = reps or (200 if test == "bootstrap" else 1000)
     results = sd.plan_paths(scenarios, powers=tuple(powers or (0.8, 0.9, 0.95)),
                             reps=search_reps, workers=workers, scheduler=scheduler, **common)
     from pooler.output.pathsreport import methods_paragraph
     methods = methods_paragraph(results, search_reps, draws, resamples)
-    options = {"design": design_name, "test": results[0].test, "alpha": alpha,
-               "reps": search_reps, "draws": draws, "resamples": resamples, "seed": seed,
-               "paths_file": str(paths_file) if paths_file else None,
-               "sheet": str(sheet) if sheet is not None else None}
-    return PathsJob(design_name, scenarios, results, None, options, methods, ps, note, warnings)
+    return PathsJob(design_name, scenarios, results, None, settings(results, search_reps),
+                    methods, ps, note, warnings, command)
 
 
 def paths_stress(design_name: str, sheet, *, given: dict | None = None,

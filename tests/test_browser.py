@@ -183,6 +183,29 @@ def test_report_in_a_real_browser(browser, demo_report):
     assert page["errors"] == []
 
 
+def test_paths_report_in_a_real_browser(browser, tmp_path):
+    # the report of a simulated design (the invented garden path literature): every figure
+    # (a power curve per scenario and the path diagram) loads, and the page logs no errors
+    from click.testing import CliRunner
+
+    from pathlib import Path
+
+    from pooler.cli import main
+    out = tmp_path / "paths"
+    sheet = Path(__file__).resolve().parents[1] / "demo_literature" / "garden_paths.csv"
+    res = CliRunner().invoke(main, ["paths", str(sheet), "--design", "parallel-mediation",
+                                    "--test", "joint", "--power", "0.8", "--reps", "200",
+                                    "--workers", "1", "--out", str(out)],
+                             catch_exceptions=False)
+    assert res.exit_code == 0, res.output
+    page = _open(browser, out / "report.html")
+    assert page["scrolled"] == 0 and page["decision"] is None
+    assert sorted(i["alt"].split(":")[0] for i in page["images"]) == [
+        "Path diagram of parallel-mediation", "optimistic", "pessimistic", "realistic"]
+    assert all(i["ok"] and i["width"] > 100 for i in page["images"]), page["images"]
+    assert page["errors"] == []
+
+
 def test_the_checks_catch_a_broken_page(browser, tmp_path):
     # the same checks on a page that is broken in each way they look for
     bad = tmp_path / "broken.html"

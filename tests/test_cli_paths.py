@@ -21,12 +21,18 @@ def test_cli_import_does_not_load_numpy():
     assert out == ["False", "False"]
 
 
-def test_power_at_fixed_n(run_cli):
+def test_power_at_fixed_n(run_cli, tmp_path):
+    out = tmp_path / "at_n"
     res = run_cli("paths", "--design", "simple-mediation", "--a", 0.3, "--b", 0.3,
-                  "--test", "sobel", "--n", 100, "--reps", 500, "--workers", 1)
+                  "--test", "sobel", "--n", 100, "--reps", 500, "--workers", 1, "--out", out)
     assert res.exit_code == 0, res.output
     assert "X-M-Y" in res.output and "n = 100" in res.output
     assert "low-powered" in res.output
+    # --out writes the report of the power at n too (no figures: there is no curve)
+    assert sorted(p.name for p in out.iterdir() if not p.name.startswith(".")) == [
+        "report.html", "report.md", "results.json"]
+    assert json.loads((out / "results.json").read_text())["schema"] == "pooler.paths-power/1"
+    assert "| X-M-Y | " in (out / "report.md").read_text()
 
 
 def test_search_json_and_files(run_cli, tmp_path):
@@ -41,8 +47,9 @@ def test_search_json_and_files(run_cli, tmp_path):
     assert [s["target"] for s in sols] == ["X-M1-Y", "X-M2-Y", "all indirect"]
     assert all(isinstance(s["n"], int) and s["n_interval"]["low"] <= s["n"] for s in sols)
     assert sorted(p.name for p in out.iterdir() if not p.name.startswith(".")) == [
-        "power_curve.png", "report.md", "results.json"]
+        "power_curve.png", "report.html", "report.md", "results.json"]
     assert "## Methods" in (out / "report.md").read_text()
+    assert json.loads((out / "results.json").read_text()) == doc   # one document
 
 
 def test_moderation_table(run_cli):

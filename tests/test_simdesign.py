@@ -319,17 +319,6 @@ def test_results_do_not_depend_on_workers():
     assert one.to_dict() == two.to_dict()
 
 
-def test_dask_local_cluster_gives_identical_results():
-    distributed = pytest.importorskip("dask.distributed")
-    d = SerialMediation(0.3, 0.3, 0.3, direct=0.1)
-    local = simulate_power(d, 80, test="joint", reps=750, seed=25)
-    with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
-                                  dashboard_address=None) as cluster, \
-            distributed.Client(cluster) as client:
-        remote = simulate_power(d, 80, test="joint", reps=750, seed=25, scheduler=client)
-    assert local.to_dict() == remote.to_dict()
-
-
 def test_progress_is_reported():
     seen = []
     simulate_power(SimpleMediation(0.3, 0.3), 60, test="joint", reps=600, seed=26,

@@ -36,18 +36,12 @@ def effects_csv(effects) -> str:
     return buf.getvalue()
 
 
-def render(run, fmt: str = "png") -> dict[str, bytes]:
-    """Every output file of ``run`` as name -> bytes."""
+def figure_files(figs: dict, fmt: str) -> tuple[dict[str, bytes], dict[str, bytes]]:
+    """Figures (stem -> matplotlib Figure) as files ``<stem>.<fmt>`` -> bytes, and as PNG
+    (stem -> bytes) for the HTML report to embed."""
     from pooler.output import plots
-    from pooler.output.document import build_blocks, to_html, to_markdown
-    from pooler.output.report import plan_csv
     if fmt not in ("png", "svg", "pdf"):
         raise OptionError(f"--format must be png, svg or pdf, not {fmt!r}")
-    a = run.analysis
-    figs = {"forest": plots.forest_plot(a.pooled, a.scenarios),
-            "funnel": plots.funnel_plot(a.pooled, a.bias),
-            "ladder": plots.estimate_ladder(a.pooled, a.bias, a.scenarios),
-            "power": plots.power_curves(run.plan)}
     files: dict[str, bytes] = {}
     png: dict[str, bytes] = {}
     for name, fig in figs.items():
@@ -60,6 +54,20 @@ def render(run, fmt: str = "png") -> dict[str, bytes]:
             b2 = io.BytesIO()
             plots.save(fig, b2, "png")
             png[name] = b2.getvalue()
+    return files, png
+
+
+def render(run, fmt: str = "png") -> dict[str, bytes]:
+    """Every output file of ``run`` as name -> bytes."""
+    from pooler.output import plots
+    from pooler.output.document import build_blocks, to_html, to_markdown
+    from pooler.output.report import plan_csv
+    a = run.analysis
+    figs = {"forest": plots.forest_plot(a.pooled, a.scenarios),
+            "funnel": plots.funnel_plot(a.pooled, a.bias),
+            "ladder": plots.estimate_ladder(a.pooled, a.bias, a.scenarios),
+            "power": plots.power_curves(run.plan)}
+    files, png = figure_files(figs, fmt)
     blocks = build_blocks(run)
     files["report.md"] = to_markdown(blocks, fmt).encode("utf-8")
     files["report.html"] = to_html(blocks, png, "pooler report").encode("utf-8")

@@ -16,8 +16,8 @@ rises with f^2; for an indirect effect approximately, through the product of its
 
 Work units (a chunk of literatures at one selection level) are seeded from
 ``numpy.random.SeedSequence(seed, spawn_key=(level, chunk))`` and run on local processes or
-a dask.distributed cluster through the simulation engine's runner, so results are identical
-whatever runs them.
+a dask.distributed cluster by :class:`pooler.planning.parallel.ParallelRunner`, so results are
+identical whatever runs them.
 """
 from __future__ import annotations
 
@@ -26,7 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from pooler._results import text_table, to_jsonable
+from pooler._results import to_jsonable
 from pooler.errors import InputError, OptionError
 
 #: Literatures per work unit.
@@ -138,26 +138,10 @@ class PathStressResult:
         return pd.DataFrame(rows)
 
     def text(self) -> str:
-        effect = "f^2 of the interaction" if self.design_name == "moderation" else \
-            "indirect effect (product of its paths)"
-        out = [f"Stress check of {self.file} ({self.design_name}): literatures like the sheet's "
-               f"simulated from its realistic correlations",
-               f"  truth: {self.truth.describe()}",
-               f"  planned effect: the {effect}; cautious = no larger than the true one "
-               f"(seed {self.seed})", ""]
-        rows = []
-        for c in self.cells:
-            for s in SCENARIOS:
-                for t in self.targets:
-                    rows.append([f"{c.selection:g}", s, t, f"{c.cautious[s][t]:.0%}",
-                                 f"{c.median_ratio[s][t]:.2f}",
-                                 f"{c.no_plan}/{c.literatures}"])
-        out.append(text_table(["non-significant published", "scenario", "target",
-                               "cautious", "median planned/true", "no plan"], rows))
-        reasons = sorted({r for c in self.cells for r in c.reasons})
-        if reasons:
-            out.append("No plan because: " + "; ".join(reasons[:3]))
-        return "\n".join(out) + "\n"
+        """What the terminal shows (:func:`pooler.output.pathsreport.stress_check_blocks`)."""
+        from pooler.output.blocks import to_text
+        from pooler.output.pathsreport import stress_check_blocks
+        return to_text(stress_check_blocks(self)) + "\n"
 
 
 def stress_paths(ps, *, literatures: int = 40, selection=(1.0, 0.2), seed: int = 2026,
@@ -180,7 +164,7 @@ def stress_paths(ps, *, literatures: int = 40, selection=(1.0, 0.2), seed: int =
     -------
     PathStressResult
     """
-    from pooler.planning.simdesign import _Runner
+    from pooler.planning.parallel import ParallelRunner
     # validation
     if not isinstance(literatures, int) or literatures < 1:
         raise OptionError(f"`literatures` must be a positive whole number, not {literatures!r}")
@@ -203,8 +187,8 @@ def stress_paths(ps, *, literatures: int = 40, selection=(1.0, 0.2), seed: int =
     for i, sel in enumerate(selection):
         for j in range(math.ceil(literatures / CHUNK)):
             tasks.append((spec, sel, min(CHUNK, literatures - j * CHUNK), (seed, i, j)))
-    with _Runner(workers, scheduler) as runner:
-        results = runner.map(tasks, progress, fn=_stress_chunk)
+    with ParallelRunner(workers, scheduler) as runner:
+        results = runner.map(_stress_chunk, tasks, progress)
     cells = []
     per_level = math.ceil(literatures / CHUNK)
     for i, sel in enumerate(selection):

@@ -55,6 +55,7 @@ from scipy import special as sp
 from pooler._results import Interval, NotEstimable, to_jsonable
 from pooler._threads import one_blas_thread
 from pooler.errors import OptionError
+from pooler.planning.parallel import ParallelRunner
 
 #: Replications per work unit (the unit of parallel work and of seeding).
 CHUNK = 250
@@ -728,70 +729,8 @@ def _total(truth, design):
 
 
 # --------------------------------------------------------------------------------------------
-# Running chunks: in this process, in local processes, or on a dask.distributed cluster
+# Work units (run by pooler.planning.parallel.ParallelRunner)
 # --------------------------------------------------------------------------------------------
-
-class _Runner:
-    """Runs a list of chunk arguments and returns their results in the same order.
-
-    ``scheduler``: None (local), a dask.distributed scheduler address, or a dask Client.
-    """
-
-    def __init__(self, workers: int = 1, scheduler=None):
-        self.workers, self.scheduler = workers, scheduler
-        self._pool = self._client = None
-        self._own_client = False
-
-    def __enter__(self):
-        if self.scheduler is not None:
-            try:
-                from dask.distributed import Client
-            except ImportError as exc:  # pragma: no cover - depends on the installation
-                raise OptionError("running on a cluster needs dask.distributed: "
-                                  "pip install 'pooler[cluster]'") from exc
-            if isinstance(self.scheduler, str):
-                self._client = Client(self.scheduler)
-                self._own_client = True
-            else:
-                self._client = self.scheduler
-        elif self.workers > 1:
-            from concurrent.futures import ProcessPoolExecutor
-            self._pool = ProcessPoolExecutor(max_workers=self.workers)
-        return self
-
-    def __exit__(self, *exc):
-        if self._pool is not None:
-            self._pool.shutdown()
-        if self._own_client:
-            self._client.close()
-        return False
-
-    def map(self, tasks, progress=None, offset=0, total=None, fn=None):
-        """``fn`` (default: one chunk of replications) applied to each task, in order;
-        ``fn`` must be importable by the workers (a module-level function)."""
-        fn = fn or _run_chunk
-        total = total or len(tasks)
-        if self._client is not None:
-            from dask.distributed import as_completed
-            futs = self._client.map(fn, tasks, pure=False)
-            for done, _ in enumerate(as_completed(futs), start=1):
-                if progress:
-                    progress(offset + done, total)
-            return self._client.gather(futs)
-        if self._pool is not None:
-            from concurrent.futures import as_completed
-            futs = [self._pool.submit(fn, t) for t in tasks]
-            for done, _ in enumerate(as_completed(futs), start=1):
-                if progress:
-                    progress(offset + done, total)
-            return [f.result() for f in futs]
-        out = []
-        for done, t in enumerate(tasks, start=1):
-            out.append(fn(t))
-            if progress:
-                progress(offset + done, total)
-        return out
-
 
 def _tasks(plan, n, reps, seed, stream, stage):
     chunks = math.ceil(reps / CHUNK)
@@ -930,8 +869,9 @@ def simulate_power(design, n: int, *, test: str | None = None, reps: int | None 
     if reps is None:
         reps = TESTS[test].default_reps if test else 2000
     plan = _Plan(design, test, float(alpha), int(draws), int(resamples))
-    with _Runner(workers, scheduler) as runner:
-        counts = _merge(runner.map(_tasks(plan, int(n), reps, seed, stream, 0), progress))
+    with ParallelRunner(workers, scheduler) as runner:
+        counts = _merge(runner.map(_run_chunk, _tasks(plan, int(n), reps, seed, stream, 0),
+                                   progress))
     return PowerResult(design, test, float(alpha), int(n), seed,
                        _estimates(design, test, int(n), reps, counts))
 
@@ -1158,7 +1098,7 @@ def find_n(design, *, test: str | None = None, powers=(0.8, 0.9, 0.95), targets=
 
     def run(runner, ns, r, stage):
         tasks = [t for n in ns for t in _tasks(plan, int(n), r, seed, stream, stage)]
-        res = runner.map(tasks, progress)
+        res = runner.map(_run_chunk, tasks, progress)
         fresh: dict = {}
         for t, c in zip(tasks, res):
             for store in (counts.setdefault(t[1], {}), fresh.setdefault(t[1], {})):
@@ -1246,7 +1186,7 @@ def find_n(design, *, test: str | None = None, powers=(0.8, 0.9, 0.95), targets=
     if _runner is not None:
         sols, fits = body(_runner)
     else:
-        with _Runner(workers, scheduler) as runner:
+        with ParallelRunner(workers, scheduler) as runner:
             sols, fits = body(runner)
     points = tuple(PowerEstimate(t, n, counts[n][t][1], counts[n][t][0])
                    for t in known for n in sorted(counts))
@@ -1268,7 +1208,7 @@ def plan_paths(scenarios: dict, **options) -> tuple:
     pessimistic), sharing one pool of workers; each scenario its own random stream."""
     workers = options.pop("workers", 1)
     scheduler = options.pop("scheduler", None)
-    with _Runner(workers, scheduler) as runner:
+    with ParallelRunner(workers, scheduler) as runner:
         return tuple(find_n(d, label=lab, stream=i, _runner=runner, **options)
                      for i, (lab, d) in enumerate(scenarios.items()))
 

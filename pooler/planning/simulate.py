@@ -341,7 +341,7 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
     progress : callable(done, total) or None
     scheduler : str or dask.distributed.Client, optional
         Run the chunks on a dask.distributed cluster instead of local processes (the same
-        seeds give the same results; :class:`pooler.planning.simdesign._Runner`).
+        seeds give the same results; :class:`pooler.planning.parallel.ParallelRunner`).
     rule_options : dict, optional
         Settings of the model-average rule by their option names (``effect_prior_sd``, ...,
         ``pessimistic_quantile``; ``pooler.choices.MODEL_AVERAGE_OPTIONS``).
@@ -373,9 +373,9 @@ def stress_test(cells, shapes: Shapes, *, reps=100, seed=2026, workers=2, design
     results: dict[int, list] = {i: [None] * n_chunks for i in range(len(cells))}
     if progress:  # show the bar from the start, before the first chunk is done
         progress(0, len(tasks))
-    from pooler.planning.simdesign import _Runner
-    with _Runner(workers, scheduler) as runner:
-        values = runner.map([args for _, args in tasks], progress=progress, fn=_run_chunk)
+    from pooler.planning.parallel import ParallelRunner
+    with ParallelRunner(workers, scheduler) as runner:
+        values = runner.map(_run_chunk, [args for _, args in tasks], progress=progress)
     for (key, _), value in zip(tasks, values):
         results[key[0]][key[1]] = value
     out = []
