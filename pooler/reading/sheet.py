@@ -64,7 +64,8 @@ COLUMN_GUIDE: dict[str, str] = {
     "events1": "events among n1 (counts)", "events2": "events among n2 (counts)",
     "ci_low": "lower 95% limit of an odds ratio", "ci_high": "upper 95% limit of an odds ratio",
     "direction": "+ if the result favours the hypothesis, - if not (required for F, chi2, p)",
-    "design": "between (default) or within",
+    "design": "between (default), within, or correlation (a t, F(1, df) or p that tests a "
+              "correlation: r = t / sqrt(t^2 + n - 2), Fisher z variance 1/(n - 3))",
     "within_r": "correlation between the repeated measures of a within-subject row",
     "tails": "1 or 2, for p (default 2)",
     "year": "publication year (cumulative analysis)",
@@ -578,7 +579,9 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma, notes) -> Re
         v = values[key]
         if v is not None and not math.isfinite(v):
             raise err(key, f"'{v}' is not a finite number")
-    pos = ("n1", "n2", "n", "df", "df1", "predictors")
+    # an SD of 0 is refused by the conversion of means too (the standardiser must be > 0),
+    # so a negative SD is told the same rule rather than "zero or more"
+    pos = ("n1", "n2", "n", "df", "df1", "predictors", "sd1", "sd2")
     for key in ("n1", "n2", "n", "df", "df1", "sd1", "sd2", "events1", "events2", "predictors"):
         v = values[key]
         if v is not None and (v < 0 or (v == 0 and key in pos)):
