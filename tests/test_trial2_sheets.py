@@ -150,3 +150,14 @@ def test_bad_binary_sheet_lists_every_problem_and_exits_2(run_cli):
     assert "problem 1 of 3" in err
     # an SD of 0 is refused too, so a negative SD is not told "zero or more"
     assert "sd1 = -2.5 is impossible; it must be positive" in err
+
+
+def test_typed_odds_ratio_whose_ci_is_not_centred_on_it_is_warned_about():
+    # a 95% CI of an OR is ln OR ± 1.96 SE, so ln OR is the centre of ln(lo), ln(hi)
+    # [B] eqs. 5.5-5.7; each typed number stands for its rounding interval (2.1 for
+    # [2.05, 2.15]); sqrt(1.05 x 42) = 6.64 is far outside, sqrt(1.05 x 4.2) = 2.1 is on it
+    eff = convert(read_sheet(DATA / "or_ci_typo.csv"))
+    warned = [w for w in eff.warnings if "centre of its CI" in w]
+    assert len(warned) == 1 and "row 2 (Invented Clinic C)" in warned[0]
+    assert "column 'ci_low'" in warned[0] and "6.64" in warned[0]
+    assert [c.row for c in eff.inconsistencies] == [2]
