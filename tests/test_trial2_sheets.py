@@ -161,3 +161,12 @@ def test_typed_odds_ratio_whose_ci_is_not_centred_on_it_is_warned_about():
     assert len(warned) == 1 and "row 2 (Invented Clinic C)" in warned[0]
     assert "column 'ci_low'" in warned[0] and "6.64" in warned[0]
     assert [c.row for c in eff.inconsistencies] == [2]
+
+
+def test_rows_combined_into_one_sample_keep_their_conversion_notes(run_cli):
+    # the note cell showed only "combined with row(s) 8 into sample 'F1'" for a used row,
+    # hiding how it was converted ([B] ch. 24 for the combination itself)
+    res = run_cli("convert", DATA / "binary.csv")
+    line = next(ln for ln in res.stdout.splitlines() if ln.lstrip().startswith("7 "))
+    assert "combined with row(s) 8 into sample 'F1'" in line
+    assert "log odds ratio to d by the logistic conversion" in line

@@ -66,6 +66,14 @@ def _sentence(text: str) -> str:
 
 # ------------------------------------------------------------------ conversions
 
+def _row_note(r) -> str:
+    """The note cell of a converted row: an excluded row's reason; a used row's reason
+    (a sample it was combined into) followed by its conversion notes, which are kept."""
+    if r.status == "used" and r.reason:
+        return "; ".join((r.reason, *r.notes))
+    return r.reason or "; ".join(r.notes)
+
+
 def _reported(row, sheet_rec) -> str:
     """A short description of what the sheet row reported, e.g. 't = 2.10'."""
     v = sheet_rec.values
@@ -102,7 +110,7 @@ def conversion_blocks(eff, sheet=None) -> list[Block]:
                 else " ".join((r.reported or r.stat or "").split()))
         rows.append((str(r.row), md_escape(r.study), md_escape(said), r.design, fmt(r.effect),
                      fmt(r.se), interval_text(ci), "" if r.n_total is None else _count(r.n_total),
-                     r.status, md_escape(r.reason or "; ".join(r.notes))))
+                     r.status, md_escape(_row_note(r))))
     out = [Block("h2", "Conversions"),
            Block("p", f"{md_escape(name)}: {plural(len(eff.rows), 'row')} read, "
                       f"{eff.n_used:,} used, {eff.n_excluded:,} excluded; "
