@@ -170,3 +170,13 @@ def test_rows_combined_into_one_sample_keep_their_conversion_notes(run_cli):
     line = next(ln for ln in res.stdout.splitlines() if ln.lstrip().startswith("7 "))
     assert "combined with row(s) 8 into sample 'F1'" in line
     assert "log odds ratio to d by the logistic conversion" in line
+
+
+def test_excluded_rows_with_impossible_values_are_listed_not_fatal():
+    # an excluded row is never pooled; its impossible numbers (an SD below 0: an SD is a
+    # square root of a variance) must not stop the run, as its unreadable cells did not
+    sheet = read_sheet(DATA / "excluded_typos.csv")
+    eff = convert(sheet)
+    assert [r.status for r in eff.rows] == ["used", "excluded", "excluded", "excluded"]
+    assert all(r.reason == "typo in the paper" for r in eff.rows[1:])
+    assert any("row 4 is excluded" in n and "'sd1'" in n for n in sheet.notes)
