@@ -180,3 +180,17 @@ def test_excluded_rows_with_impossible_values_are_listed_not_fatal():
     assert [r.status for r in eff.rows] == ["used", "excluded", "excluded", "excluded"]
     assert all(r.reason == "typo in the paper" for r in eff.rows[1:])
     assert any("row 4 is excluded" in n and "'sd1'" in n for n in sheet.notes)
+
+
+def test_a_subgroup_of_one_study_has_no_tau2():
+    # one study gives no heterogeneity estimate (README "pooler pool"; Borenstein et al. 2009
+    # ch. 19: each subgroup's τ² is estimated from its own studies): τ² is not estimable,
+    # like I², rather than a 0.0 that reads as "no heterogeneity found"
+    from pooler import pool
+    from pooler._results import NotEstimable
+    res = pool(convert(read_sheet(DATA / "subgroup_of_one.csv")))
+    rows = {r.label: r for r in res.subgroups.rows}
+    assert rows["home"].k == 1
+    assert isinstance(rows["home"].tau2, NotEstimable) and isinstance(rows["home"].i2, NotEstimable)
+    assert rows["home"].to_dict()["tau2"] == {"status": "not estimable", "reason": "one study"}
+    assert rows["clinic"].tau2 == 0.0 and rows["clinic"].k == 4

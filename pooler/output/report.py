@@ -332,7 +332,8 @@ def pooled_summary(res) -> list[str]:
 def _influence_block(rows, sym, first="analysis") -> Block:
     return Block("table", headers=(first, "k", sym, "95% CI", "tau^2", "I^2"),
                  rows=tuple((md_escape(r.label), fmt(r.k), fmt(r.estimate),
-                             ci_text(r.ci_low, r.ci_high), fmt(r.tau2, 4),
+                             ci_text(r.ci_low, r.ci_high),
+                             "" if isinstance(r.tau2, NotEstimable) else fmt(r.tau2, 4),
                              "" if isinstance(r.i2, NotEstimable) else f"{100 * r.i2:.1f}%")
                             for r in rows), detail=True)
 
