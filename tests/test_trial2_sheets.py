@@ -194,3 +194,23 @@ def test_a_subgroup_of_one_study_has_no_tau2():
     assert isinstance(rows["home"].tau2, NotEstimable) and isinstance(rows["home"].i2, NotEstimable)
     assert rows["home"].to_dict()["tau2"] == {"status": "not estimable", "reason": "one study"}
     assert rows["clinic"].tau2 == 0.0 and rows["clinic"].k == 4
+
+
+def test_pool_json_row_weights_are_shares_of_the_pooled_estimate():
+    # the two rows of sample F1 each carried the sample's whole weight, so the rows'
+    # weights added up to 1.16 while the samples' add up to 1. The sample's effect is the
+    # mean of its m rows ([B] ch. 24), so the pooled mean sum_u w_u y_u equals
+    # sum_rows (w_u / m) y_row: each row's share is w_u / m.
+    import json
+    from pooler.cli import main
+    from click.testing import CliRunner
+    res = CliRunner().invoke(main, ["pool", str(DATA / "binary.csv"), "--json"])
+    doc = json.loads(res.stdout)
+    used = [r for r in doc["rows"] if r["status"] == "used"]
+    assert_allclose(sum(r["weight"] for r in used), 1.0, rtol=0, atol=1e-12)
+    assert_allclose(sum(r["weight"] * r["effect"] for r in used), doc["pooled"]["estimate"],
+                    rtol=1e-12)
+    f1 = [r for r in used if r["sample"] == "F1"]
+    unit = next(u for u in doc["units"] if u["label"].startswith("Invented Clinic F"))
+    assert [r["sample_weight"] for r in f1] == [unit["weight"]] * 2
+    assert_allclose([r["weight"] for r in f1], [unit["weight"] / 2] * 2, rtol=1e-15)
