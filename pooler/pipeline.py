@@ -86,14 +86,19 @@ class Analysis:
                             "audit": to_jsonable(self.audit.literature)}
         if "model_average" in doc["scenarios"]:
             doc["model_average"] = doc["scenarios"].pop("model_average")
-        weight = {}
+        # a row's weight is its share of the pooled estimate: a sample of m rows is their
+        # mean (Borenstein et al. 2009 ch. 24), so each row carries 1/m of the sample's
+        # weight and the rows' weights add up to 1 as the samples' do
+        weight, sample_weight = {}, {}
         for u, w in zip(self.effects.units, self.pooled.weights):
             for r in u.rows:
-                weight[r] = w
+                weight[r] = w / len(u.rows)
+                sample_weight[r] = w
         eff = self.effects.to_dict()
         rows = eff["rows"]
         for r in rows:
             r["weight"] = weight.get(r["row"])
+            r["sample_weight"] = sample_weight.get(r["row"])
         doc["rows"] = rows
         doc["inconsistent_reports"] = eff["inconsistent_reports"]
         if self.pooled.k > JSON_ALL_ROWS_MAX_K:

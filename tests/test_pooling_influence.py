@@ -43,7 +43,9 @@ def _literatures(n, seed):
 
 
 def _fields(r):
-    return [r.k, r.estimate, r.ci_low, r.ci_high, r.tau2, float(r.i2) if r.i2 else -1.0]
+    # a one-study row has neither τ² nor I² (NotEstimable, falsy): -1 stands for it
+    return [r.k, r.estimate, r.ci_low, r.ci_high, r.tau2 if r.tau2 or r.tau2 == 0 else -1.0,
+            float(r.i2) if r.i2 else -1.0]
 
 
 @pytest.mark.parametrize("estimator", ESTIMATORS)

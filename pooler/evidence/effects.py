@@ -410,8 +410,19 @@ def _design(ctx: _Ctx, rec: Record) -> str:
         return "between"
     if d in ("within", "w", "paired", "repeated", "within-subject", "within-subjects"):
         return "within"
+    if d in _CORRELATION_WORDS:
+        if rec.stat not in ("t", "F", "p", "r"):
+            raise ctx.err(rec, "design", f"design '{rec.get('design')}' is for a t, an F(1, df) "
+                                         "or a p that tests a correlation (or an r), not "
+                                         f"for stat '{rec.stat}': leave 'design' empty or "
+                                         "'between'")
+        return "correlation"
     raise ctx.err(rec, "design", f"design '{rec.get('design')}' is not understood; "
-                                 "use 'between' or 'within'")
+                                 "use 'between', 'within' or 'correlation'")
+
+
+#: Spellings of the design of a t, F(1, df) or p that tests a correlation.
+_CORRELATION_WORDS = ("correlation", "correlational", "r")
 
 
 _PUBLISHED = {"yes": "published", "y": "published", "true": "published", "1": "published",
@@ -512,12 +523,33 @@ def _n_within(ctx: _Ctx, rec: Record, notes: list[str]) -> float:
     return n
 
 
-def _from_t_value(ctx: _Ctx, rec: Record, t: float, notes: list[str]) -> _Raw:
-    if _design(ctx, rec) == "within":
-        n = _n_within(ctx, rec, notes)
+def _n_correlation(ctx: _Ctx, rec: Record, notes: list[str]) -> float:
+    """N of a test of a correlation: ``n``, ``n1 + n2``, or ``df + 2`` (the t test of r has
+    n - 2 df)."""
+    n, _, _ = _r_groups(ctx, rec, notes)
+    if not n > 3:
+        raise ctx.err(rec, "n", f"n = {n:g}; a correlation needs n > 3 for a variance")
+    return n
+
+
+def _from_t_value(ctx: _Ctx, rec: Record, t: float, notes: list[str],
+                  groups: tuple[float, float] | None = None, n_within: float | None = None
+                  ) -> _Raw:
+    """A t statistic to d; ``groups`` (n1, n2) or ``n_within`` are the sizes a caller has
+    already read, so that their notes and warnings (an equal split of N, N from the df)
+    are not given twice."""
+    design = _design(ctx, rec)
+    if design == "within":
+        n = n_within if n_within is not None else _n_within(ctx, rec, notes)
         r = _within_r(ctx, rec, notes)
         return _within_raw(t / math.sqrt(n), n, r, notes)
-    n1, n2 = _groups(ctx, rec, notes)
+    if design == "correlation":
+        n = n_within if n_within is not None else _n_correlation(ctx, rec, notes)
+        r = t / math.sqrt(t * t + n - 2)
+        notes.append(f"t({n - 2:g}) = {t:.3f} of a correlation read as r = t / sqrt(t^2 + n - 2)"
+                     f" = {r:.4f}")
+        return _r_raw(r, n, None, None, notes)
+    n1, n2 = groups if groups is not None else _groups(ctx, rec, notes)
     d = t * math.sqrt(1 / n1 + 1 / n2)
     return _Raw("d", d, d_variance(d, n1, n2), n1 + n2, n1, n2, n1 + n2 - 2, "between",
                 notes=notes)
@@ -572,14 +604,20 @@ def _from_p(ctx: _Ctx, rec: Record) -> _Raw:
         raise ctx.err(rec, "value", f"a one-tailed p of {p:g} > 0.5 means the effect went the "
                                     "other way; give p = 1 - p and direction '-'")
     sign = _sign(ctx, rec, p, required=True)
-    if _design(ctx, rec) == "within":
-        df = _n_within(ctx, rec, notes) - 1
+    groups = n_within = None
+    design = _design(ctx, rec)
+    if design == "within":
+        n_within = _n_within(ctx, rec, notes)
+        df = n_within - 1
+    elif design == "correlation":
+        n_within = _n_correlation(ctx, rec, notes)
+        df = n_within - 2
     else:
-        n1, n2 = _groups(ctx, rec, notes)
-        df = n1 + n2 - 2
+        groups = _groups(ctx, rec, notes)
+        df = groups[0] + groups[1] - 2
     t = float(stdtrit(df, 1 - p / tails)) if p < 1 else 0.0
     notes.append(f"t({df:g}) = {t:.3f} recovered from p")
-    return _from_t_value(ctx, rec, sign * t, notes)
+    return _from_t_value(ctx, rec, sign * t, notes, groups, n_within)
 
 
 def _from_d(ctx: _Ctx, rec: Record, *, is_g: bool = False) -> _Raw:
@@ -1071,7 +1109,8 @@ def _assumptions(rows, within_r, sample_r, combined) -> list[str]:
     for key, text in pairs:
         hit = rows_with(key)
         if hit:
-            out.append(f"{text} (rows {', '.join(map(str, hit))})")
+            out.append(f"{text} ({'row' if len(hit) == 1 else 'rows'} "
+                       f"{', '.join(map(str, hit))})")
     if combined:
         out.append(f"rows sharing a sample combined with an assumed correlation of {sample_r:g} "
                    "between their outcomes (Borenstein et al. 2009, ch. 24)")

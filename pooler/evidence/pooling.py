@@ -400,7 +400,7 @@ class InfluenceRow:
     estimate: float
     ci_low: float
     ci_high: float
-    tau2: float
+    tau2: float | NotEstimable
     i2: float | NotEstimable
 
     def to_dict(self) -> dict:
@@ -409,9 +409,13 @@ class InfluenceRow:
 
 def _row(label, y, v, estimator, interval, level) -> InfluenceRow:
     f = random_effects(y, v, estimator, interval, level)
-    i2 = (f.tau2 / (f.tau2 + typical_variance(v)) if len(y) >= 2
-          else NotEstimable("one study"))
-    return InfluenceRow(label, f.k, f.mu, f.ci.low, f.ci.high, f.tau2, i2)
+    if len(y) >= 2:
+        return InfluenceRow(label, f.k, f.mu, f.ci.low, f.ci.high, f.tau2,
+                            f.tau2 / (f.tau2 + typical_variance(v)))
+    # one study has no between-study variance to estimate: neither τ² nor I² (the fit's
+    # τ² = 0 is a placeholder, not an estimate)
+    one = NotEstimable("one study")
+    return InfluenceRow(label, f.k, f.mu, f.ci.low, f.ci.high, one, one)
 
 
 def _table(labels, y, v, sums, sizes, members, estimator, interval, level):

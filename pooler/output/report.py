@@ -66,6 +66,14 @@ def _sentence(text: str) -> str:
 
 # ------------------------------------------------------------------ conversions
 
+def _row_note(r) -> str:
+    """The note cell of a converted row: an excluded row's reason; a used row's reason
+    (a sample it was combined into) followed by its conversion notes, which are kept."""
+    if r.status == "used" and r.reason:
+        return "; ".join((r.reason, *r.notes))
+    return r.reason or "; ".join(r.notes)
+
+
 def _reported(row, sheet_rec) -> str:
     """A short description of what the sheet row reported, e.g. 't = 2.10'."""
     v = sheet_rec.values
@@ -102,7 +110,7 @@ def conversion_blocks(eff, sheet=None) -> list[Block]:
                 else " ".join((r.reported or r.stat or "").split()))
         rows.append((str(r.row), md_escape(r.study), md_escape(said), r.design, fmt(r.effect),
                      fmt(r.se), interval_text(ci), "" if r.n_total is None else _count(r.n_total),
-                     r.status, md_escape(r.reason or "; ".join(r.notes))))
+                     r.status, md_escape(_row_note(r))))
     out = [Block("h2", "Conversions"),
            Block("p", f"{md_escape(name)}: {plural(len(eff.rows), 'row')} read, "
                       f"{eff.n_used:,} used, {eff.n_excluded:,} excluded; "
@@ -324,7 +332,8 @@ def pooled_summary(res) -> list[str]:
 def _influence_block(rows, sym, first="analysis") -> Block:
     return Block("table", headers=(first, "k", sym, "95% CI", "tau^2", "I^2"),
                  rows=tuple((md_escape(r.label), fmt(r.k), fmt(r.estimate),
-                             ci_text(r.ci_low, r.ci_high), fmt(r.tau2, 4),
+                             ci_text(r.ci_low, r.ci_high),
+                             "" if isinstance(r.tau2, NotEstimable) else fmt(r.tau2, 4),
                              "" if isinstance(r.i2, NotEstimable) else f"{100 * r.i2:.1f}%")
                             for r in rows), detail=True)
 

@@ -298,9 +298,32 @@ def check_record(rec, column_of) -> tuple[list[Inconsistency], object, list[str]
                           "; check the sample sizes and the df (the effect uses the sample "
                           "sizes)"))
                 out.append(Inconsistency(rec.row, rec.study, column_of(where), "df", msg))
-    # a CI around its estimate
+    # a CI around its estimate (typed columns: each number as rounded at its last digit)
     if parsed is not None:
         msg = check_ci(parsed)
         if msg is not None:
             out.append(Inconsistency(rec.row, rec.study, column_of(COLUMN), "ci", msg))
+    elif stat == "odds_ratio":
+        typed = {k: rec.get(k) for k in ("value", "ci_low", "ci_high")}
+        if all(v is not None and v > 0 for v in typed.values()):
+            msg = check_ci(Parsed(text="", values={"stat": stat},
+                                  numbers={k: _typed_number(v) for k, v in typed.items()}))
+            if msg is not None:
+                out.append(Inconsistency(rec.row, rec.study, column_of("ci_low"), "ci", msg))
     return out, new_rec, notes
+
+
+def _typed_number(v: float) -> Number:
+    """A typed number with the decimals it shows (4.2 -> 1; a spreadsheet drops trailing
+    zeros, so this is never stricter than the printed number).
+
+    Examples
+    --------
+    >>> _typed_number(4.2).decimals, _typed_number(1.05).decimals, _typed_number(3.0).decimals
+    (1, 2, 0)
+    """
+    text = repr(float(v))
+    if "e" in text or "E" in text:
+        text = f"{v:.12f}".rstrip("0")
+    decimals = len(text.split(".")[1].rstrip("0")) if "." in text else 0
+    return Number(float(v), decimals)

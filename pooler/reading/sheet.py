@@ -64,7 +64,8 @@ COLUMN_GUIDE: dict[str, str] = {
     "events1": "events among n1 (counts)", "events2": "events among n2 (counts)",
     "ci_low": "lower 95% limit of an odds ratio", "ci_high": "upper 95% limit of an odds ratio",
     "direction": "+ if the result favours the hypothesis, - if not (required for F, chi2, p)",
-    "design": "between (default) or within",
+    "design": "between (default), within, or correlation (a t, F(1, df) or p that tests a "
+              "correlation: r = t / sqrt(t^2 + n - 2), Fisher z variance 1/(n - 3))",
     "within_r": "correlation between the repeated measures of a within-subject row",
     "tails": "1 or 2, for p (default 2)",
     "year": "publication year (cumulative analysis)",
@@ -572,22 +573,34 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma, notes) -> Re
             raise err("trust", f"trust '{values['trust']}' is not understood; use 'statistic' "
                                "(the default) or 'p'")
         values["trust"] = t
+    blanked: list[str] = []
+
+    def impossible(key, msg):
+        """An impossible number: an error, or on an excluded row left empty (and said),
+        as an unreadable cell of an excluded row is."""
+        if not values["exclude"]:
+            raise err(key, msg)
+        values[key] = None
+        blanked.append(seen.get(key, key))
+
     for key in ("value", "n1", "n2", "n", "df", "df1", "sd1", "sd2", "tails", "within_r",
                 "events1", "events2", "ci_low", "ci_high", "mean1", "mean2", "year",
                 "predictors"):
         v = values[key]
         if v is not None and not math.isfinite(v):
-            raise err(key, f"'{v}' is not a finite number")
-    pos = ("n1", "n2", "n", "df", "df1", "predictors")
+            impossible(key, f"'{v}' is not a finite number")
+    # an SD of 0 is refused by the conversion of means too (the standardiser must be > 0),
+    # so a negative SD is told the same rule rather than "zero or more"
+    pos = ("n1", "n2", "n", "df", "df1", "predictors", "sd1", "sd2")
     for key in ("n1", "n2", "n", "df", "df1", "sd1", "sd2", "events1", "events2", "predictors"):
         v = values[key]
         if v is not None and (v < 0 or (v == 0 and key in pos)):
-            raise err(key, f"{key} = {v:g} is impossible; it must be "
-                           f"{'positive' if key in pos else 'zero or more'}")
+            impossible(key, f"{key} = {v:g} is impossible; it must be "
+                            f"{'positive' if key in pos else 'zero or more'}")
     for ev, nk in (("events1", "n1"), ("events2", "n2")):
         e, n = values[ev], values[nk]
         if e is not None and 0 < e < 1 and (n is None or n > 1):
-            raise err(ev, f"{ev} = {e:g} looks like a proportion, but this column takes a count "
+            impossible(ev, f"{ev} = {e:g} looks like a proportion, but this column takes a count "
                           f"of people" + (f" (with {nk} = {n:g}, {e:g} of the group is "
                                           f"{e * n:g} people)" if n is not None else "")
                           + "; type the number of events")
@@ -599,7 +612,10 @@ def _record(name, rownum, cells, header, keys, seen, decimal_comma, notes) -> Re
                 hint = ("; if only the total N was reported, put it in 'n' and leave n1 and n2 "
                         "empty (it is split equally, halves included)")
             what = {"df1": "degrees of freedom", "predictors": "predictors"}.get(key, "people")
-            raise err(key, f"{key} = {v:g} is not a whole number; it counts {what}" + hint)
+            impossible(key, f"{key} = {v:g} is not a whole number; it counts {what}" + hint)
+    if blanked:
+        notes.append(f"row {rownum} is excluded; its impossible value(s) in "
+                     + ", ".join(f"'{c}'" for c in blanked) + " left empty")
     return Record(row=rownum, values=values, extra=extra, parsed=parsed,
                   from_reported=filled)
 
