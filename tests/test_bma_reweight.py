@@ -1,5 +1,6 @@
 """Re-weighting a fitted model average under other prior model probabilities
-(ModelAverage.with_model_prior) against a full refit with those priors.
+(ModelAverage.with_model_prior, and pooler.evidence.bma.reweighted, which shares its checks)
+against a full refit with those priors.
 
 The check rests on Bayes' rule over models (Hoeting, Madigan, Raftery & Volinsky 1999,
 eq. 2): P(M | y) ∝ P(M) p(y | M), with each model's own posterior free of P(M). The refit
@@ -12,7 +13,8 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from pooler.evidence.bma import DEFAULT_PRIORS, model_average
+from pooler.evidence.bma import (DEFAULT_PRIORS, WIDE_PRIORS, Priors, model_average,
+                                 reweighted)
 from pooler.errors import OptionError
 
 # invented literatures: a plain one on g, one on Fisher z
@@ -27,7 +29,10 @@ def _same(a, b, tol=1e-12):
                                                             abs=tol)
     assert [m.prior for m in a.models] == pytest.approx([m.prior for m in b.models], abs=tol)
     for key in ("effect", "heterogeneity", "bias"):
-        assert a.inclusion_bf[key] == pytest.approx(b.inclusion_bf[key], rel=tol)
+        if isinstance(b.inclusion_bf[key], float):
+            assert a.inclusion_bf[key] == pytest.approx(b.inclusion_bf[key], rel=tol)
+        else:   # not estimable (every model, or none, includes it): the same reason
+            assert a.inclusion_bf[key] == b.inclusion_bf[key]
     qs = [0.025, 0.1, 0.25, 0.33, 0.5, 0.75, 0.975]
     assert [a.mu_quantile(q, positive=True) for q in qs] == pytest.approx(
         [b.mu_quantile(q, positive=True) for q in qs], abs=tol)
@@ -52,6 +57,8 @@ def test_reweighting_equals_a_full_refit(y, v, metric, changes):
     avg = model_average(y, v, metric)
     refit = model_average(y, v, metric, replace(DEFAULT_PRIORS, **changes))
     _same(avg.with_model_prior(**changes), refit)
+    # the re-weighting for other parameter priors takes model probabilities the same way
+    _same(reweighted(avg, replace(DEFAULT_PRIORS, **changes)), refit)
 
 
 def test_more_prior_weight_on_bias_lowers_the_planning_effect():
@@ -89,3 +96,57 @@ def test_reweighting_refuses_what_needs_a_refit():
     assert only.posterior_of(bias="no bias") == pytest.approx(1.0)
     refit = model_average(Y, V, priors=replace(DEFAULT_PRIORS, p_no_bias=1.0))
     assert only.mu_quantile(0.5, True) == pytest.approx(refit.mu_quantile(0.5, True), abs=1e-12)
+
+
+def test_reweighted_refuses_what_needs_a_refit_as_with_model_prior_does():
+    # both entry points hold the models a fit with the new priors would hold (those with
+    # positive prior weight): a fit restricted to two models cannot stand for the other 18
+    part = model_average(Y, V, models=[("no bias", True, True), ("PET", True, True)])
+    with pytest.raises(OptionError, match="not fitted"):
+        reweighted(part, WIDE_PRIORS)
+    with pytest.raises(OptionError, match="effect_sd"):
+        reweighted(model_average(Y, V), Priors(effect_sd=-1.0))
+    with pytest.raises(OptionError, match="bias_shares"):
+        reweighted(model_average(Y, V), Priors(bias_shares=(("funnel", 1.0),)))
+    # models whose prior weight becomes 0 drop out, as in a refit that never fits them
+    full = model_average(Y, V)
+    only = reweighted(full, replace(DEFAULT_PRIORS, p_no_bias=1.0))
+    refit = model_average(Y, V, priors=replace(DEFAULT_PRIORS, p_no_bias=1.0))
+    assert {m.bias for m in only.models} == {"no bias"}
+    _same(only, refit)
+
+
+def test_a_fit_with_no_regression_share_is_not_taken_for_equal_sizes():
+    # priors that give PET and PEESE no share (studies of different sizes): the fit leaves
+    # them out, and giving them a share afterwards needs a refit; it is not moved to the
+    # selection models as it is when every study has the same size
+    no_reg = replace(DEFAULT_PRIORS, bias_shares=(("one-step selection", 0.5),
+                                                  ("two-step selection", 0.5),
+                                                  ("PET", 0.0), ("PEESE", 0.0)))
+    avg = model_average(Y, V, priors=no_reg)
+    assert not avg.same_sizes
+    with pytest.raises(OptionError, match="not fitted"):
+        avg.with_model_prior(bias_shares=DEFAULT_PRIORS.bias_shares)
+    with pytest.raises(OptionError, match="not fitted"):
+        reweighted(avg, WIDE_PRIORS)
+
+
+def test_equal_sizes_keep_the_split_under_other_model_probabilities():
+    # every study 20 per group (size-based variance 1/20 + 1/20): PET and PEESE are left out
+    # and their share goes to the selection models, in the fit and in every re-weighting,
+    # which then equals a refit with the same priors (Hoeting et al. 1999, eq. 2)
+    g = np.array([0.71, 0.34, 0.80, 0.12, 0.56, 0.90, 0.43, 0.65])   # invented
+    size_v = np.full(8, 0.1)
+    v = size_v + g * g / 80
+    avg = model_average(g, v, size_v=size_v)
+    assert avg.same_sizes
+    shares = (("one-step selection", 0.5), ("two-step selection", 0.2), ("PET", 0.2),
+              ("PEESE", 0.1))
+    for changes in ({"p_no_bias": 0.3}, {"bias_shares": shares}):
+        refit = model_average(g, v, priors=replace(DEFAULT_PRIORS, **changes), size_v=size_v)
+        for got in (avg.with_model_prior(**changes),
+                    reweighted(avg, replace(DEFAULT_PRIORS, **changes))):
+            assert {m.bias for m in got.models} == {"no bias", "one-step selection",
+                                                    "two-step selection"}
+            assert got.same_sizes
+            _same(got, refit)

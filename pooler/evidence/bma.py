@@ -56,7 +56,10 @@ pass on midpoint grids shrinks, in turn, a box to where the log-posterior is wit
 largest value (plus one cell on each side); the final pass uses Gauss-Legendre nodes on the
 box for u-scale parameters and the trapezoidal rule on a uniform μ grid (exponentially
 accurate for a smooth integrand that vanishes at the box ends). Refining every grid moves the
-posterior median of μ by less than 0.002 (tests/test_bma.py).
+posterior median of μ by less than 0.002 (tests/test_bma.py). Quantiles of μ are read from
+each model's μ density at its nodes, interpolated on the log scale between them and
+integrated on sub-cells (:func:`_smooth_cdf`): the nodes can lie a posterior SD apart, and a
+CDF read linearly between them put the 97.5th percentile 0.004 too high.
 
 Work that grows with k. The normal part of every likelihood is summed over the studies once
 per τ node (weighted least squares: every (μ, slope) node then costs O(1); exact). The
@@ -88,6 +91,7 @@ from __future__ import annotations
 
 import functools
 import math
+import numbers
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -689,18 +693,13 @@ class ModelFit:
         return g.values[i], (g.mass.sum(axis=ax) if ax else g.mass)
 
     def mu_cdf_nodes(self):
-        """(μ nodes, posterior CDF at the nodes): the density between nodes is the cubic
-        Hermite interpolant with central-difference slopes, whose integral over a cell is
-        h(f₀ + f₁)/2 + h²(f₀' - f₁')/12 (the corrected trapezoidal rule)."""
+        """(points, posterior CDF of μ at the points), dense enough to interpolate linearly
+        between (:func:`_smooth_cdf`, from the density at the μ nodes)."""
         x, w = self.marginal("mu")
-        h = self.grid.mu_step
-        dens = w / h  # trapezoid masses back to density (the end nodes carry half)
+        dens = w / self.grid.mu_step  # trapezoid masses back to density (the ends carry half)
         dens[0] *= 2
         dens[-1] *= 2
-        slope = np.gradient(dens, h)
-        cell = 0.5 * h * (dens[1:] + dens[:-1]) + h * h / 12 * (slope[:-1] - slope[1:])
-        c = np.concatenate([[0.0], np.cumsum(np.maximum(cell, 0.0))])
-        return x, c / c[-1]
+        return _smooth_cdf(x, dens)
 
     def mu_tau(self):
         """(μ values, τ values, joint masses) with singleton axes for fixed parameters."""
@@ -747,6 +746,9 @@ class ModelAverage(ShowsAsTable):
     predictive_atom : float
         Posterior probability that θ = 0 exactly (the no-effect, no-heterogeneity models).
     warnings : tuple of str
+    same_sizes : bool
+        Every study had the same size: PET and PEESE were left out and their prior share went
+        to the selection models (:func:`model_average`); re-weighting keeps that split.
     """
 
     metric: str
@@ -762,6 +764,7 @@ class ModelAverage(ShowsAsTable):
     predictive_atom: float
     warnings: tuple
     _mu_cdf: tuple = field(repr=False)  # (grid, continuous CDF, atom at 0)
+    same_sizes: bool = False
 
     # -- μ distribution
     def mu_cdf(self, x):
@@ -817,7 +820,9 @@ class ModelAverage(ShowsAsTable):
         probabilities; so only the weights change. The result equals a full
         :func:`model_average` with those priors to rounding (the same grids are reused;
         tests/test_bma_reweight.py checks 1e-12). Prior scales (``effect_sd``, ``tau_scale``,
-        ...) change the models' own posteriors and need a refit.
+        ...) change the models' own posteriors: :func:`reweighted` re-weights the nodes for
+        those. Both go through the same function and refuse priors that give weight to a
+        model the fit did not include.
 
         Parameters
         ----------
@@ -838,34 +843,15 @@ class ModelAverage(ShowsAsTable):
         >>> more_bias.posterior_of(bias="no bias") < avg.posterior_of(bias="no bias")
         True
         """
+        # validation
         changes = {name: val for name, val in (("p_no_bias", p_no_bias), ("p_effect", p_effect),
                                                ("p_heterogeneity", p_heterogeneity))
                    if val is not None}
-        for name, val in changes.items():
-            if not (isinstance(val, (int, float)) and 0 <= val <= 1):
-                raise OptionError(f"`{name}` must lie in [0, 1], not {val!r}")
         if bias_shares is not None:
-            bias_shares = tuple((str(b), float(s)) for b, s in bias_shares)
-            bad = [b for b, s in bias_shares if b not in BIAS_MODELS or not s >= 0]
-            if bad:
-                raise OptionError(f"`bias_shares`: {bad[0]!r} is not a bias model with a "
-                                  "share >= 0")
-            changes["bias_shares"] = bias_shares
+            changes["bias_shares"] = _shares_tuple(bias_shares)
         pr = replace(self.priors, **changes)
-        weight = {(b, e, h): p for b, e, h, p in _model_list(pr, None)}
-        fitted = {(m.bias, m.effect, m.heterogeneity) for m in self.models}
-        missing = [key for key, p in weight.items() if p > 0 and key not in fitted]
-        if missing:
-            raise OptionError("these priors give weight to a model that was not fitted ("
-                              f"{missing[0][0]}); fit again with pooler.evidence.bma.model_average")
-        fits = [(m.bias, m.effect, m.heterogeneity, weight.get((m.bias, m.effect,
-                                                               m.heterogeneity), 0.0), m.grid)
-                for m in self.models]
-        fits = [f for f in fits if f[3] > 0]
-        if not fits:
-            raise OptionError("these priors give no model any weight")
-        return _assemble(self.metric, self.k, pr, fits, self.warnings,
-                         self.mu.interval.level)
+        _check_priors(pr)
+        return _reweigh(self, pr, self.mu.interval.level)
 
     def to_dict(self) -> dict:
         comp = {b: {"prior": sum(m.prior for m in self.models if m.bias == b),
@@ -890,6 +876,66 @@ class ModelAverage(ShowsAsTable):
                               "heterogeneity": m.heterogeneity, "prior": m.prior,
                               "posterior": m.posterior, "log_marginal": m.log_marginal}
                              for m in self.models])
+
+
+#: Sub-points of the tabulated CDF of μ per unit of the log density's local scale
+#: (:func:`_smooth_cdf`), and at most this many per cell between μ nodes.
+_SUB_PER_SCALE = 16
+_SUB_MOST = 64
+_SUB_TINY = 1e-12  # cells holding less of the mass than this get no sub-points
+
+
+def _smooth_cdf(x, f):
+    """(points, CDF) of a smooth density known at uniform nodes ``x`` (values ``f`` ≥ 0).
+
+    The quadrature gets the density at the μ nodes right (the trapezoidal rule, exponentially
+    accurate), but the nodes can lie a posterior standard deviation apart: μ's box holds every
+    tail the model allows, and a linear CDF between nodes that far apart put the 97.5th
+    percentile of μ given μ > 0 0.004 too high (tests/test_review_bma.py). So the log
+    density is interpolated between nodes by a cubic Hermite polynomial (e.g. de Boor 2001,
+    *A Practical Guide to Splines*, ch. IV) with fourth-order central-difference slopes
+    (second order at the ends); both are exact for a quadratic, so a normal density is
+    reproduced exactly. Its exponential is integrated by 4-point Gauss-Legendre on sub-cells
+    small enough that the log density changes by about 1/16 across one
+    (h·(|slope|/2 + √|curvature|)·16 sub-cells per cell, at most 64; one in cells holding less
+    than 1e-12 of the mass), and the CDF is returned at the sub-cells' ends, where linear
+    interpolation moves a quantile by a few 1e-5 posterior SDs at most.
+    """
+    n = len(x)
+    top = float(f.max())
+    if n < 3 or top <= 0:
+        c = np.concatenate([[0.0], np.cumsum(0.5 * (f[1:] + f[:-1]))])
+        return x, c / c[-1] if c[-1] > 0 else np.linspace(0.0, 1.0, n)
+    h = float(x[1] - x[0])
+    ell = np.log(np.maximum(f / top, 1e-300))  # log density, 0 at the top, ≥ -690.8
+    slope = np.gradient(ell, h, edge_order=2)
+    if n >= 5:
+        slope[2:-2] = (ell[:-4] - 8 * ell[1:-3] + 8 * ell[3:-1] - ell[4:]) / (12 * h)
+    curv = np.empty(n)
+    curv[1:-1] = (ell[2:] - 2 * ell[1:-1] + ell[:-2]) / (h * h)
+    curv[0], curv[-1] = curv[1], curv[-2]
+    rough = 0.5 * (f[1:] + f[:-1])
+    scale = (0.5 * np.maximum(np.abs(slope[1:]), np.abs(slope[:-1]))
+             + np.sqrt(np.maximum(np.abs(curv[1:]), np.abs(curv[:-1]))))
+    per = np.clip(np.ceil(_SUB_PER_SCALE * h * scale), 1, _SUB_MOST).astype(np.int64)
+    per[rough <= _SUB_TINY * rough.sum()] = 1
+    cell = np.repeat(np.arange(n - 1), per)
+    start = np.cumsum(per) - per
+    u0 = (np.arange(cell.size) - start[cell]) / per[cell]
+    du = 1.0 / per[cell]
+    t, gw = _gauss_legendre(4)
+    u = u0[:, None] + du[:, None] * (t[None, :] + 1) / 2
+    j = cell[:, None]
+    u2, u3 = u * u, u * u * u
+    logf = ((2 * u3 - 3 * u2 + 1) * ell[j] + (u3 - 2 * u2 + u) * h * slope[j]
+            + (3 * u2 - 2 * u3) * ell[j + 1] + (u3 - u2) * h * slope[j + 1])
+    # a guard against overshoot where the nodes are far too coarse: never more than e times
+    # the larger end value (a normal density exceeds it by e^0.18 at one SD per cell)
+    logf = np.minimum(logf, np.maximum(ell[j], ell[j + 1]) + 1.0)
+    mass = (np.exp(logf) @ gw) * du * (h / 2)
+    c = np.concatenate([[0.0], np.cumsum(mass)])
+    pts = np.concatenate([x[cell] + h * u0, x[-1:]])
+    return pts, c / c[-1]
 
 
 def _inverse(g, c, target):
@@ -980,16 +1026,7 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
         raise OptionError("every effect must be finite and every variance positive")
     if metric not in ("g", "d", "z"):
         raise OptionError(f"`metric` must be 'g', 'd' or 'z', not {metric!r}")
-    if not isinstance(priors, Priors):
-        raise OptionError("`priors` must be a pooler.evidence.bma.Priors")
-    for name in ("p_effect", "p_heterogeneity", "p_no_bias"):
-        val = getattr(priors, name)
-        if not 0 <= val <= 1:
-            raise OptionError(f"`{name}` must lie in [0, 1], not {val!r}")
-    for name in ("effect_sd", "tau_shape", "tau_scale", "pet_scale", "peese_scale"):
-        val = getattr(priors, name)
-        if not (val > 0 and math.isfinite(val)):
-            raise OptionError(f"the prior's `{name}` must be positive, not {val!r}")
+    _check_priors(priors)
     if not resolution >= 0.5:
         raise OptionError(f"`resolution` must be at least 0.5, not {resolution!r}")
     if not 0 < level < 1:
@@ -1009,7 +1046,8 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
     k = len(y)
     warnings = []
     x = v if size_v is None else size_v
-    if k > 1 and np.ptp(x) <= 1e-9 * np.max(x):
+    same_sizes = k > 1 and bool(np.ptp(x) <= 1e-9 * np.max(x))
+    if same_sizes:
         pr = _without_regression(pr)
         if models is not None:
             models = {m for m in models if BIAS_MODELS[m[0]].family != "regression"}
@@ -1033,7 +1071,7 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
         dims = _dims(model, eff, het, pr)
         g = _fit_model(model, d, dims, not eff, not het, pr, resolution)
         fits.append((b, eff, het, p, g))
-    return _assemble(metric, k, pr, fits, tuple(warnings), level)
+    return _assemble(metric, k, pr, fits, tuple(warnings), level, same_sizes)
 
 
 def _without_regression(pr: Priors) -> Priors:
@@ -1041,6 +1079,8 @@ def _without_regression(pr: Priors) -> Priors:
     models in proportion to theirs, so the prior probability of bias stays the same."""
     shares = dict(pr.bias_shares)
     fam = {b: BIAS_MODELS[b].family for b in shares}
+    if all(s == 0 for b, s in shares.items() if fam[b] == "regression"):
+        return pr   # nothing to move (the priors of a fit that already left them out)
     sel = sum(s for b, s in shares.items() if fam[b] == "selection")
     total = sum(shares.values())
     if sel <= 0:   # no selection model has a share: bias as a whole keeps none
@@ -1049,7 +1089,7 @@ def _without_regression(pr: Priors) -> Priors:
         (b, s * total / sel if fam[b] == "selection" else 0.0) for b, s in shares.items()))
 
 
-def _assemble(metric, k, pr, fits, warnings, level) -> ModelAverage:
+def _assemble(metric, k, pr, fits, warnings, level, same_sizes=False) -> ModelAverage:
     """The model average from fitted models: ``fits`` holds (bias, effect, heterogeneity,
     prior weight, grid) per model. Posterior model probabilities are prior weight × marginal
     likelihood, normalised (Hoeting et al. 1999, eq. 2); everything else is averaged from the
@@ -1098,7 +1138,7 @@ def _assemble(metric, k, pr, fits, warnings, level) -> ModelAverage:
     p_pos = float(max(0.0, (1 - atom) - np.interp(0.0, g_all, c_all, left=0.0)))
 
     res = ModelAverage(metric, k, pr, mfits, bf, None, None, p_pos, None, None, 0.0,
-                       warnings, mu_cdf)
+                       warnings, mu_cdf, same_sizes)
     lo_q, hi_q = (1 - level) / 2, (1 + level) / 2
     mu_s = Summary(res.mu_quantile(0.5), Interval(res.mu_quantile(lo_q),
                                                   res.mu_quantile(hi_q), level))
@@ -1121,6 +1161,13 @@ def reweighted(avg: ModelAverage, priors: Priors, *, level: float = 0.95) -> Mod
     with a full fit within 0.002 in every quantile of μ used for planning
     (tests/test_bma.py), at no extra likelihood evaluation.
 
+    The prior model probabilities in ``priors`` apply too (as in
+    :meth:`ModelAverage.with_model_prior`, which shares this function's checks): the result
+    holds the models a fit with ``priors`` would hold, those with positive prior weight, and
+    an OptionError says so when one of them was not fitted (a fit restricted by
+    ``models=``). When every study had the same size, PET's and PEESE's share goes to the
+    selection models, as in :func:`model_average`.
+
     Parameters
     ----------
     avg : ModelAverage
@@ -1142,38 +1189,106 @@ def reweighted(avg: ModelAverage, priors: Priors, *, level: float = 0.95) -> Mod
     # validation
     if not isinstance(avg, ModelAverage):
         raise OptionError("`avg` must be a pooler.evidence.bma.ModelAverage")
-    if not isinstance(priors, Priors):
-        raise OptionError("`priors` must be a pooler.evidence.bma.Priors")
+    _check_priors(priors)
     if not 0 < level < 1:
         raise OptionError(f"`level` must lie in (0, 1), not {level!r}")
 
-    old_pr, new_pr = avg.priors, priors.on_metric(avg.metric)
-    present = {(m.bias, m.effect, m.heterogeneity) for m in avg.models}
-    regression = [b for b in BIAS_MODELS if BIAS_MODELS[b].family == "regression"]
-    if (not any(b in regression for b, _, _ in present)
-            and all(s == 0 for b, s in old_pr.bias_shares if b in regression)):
-        new_pr = _without_regression(new_pr)   # the fit left PET and PEESE out (same sizes)
-    weight = {(b, e, h): p for b, e, h, p in _model_list(new_pr, present)}
-    if sum(weight.values()) <= 0:
-        weight = dict.fromkeys(weight, 1.0)
+    return _reweigh(avg, priors.on_metric(avg.metric), level)
+
+
+def _reweigh(avg: ModelAverage, pr: Priors, level: float) -> ModelAverage:
+    """The model average ``avg`` under the priors ``pr`` (on the fit's metric), from its
+    fitted nodes: :meth:`ModelAverage.with_model_prior` and :func:`reweighted`.
+
+    The models are those a fit with ``pr`` would have, the ones with positive prior weight
+    (:func:`_model_list`); each must be in ``avg``, else the answer needs a refit and an
+    OptionError says so. When every study had the same size (``avg.same_sizes``) PET's and
+    PEESE's share goes to the selection models, as :func:`model_average` does. A model whose
+    parameter priors changed has its nodes re-weighted by p_new(θ)/p_old(θ) (the old
+    posterior mass times the ratio, renormalised; the marginal likelihood times the ratio's
+    posterior mean; :func:`reweighted`); otherwise its fit is reused as it is, so that only
+    the posterior model probabilities change (Hoeting et al. 1999, eq. 2).
+    """
+    old_pr = avg.priors
+    if avg.same_sizes:
+        pr = _without_regression(pr)
+    weight = {(b, e, h): p for b, e, h, p in _model_list(pr, None)}
+    fitted = {(m.bias, m.effect, m.heterogeneity) for m in avg.models}
+    missing = [key for key in weight if key not in fitted]
+    if missing:
+        b, e, h = missing[0]
+        raise OptionError(
+            f"these priors give weight to a model that was not fitted ({b}, "
+            f"{'effect' if e else 'no effect'}, "
+            f"{'heterogeneity' if h else 'no heterogeneity'}); fit again with "
+            "pooler.evidence.bma.model_average")
+    same_scales = _scales(old_pr) == _scales(pr)
     fits = []
     for m in avg.models:
-        model, g = BIAS_MODELS[m.bias], m.grid
-        olds = _dims(model, m.effect, m.heterogeneity, old_pr)
-        news = _dims(model, m.effect, m.heterogeneity, new_pr)
-        nd = len(g.names)
-        lr = np.zeros([1] * nd) if nd else np.zeros(())
-        for i, (do, dn, x) in enumerate(zip(olds, news, g.values)):
-            shp = [1] * nd
-            shp[i] = len(x)
-            lr = lr + (dn.log_pdf(x) - do.log_pdf(x)).reshape(shp)
-        top = float(lr.max())
-        mass = g.mass * np.exp(lr - top)
-        z = float(mass.sum())
-        grid = replace(g, mass=mass / z, log_ml=g.log_ml + top + math.log(z))
-        fits.append((m.bias, m.effect, m.heterogeneity,
-                     weight[(m.bias, m.effect, m.heterogeneity)], grid))
-    return _assemble(avg.metric, avg.k, new_pr, fits, avg.warnings, level)
+        p = weight.get((m.bias, m.effect, m.heterogeneity), 0.0)
+        if p <= 0:
+            continue   # a fit with these priors leaves the model out
+        g = m.grid
+        if not same_scales:
+            model = BIAS_MODELS[m.bias]
+            olds = _dims(model, m.effect, m.heterogeneity, old_pr)
+            news = _dims(model, m.effect, m.heterogeneity, pr)
+            nd = len(g.names)
+            lr = np.zeros([1] * nd) if nd else np.zeros(())
+            for i, (do, dn, x) in enumerate(zip(olds, news, g.values)):
+                shp = [1] * nd
+                shp[i] = len(x)
+                lr = lr + (dn.log_pdf(x) - do.log_pdf(x)).reshape(shp)
+            top = float(lr.max())
+            mass = g.mass * np.exp(lr - top)
+            z = float(mass.sum())
+            g = replace(g, mass=mass / z, log_ml=g.log_ml + top + math.log(z))
+        fits.append((m.bias, m.effect, m.heterogeneity, p, g))
+    if not fits:
+        raise OptionError("these priors give no model any weight")
+    return _assemble(avg.metric, avg.k, pr, fits, avg.warnings, level, avg.same_sizes)
+
+
+def _scales(pr: Priors) -> tuple:
+    """The priors' parts that shape the models' own posteriors (all but the model
+    probabilities)."""
+    return (pr.effect_sd, pr.tau_shape, pr.tau_scale, pr.pet_scale, pr.peese_scale,
+            tuple(pr.one_step_alpha), tuple(pr.two_step_alpha))
+
+
+def _shares_tuple(bias_shares) -> tuple:
+    """``bias_shares`` as a tuple of (name, share) pairs, or an OptionError."""
+    try:
+        return tuple((str(b), float(sh)) for b, sh in bias_shares)
+    except (TypeError, ValueError):
+        raise OptionError("`bias_shares` must be pairs of (bias model, share), not "
+                          f"{bias_shares!r}") from None
+
+
+def _check_priors(priors) -> None:
+    """The validation block of every public function that takes :class:`Priors`."""
+    if not isinstance(priors, Priors):
+        raise OptionError("`priors` must be a pooler.evidence.bma.Priors")
+    for name in ("p_effect", "p_heterogeneity", "p_no_bias"):
+        val = getattr(priors, name)
+        if not (isinstance(val, numbers.Real) and 0 <= val <= 1):
+            raise OptionError(f"`{name}` must lie in [0, 1], not {val!r}")
+    for name in ("effect_sd", "tau_shape", "tau_scale", "pet_scale", "peese_scale"):
+        val = getattr(priors, name)
+        if not (isinstance(val, numbers.Real) and val > 0 and math.isfinite(val)):
+            raise OptionError(f"the prior's `{name}` must be positive, not {val!r}")
+    for name, n in (("one_step_alpha", 2), ("two_step_alpha", 3)):
+        val = getattr(priors, name)
+        if not (isinstance(val, (tuple, list)) and len(val) == n
+                and all(isinstance(a, numbers.Real) and a > 0 and math.isfinite(a)
+                        for a in val)):
+            raise OptionError(f"the prior's `{name}` must be {n} positive numbers, not {val!r}")
+    bad = [b for b, sh in _shares_tuple(priors.bias_shares)
+           if b not in BIAS_MODELS or BIAS_MODELS[b].family == "none"
+           or not (sh >= 0 and math.isfinite(sh))]
+    if bad:
+        raise OptionError(f"`bias_shares`: {bad[0]!r} is not a bias model with a share >= 0; "
+                          f"choose from {', '.join(b for b in BIAS_MODELS if b != 'no bias')}")
 
 
 def _tau_summary(live, level) -> Summary:
