@@ -214,3 +214,46 @@ def test_pool_json_row_weights_are_shares_of_the_pooled_estimate():
     unit = next(u for u in doc["units"] if u["label"].startswith("Invented Clinic F"))
     assert [r["sample_weight"] for r in f1] == [unit["weight"]] * 2
     assert_allclose([r["weight"] for r in f1], [unit["weight"] / 2] * 2, rtol=1e-15)
+
+
+def test_double_zero_counts_are_listed_as_excluded_not_pooled(run_cli):
+    # a 2×2 table with no events (or only events) in both groups gives no estimate of the
+    # odds ratio; it is left out of an odds-ratio meta-analysis (Higgins et al. 2023,
+    # Cochrane Handbook section 10.4.4.2; from memory) instead of pooled as ln OR = 0 with
+    # the variance the 0.5 correction invents (1/0.5 + 1/40.5 + 1/0.5 + 1/40.5 on ln OR)
+    eff = convert(read_sheet(DATA / "double_zero.csv"))
+    status = {r.row: (r.status, r.reason) for r in eff.rows}
+    assert status[3][0] == "excluded" and "no events in both groups" in status[3][1]
+    assert status[5][0] == "excluded" and "only events in both groups" in status[5][1]
+    assert status[2][0] == status[4][0] == "used"
+    assert eff.n_used == 2 and eff.n_excluded == 2        # nothing dropped silently
+    res = run_cli("convert", DATA / "double_zero.csv")
+    assert res.exit_code == 0
+    assert "row 3" in res.stderr and "not pooled" in res.stderr
+
+
+def test_within_subject_df_above_n_minus_1_is_refused(run_cli, write_sheet):
+    # a paired t (and a within-subject F(1, df)) has df = n - 1; a larger df is impossible,
+    # refused as the two-group df > n1 + n2 - 2 is (file, row and column named, exit 2)
+    sheet = write_sheet([{"study": "Invented Lab A", "stat": "t", "value": 2.1, "n": 24,
+                          "df": 40, "design": "within"},
+                         {"study": "Invented Lab B", "stat": "t", "value": 2.4, "n": 30,
+                          "df": 29, "design": "within"}],
+                        columns=["study", "stat", "value", "n", "df", "design"])
+    res = run_cli("convert", sheet)
+    assert res.exit_code == 2
+    assert "row 2, column 'df'" in res.stderr and "larger than n - 1 = 23" in res.stderr
+    assert "row 3" not in res.stderr
+
+
+def test_chi_square_without_group_sizes_says_equal_groups_are_assumed():
+    # phi to d needs the groups' split (Borenstein et al. 2009 eq. 7.5, a = (n1 + n2)² /
+    # (n1 n2)); without n1 and n2 it is a = 4, two equal groups, and the row says so
+    eff = convert(read_sheet(DATA / "binary.csv"))
+    e = next(r for r in eff.rows if r.study == "Invented Clinic E")   # chi2 with only N
+    g = next(r for r in eff.rows if r.study == "Invented Clinic G")   # chi2 with n1, n2
+    assert any("two equal groups" in x for x in e.notes)
+    assert not any("two equal groups" in x for x in g.notes)
+    phi = math.sqrt(4.80 / 120)
+    d = 2 * phi / math.sqrt(1 - phi * phi)          # eq. 7.5 with a = 4
+    assert_allclose(e.effect, _j(118) * d, rtol=0, atol=1e-12)

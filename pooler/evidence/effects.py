@@ -330,6 +330,8 @@ class _Raw:
     n_fisher: float | None = None
     #: the ``published`` column, normalised ("published", "unpublished" or None)
     published: str | None = None
+    #: why a readable row cannot be pooled (it is then listed as excluded with this reason)
+    unusable: str = ""
 
     @property
     def a(self) -> float:
@@ -520,6 +522,11 @@ def _n_within(ctx: _Ctx, rec: Record, notes: list[str]) -> float:
                                 "participants (or 'df')")
     if not n > 1:
         raise ctx.err(rec, "n", f"n = {n:g} is impossible; a within-subject test needs n > 1")
+    df = rec.get("df")
+    if df is not None and rec.get("n") is not None and df > n - 1 + 1e-9:
+        # a paired t or a within-subject F(1, df) has df = n - 1, never more
+        raise ctx.err(rec, "df", f"df = {df:g} is larger than n - 1 = {n - 1:g}, which a "
+                                 "within-subject test cannot have; are n and df swapped?")
     return n
 
 
@@ -813,6 +820,9 @@ def _from_chi2(ctx: _Ctx, rec: Record) -> _Raw:
     n, n1, n2 = _r_groups(ctx, rec, notes)
     if not n > 3:
         raise ctx.err(rec, "n", f"n = {n:g}; chi-square needs n > 3")
+    if n1 is None:
+        notes.append("group sizes not reported: on the d scale phi counts as from two equal "
+                     "groups (a = 4, Borenstein et al. 2009 eq. 7.5)")
     if x >= n:
         raise ctx.err(rec, "value", f"chi2 = {x:g} is not below N = {n:g}, so phi would be 1 or "
                                     "more; check that this is a 1-df chi-square and N is right")
@@ -846,13 +856,19 @@ def _from_counts(ctx: _Ctx, rec: Record) -> _Raw:
     if min(cells) == 0:
         cells = [c + 0.5 for c in cells]
         notes.append("a cell was zero: 0.5 added to every cell")
-        if (e1 == 0 and e2 == 0) or (e1 == n1 and e2 == n2):
-            ctx.warn(rec, "no contrast in either group; the row carries very little information")
     a, b, c, d = cells
     log_or = math.log(a * d / (b * c))
     var = 1 / a + 1 / b + 1 / c + 1 / d
     log_or *= _sign(ctx, rec, 1.0, required=False)
-    return _log_or_raw(ctx, rec, log_or, var, n1, n2, notes)
+    raw = _log_or_raw(ctx, rec, log_or, var, n1, n2, notes)
+    if (e1 == 0 and e2 == 0) or (e1 == n1 and e2 == n2):
+        # no events (or only events) in both groups: the odds ratio is not estimable and the
+        # 0.5 correction would invent an effect of 0 with an arbitrary variance; such studies
+        # are left out of an odds-ratio meta-analysis (Higgins et al. 2023, Cochrane
+        # Handbook, section 10.4.4.2; from memory)
+        raw.unusable = (f"{'no' if e1 == 0 else 'only'} events in both groups: the odds ratio "
+                        "is not estimable, so the row is not pooled")
+    return raw
 
 
 def _from_odds_ratio(ctx: _Ctx, rec: Record) -> _Raw:
@@ -861,8 +877,10 @@ def _from_odds_ratio(ctx: _Ctx, rec: Record) -> _Raw:
     lo = ctx.positive(rec, "ci_low", "to know the odds ratio's precision")
     hi = ctx.positive(rec, "ci_high", "to know the odds ratio's precision")
     if not lo < o < hi:
+        hint = ("the limits look swapped" if hi < lo else
+                "check the odds ratio and both limits")
         raise ctx.err(rec, "ci_low", f"the interval [{lo:g}, {hi:g}] does not contain the odds "
-                                     f"ratio {o:g}; check for swapped limits")
+                                     f"ratio {o:g}; {hint}")
     if _design(ctx, rec) == "within":
         raise ctx.err(rec, "design", "an odds ratio here must compare independent groups")
     se = (math.log(hi) - math.log(lo)) / (2 * _Z975)
@@ -983,6 +1001,9 @@ def convert(sheet: Sheet, metric: str = "d", *, within_r: float = 0.5,
             ctx.warn(rec, f"|d| = {abs(raw.est):.2f} is unusually large; check the numbers")
         if reason_ex:
             status, reason = "excluded", reason_ex
+        elif raw.unusable:
+            status, reason = "excluded", raw.unusable
+            ctx.warn(rec, f"not pooled: {raw.unusable}")
         else:
             status, reason = "used", ""
             pending.append((rec, raw, y, v))
