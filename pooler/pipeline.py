@@ -172,6 +172,22 @@ class RunResult:
             "options": self.options, "command": self.command})
 
 
+def _planned_r_note(pooled, design) -> str | None:
+    """A note when a paired plan assumes a correlation between the repeated measures outside
+    the range the literature's within-subject studies were converted with: d_z = d /
+    sqrt(2 (1 - r)) (Morris & DeShon 2002, eq. 11), so the n depends on it directly."""
+    planned = getattr(design, "planned_r", None)
+    used = sorted({u.within_r for u in getattr(pooled, "studies", ())
+                   if u.design == "within" and u.within_r is not None})
+    if planned is None or not used or used[0] - 1e-12 <= planned <= used[-1] + 1e-12:
+        return None
+    span = f"{used[0]:g}" if len(used) == 1 else f"{used[0]:g} to {used[-1]:g}"
+    return (f"the plan assumes a correlation of {planned:g} between your repeated measures, "
+            f"but the literature's within-subject studies were converted with {span}: d_z, and "
+            "so the n, depends on it (d_z = d / sqrt(2 (1 - r)), Morris & DeShon 2002); plan "
+            "with the correlation you expect in your own design")
+
+
 @single_threaded
 def run(sheet_path, *, design, analysis_options, plan_options: dict,
         command: str = "", progress=None) -> RunResult:
@@ -188,6 +204,10 @@ def run(sheet_path, *, design, analysis_options, plan_options: dict,
     p = make_plan(sc.planning_effects(), design, metric=sc.planning_metric,
                   predictive=sc.assurance_density(),
                   effect_label="g" if sc.planning_metric == "d" else "r", **plan_options)
+    note = _planned_r_note(a.pooled, design)
+    if note:
+        from dataclasses import replace
+        p = replace(p, notes=p.notes + (note,))
     opts = {**analysis_options, **plan_options, "design": design.to_dict()
             if hasattr(design, "to_dict") else design}
     opts = {k: (list(v) if isinstance(v, tuple) else v) for k, v in opts.items()}

@@ -257,3 +257,20 @@ def test_chi_square_without_group_sizes_says_equal_groups_are_assumed():
     phi = math.sqrt(4.80 / 120)
     d = 2 * phi / math.sqrt(1 - phi * phi)          # eq. 7.5 with a = 4
     assert_allclose(e.effect, _j(118) * d, rtol=0, atol=1e-12)
+
+
+def test_paired_plan_notes_a_planned_r_outside_the_literatures(run_cli, tmp_path):
+    # d_z = d / sqrt(2 (1 - r)) (Morris & DeShon 2002, eq. 11): the planned correlation moves
+    # the n directly, so a plan at r = 0.5 on a literature converted with 0.6-0.7 says so;
+    # a planned r inside that range says nothing
+    import json
+    for extra, expect in ((("--within-r", "0.7"), True),
+                          (("--within-r", "0.7", "--planned-r", "0.65"), False)):
+        out = tmp_path / "_".join(extra)
+        res = run_cli("run", DATA / "paired.csv", "--design", "paired", *extra, "--out", out)
+        assert res.exit_code == 0, res.stderr
+        notes = json.loads((out / "results.json").read_text())["plan"]["notes"]
+        said = [x for x in notes if "correlation of" in x]
+        assert bool(said) is expect
+        if expect:
+            assert "correlation of 0.5" in said[0] and "0.6 to 0.7" in said[0]
