@@ -38,6 +38,10 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(os.path.dirname(HERE))
 sys.path.insert(0, ROOT)
 os.environ["PYTHONPATH"] = ROOT + os.pathsep + os.environ.get("PYTHONPATH", "")
+# a user's `pip install .` compiles pooler's bytecode; with PYTHONDONTWRITEBYTECODE set (as on
+# some CI machines) every run would compile pooler's modules again, which the floor's
+# libraries never do (their bytecode came with the install)
+os.environ.pop("PYTHONDONTWRITEBYTECODE", None)
 
 from pooler._threads import limit_before_numpy  # noqa: E402
 
