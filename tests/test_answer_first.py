@@ -86,6 +86,7 @@ def _methods(md: str) -> str:
 
 
 @pytest.mark.parametrize("name", list(LITERATURES))
+@pytest.mark.slow
 def test_every_path_opens_with_the_decision(rendered, name):
     stdout, md, doc = rendered[name]
     assert stdout.lstrip().startswith("The decision")
@@ -105,6 +106,7 @@ def test_every_path_opens_with_the_decision(rendered, name):
         assert f"{real['n_total_recruit']:,}" in stdout.split("How it was reached")[0]
 
 
+@pytest.mark.slow
 def test_realistic_from_the_posterior(rendered):
     # the default rule: the methods paragraph names the model average and its posterior
     # summary, and keeps the frequentist table as sensitivity analyses
@@ -124,6 +126,7 @@ def test_realistic_from_the_posterior(rendered):
     assert "model-averaged estimate" in decision and "P(effect &gt; 0)" in decision
 
 
+@pytest.mark.slow
 def test_methods_paragraph_names_the_regression_models_predictor(rendered):
     # PET and PEESE regress on the size-based SE (Pustejovsky & Rodgers 2019); with every
     # study the same size they are left out, and the paragraph and the model list say so
@@ -138,6 +141,7 @@ def test_methods_paragraph_names_the_regression_models_predictor(rendered):
     assert any("same size" in w for w in doc["pool"]["model_average"]["warnings"])
 
 
+@pytest.mark.slow
 def test_supported_plan_methods_paragraph_safeguard_rule(rendered):
     _, md, doc = rendered["supported_safeguard"]
     m = _methods(md)
@@ -151,6 +155,7 @@ def test_supported_plan_methods_paragraph_safeguard_rule(rendered):
 
 
 @pytest.mark.parametrize("name", ["refusal", "refusal_safeguard"])
+@pytest.mark.slow
 def test_refusal_plans_nothing(rendered, name):
     stdout, md, doc = rendered[name]
     decision = md.split("## The decision", 1)[1].split("\n## ", 1)[0]
@@ -163,6 +168,7 @@ def test_refusal_plans_nothing(rendered, name):
     assert ("posterior favoured no positive effect" in m) == (name == "refusal")
 
 
+@pytest.mark.slow
 def test_refusal_says_why_and_computes_nothing_on_a_non_positive_effect(rendered):
     stdout, md, doc = rendered["refusal_safeguard"]
     assert doc["pool"]["scenarios"]["realistic"]["effect"] <= 0
@@ -172,6 +178,7 @@ def test_refusal_says_why_and_computes_nothing_on_a_non_positive_effect(rendered
     assert "median power" not in md and "Literature audit: not computed" in stdout
 
 
+@pytest.mark.slow
 def test_user_given_smallest_effect_is_not_dressed_up(rendered):
     _, md, doc = rendered["user_smallest"]
     m = _methods(md)
@@ -183,6 +190,7 @@ def test_user_given_smallest_effect_is_not_dressed_up(rendered):
     assert "smallest effect size of interest: 0.3" in md   # the settings, in words
 
 
+@pytest.mark.slow
 def test_k2_plural_and_decision(rendered):
     stdout, md, _ = rendered["k2"]
     assert "k = 2 independent samples (2 rows used" in stdout
@@ -194,6 +202,7 @@ def test_k2_plural_and_decision(rendered):
     assert "With only 2 studies" in stdout.split("How it was reached")[0]
 
 
+@pytest.mark.slow
 def test_correlational_decision_counts_people_in_total(rendered):
     _, md, doc = rendered["correlational"]
     decision = md.split("## The decision", 1)[1].split("\n## ", 1)[0]
@@ -204,6 +213,7 @@ def test_correlational_decision_counts_people_in_total(rendered):
     assert "Fisher's z-transformed correlations" in _methods(md)
 
 
+@pytest.mark.slow
 def test_paired_literature_methods(rendered):
     _, md, doc = rendered["paired"]
     m = _methods(md)
@@ -213,6 +223,7 @@ def test_paired_literature_methods(rendered):
 
 
 @pytest.mark.parametrize("name", list(LITERATURES))
+@pytest.mark.slow
 def test_no_python_values_and_consistent_numbers(rendered, name):
     stdout, md, _ = rendered[name]
     for text in (stdout, md):

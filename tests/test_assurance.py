@@ -249,6 +249,7 @@ def test_the_plan_keeps_the_density_its_assurance_used():
     assert normal.predictive.form == "normal" and normal.predictive.mean == 0.4
 
 
+@pytest.mark.slow
 def test_the_curve_for_figures_matches_the_adaptive_assurance():
     """pooler.planning.power.assurance_curve (fixed Gauss-Legendre between the density's
     breaks, all n at once) against assurance_over (adaptive, to 1e-9 per n): a normal, a

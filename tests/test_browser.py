@@ -183,6 +183,7 @@ def test_report_in_a_real_browser(browser, demo_report):
     assert page["errors"] == []
 
 
+@pytest.mark.slow
 def test_paths_report_in_a_real_browser(browser, tmp_path):
     # the report of a simulated design (the invented garden path literature): every figure
     # (a power curve per scenario and the path diagram) loads, and the page logs no errors

@@ -161,6 +161,7 @@ def test_changing_one_block_changes_every_output(monkeypatch, run_cli, tmp_path)
         assert "mediation: a = " not in tables          # the old wording is gone everywhere
 
 
+@pytest.mark.slow
 def test_the_stress_check_is_one_source(run_cli, tmp_path):
     # `pooler paths SHEET --stress`: the terminal, report.md and report.html show the same
     # numbers in the same order, and they are results.json's

@@ -36,6 +36,7 @@ def test_huge_unselected_literatures_recover_the_truth(tmp_path):
     assert res.targets["XZ-Y"] == pytest.approx(ps.designs["realistic"].interaction_f2())
 
 
+@pytest.mark.slow
 def test_local_processes_and_dask_give_identical_results(tmp_path):
     distributed = pytest.importorskip("dask.distributed")
     from pooler.reading.pathsheet import pool_paths

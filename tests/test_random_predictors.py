@@ -100,6 +100,7 @@ def test_increment_quadrature_against_adaptive_quadrature():
                         err_msg=f"f2={f2} n={n} u={u} p={p}")
 
 
+@pytest.mark.slow
 def test_ancova_quadrature_against_adaptive_quadrature():
     for d, n1, n2, rho in [(0.4, 64, 64, 0.6), (1.0, 5, 5, 0.5), (0.8, 7, 11, 0.8),
                            (0.15, 500, 300, 0.3), (0.3, 40, 80, 0.9), (2.0, 2, 2, 0.5),

@@ -170,6 +170,7 @@ def test_bad_input_writes_nothing(tmp_path, write_sheet, run_cli):
     assert not out.exists()
 
 
+@pytest.mark.slow
 def test_two_runs_are_byte_identical(tmp_path, run_cli, demo_path):
     outs = []
     for i in range(2):
@@ -199,6 +200,7 @@ def test_run_every_design(tmp_path, run_cli, demo_path, args):
     assert any(isinstance(r["n_total"], int) for r in doc["plan"]["rows"])
 
 
+@pytest.mark.slow
 def test_rerun_into_its_own_folder_replaces_it(tmp_path, run_cli):
     # The README's first command runs `pooler demo` into pooler_out/: it must work twice.
     out = tmp_path / "again"
@@ -214,6 +216,7 @@ def test_rerun_into_its_own_folder_replaces_it(tmp_path, run_cli):
     assert {"forest.svg", "funnel.svg", "power.svg", "my_notes.txt", "report.md"} <= names
 
 
+@pytest.mark.slow
 def test_a_manifest_cannot_delete_outside_the_folder(tmp_path, run_cli):
     import json
     out = tmp_path / "out"

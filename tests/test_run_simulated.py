@@ -38,6 +38,7 @@ def test_simulated_designs_are_in_the_registry_and_in_run_help(run_cli):
     assert not set(SIMULATED_DESIGNS) & set(plan_design.type.choices)
 
 
+@pytest.mark.slow
 def test_run_at_a_fixed_n_is_the_paths_document(run_cli, tmp_path):
     args = ["--design", "parallel-mediation", "--test", "joint", "--reps", "200", "--n", "250",
             "--json", "--workers", "1"]
@@ -51,6 +52,7 @@ def test_run_at_a_fixed_n_is_the_paths_document(run_cli, tmp_path):
     assert "n = 250" in (tmp_path / "o" / "report.md").read_text()
 
 
+@pytest.mark.slow
 def test_run_search_on_a_moderation_sheet_is_the_paths_search(run_cli, tmp_path):
     args = ["--design", "moderation", "--power", "0.8", "--reps", "200", "--workers", "1",
             "--json"]
@@ -66,6 +68,7 @@ def test_run_search_on_a_moderation_sheet_is_the_paths_search(run_cli, tmp_path)
     assert "path_diagram.png" in files and "power_curve_realistic.png" in files
 
 
+@pytest.mark.slow
 def test_run_text_shows_the_paths_and_the_planning_table(run_cli, tmp_path):
     res = run_cli("run", GARDEN, "--design", "parallel-mediation", "--test", "joint",
                   "--reps", "200", "--power", "0.8", "--workers", "1", "--out", tmp_path / "g")
