@@ -1045,8 +1045,8 @@ def model_average(y, v, metric="g", priors: Priors = DEFAULT_PRIORS, *, models=N
     pr = priors.on_metric(metric)
     k = len(y)
     warnings = []
-    x = v if size_v is None else size_v
-    same_sizes = k > 1 and bool(np.ptp(x) <= 1e-9 * np.max(x))
+    from pooler.evidence.bias import _same_size   # the bias table's test of the same rule
+    same_sizes = k > 1 and _same_size(v if size_v is None else size_v)
     if same_sizes:
         pr = _without_regression(pr)
         if models is not None:
