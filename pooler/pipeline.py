@@ -176,10 +176,14 @@ def _planned_r_note(pooled, design) -> str | None:
     """A note when a paired plan assumes a correlation between the repeated measures outside
     the range the literature's within-subject studies were converted with: d_z = d /
     sqrt(2 (1 - r)) (Morris & DeShon 2002, eq. 11), so the n depends on it directly."""
-    planned = getattr(design, "planned_r", None)
-    used = sorted({u.within_r for u in getattr(pooled, "studies", ())
+    from pooler.planning.power import _design
+    des = _design(design)
+    if "planned_r" not in des.spec.parameters:   # every Design carries one; few use it
+        return None
+    planned = des.planned_r
+    used = sorted({u.within_r for u in pooled.studies
                    if u.design == "within" and u.within_r is not None})
-    if planned is None or not used or used[0] - 1e-12 <= planned <= used[-1] + 1e-12:
+    if not used or used[0] - 1e-12 <= planned <= used[-1] + 1e-12:
         return None
     span = f"{used[0]:g}" if len(used) == 1 else f"{used[0]:g} to {used[-1]:g}"
     return (f"the plan assumes a correlation of {planned:g} between your repeated measures, "

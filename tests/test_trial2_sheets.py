@@ -274,3 +274,10 @@ def test_paired_plan_notes_a_planned_r_outside_the_literatures(run_cli, tmp_path
         assert bool(said) is expect
         if expect:
             assert "correlation of 0.5" in said[0] and "0.6 to 0.7" in said[0]
+    # a design without a planned correlation (two-group) never gets the note
+    out = tmp_path / "two_group"
+    res = run_cli("run", DATA / "paired.csv", "--design", "two-group", "--within-r", "0.7",
+                  "--out", out)
+    assert res.exit_code == 0, res.stderr
+    notes = json.loads((out / "results.json").read_text())["plan"]["notes"]
+    assert not [x for x in notes if "correlation of" in x]
